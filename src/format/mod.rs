@@ -1,0 +1,419 @@
+//! The chip file (YAML or JSON): serde types at the edge, converted into a [`Network`].
+//!
+//! Parsing is split from I/O: [`parse_chip`] takes text and an origin name and never touches
+//! the file system. Every error carries the file, the line and column where known, and the
+//! key path of the field (`channels.c3.to`).
+//!
+//! ```yaml
+//! name: demo
+//! fluid: {viscosity: 1.0 mPa*s, density: 998 kg/m^3}
+//! sections:
+//!   feed: {shape: rectangle, width: 200 um, height: 50 um}
+//! nodes:
+//!   supply: {pressure: 150 mbar}
+//!   pump:   {flow: 12 uL/min}
+//!   tee: {}
+//!   drain:  {pressure: 0 Pa}
+//! channels:
+//!   c1: {from: supply, to: tee, section: feed, length: 12 mm}
+//!   c2: {from: pump, to: tee, section: {shape: circle, diameter: 100 um}, length: 30 mm}
+//!   c3: {from: tee, to: drain, section: feed, length: 8 mm}
+//! ```
+
+mod locate;
+mod named;
+mod quantity;
+mod yaml_guard;
+
+pub use locate::locate;
+pub use named::Named;
+pub use quantity::Q;
+
+use crate::fluid::Fluid;
+use crate::network::{Network, NetworkBuilder, NetworkError, Port, SectionId};
+use crate::section::Shape;
+use crate::units::{Density, Length, Pressure, Viscosity, VolumeFlow};
+use serde::de::{self, Deserializer, MapAccess, Visitor};
+use serde::Deserialize;
+use std::fmt;
+
+/// Which syntax a chip file is written in.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Syntax {
+    Yaml,
+    Json,
+}
+
+impl Syntax {
+    /// `.json` files are JSON; everything else is read as YAML (a superset of JSON).
+    pub fn from_path(path: &std::path::Path) -> Syntax {
+        match path.extension().and_then(|e| e.to_str()) {
+            Some(e) if e.eq_ignore_ascii_case("json") => Syntax::Json,
+            _ => Syntax::Yaml,
+        }
+    }
+}
+
+/// A problem in a chip file, with its place.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+#[error("{}", self.render())]
+pub struct InputError {
+    /// The file (or other origin) the text came from.
+    pub origin: String,
+    /// 1-based line and column, where known.
+    pub line: Option<usize>,
+    pub column: Option<usize>,
+    /// Key path of the field, e.g. `channels.c3.to`.
+    pub field: Option<String>,
+    /// What is wrong and what was expected.
+    pub message: String,
+}
+
+impl InputError {
+    fn render(&self) -> String {
+        let mut s = self.origin.clone();
+        if let Some(l) = self.line {
+            s.push_str(&format!(":{l}"));
+            if let Some(c) = self.column {
+                s.push_str(&format!(":{c}"));
+            }
+        }
+        s.push_str(": ");
+        if let Some(f) = &self.field {
+            if !self.message.starts_with(f.as_str()) {
+                s.push_str(f);
+                s.push_str(": ");
+            }
+        }
+        s.push_str(&self.message);
+        s
+    }
+
+    /// An error about the whole file (no line).
+    pub fn whole_file(origin: &str, message: impl Into<String>) -> Self {
+        InputError {
+            origin: origin.to_string(),
+            line: None,
+            column: None,
+            field: None,
+            message: message.into(),
+        }
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// The file format (serde types). Unknown keys are refused so typos do not pass silently.
+// ---------------------------------------------------------------------------------------
+
+/// A whole chip file.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChipFile {
+    /// Chip name, used in report titles.
+    #[serde(default)]
+    pub name: Option<String>,
+    /// Free text for the designer; ignored by the solver.
+    #[serde(default)]
+    pub description: Option<String>,
+    pub fluid: FluidSpec,
+    #[serde(default)]
+    pub sections: Named<SectionSpec>,
+    pub nodes: Named<NodeSpec>,
+    pub channels: Named<ChannelSpec>,
+}
+
+/// `fluid:` — constant properties.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct FluidSpec {
+    pub viscosity: Q<Viscosity>,
+    pub density: Q<Density>,
+}
+
+/// The shape kinds a section may name.
+#[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq)]
+#[serde(rename_all = "lowercase")]
+pub enum ShapeKind {
+    Circle,
+    Rectangle,
+}
+
+/// A cross-section: `shape:` plus the dimensions that shape takes. Kept flat (not a serde
+/// tagged enum) so errors inside keep their line numbers.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SectionSpec {
+    pub shape: ShapeKind,
+    #[serde(default)]
+    pub diameter: Option<Q<Length>>,
+    #[serde(default)]
+    pub width: Option<Q<Length>>,
+    #[serde(default)]
+    pub height: Option<Q<Length>>,
+}
+
+/// `nodes.NAME:` — a junction (`{}`), a pressure port or a flow port.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct NodeSpec {
+    #[serde(default)]
+    pub pressure: Option<Q<Pressure>>,
+    #[serde(default)]
+    pub flow: Option<Q<VolumeFlow>>,
+}
+
+/// `channels.NAME:`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct ChannelSpec {
+    pub from: String,
+    pub to: String,
+    pub section: SectionRef,
+    pub length: Q<Length>,
+}
+
+/// A channel's section: the name of one in `sections:`, or a mapping given inline.
+#[derive(Debug)]
+pub enum SectionRef {
+    Named(String),
+    Inline(SectionSpec),
+}
+
+impl<'de> Deserialize<'de> for SectionRef {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        struct V;
+        impl<'de> Visitor<'de> for V {
+            type Value = SectionRef;
+            fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                f.write_str("the name of a section, or a section mapping such as {shape: circle, diameter: 100 um}")
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<SectionRef, E> {
+                Ok(SectionRef::Named(v.to_string()))
+            }
+            fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<SectionRef, A::Error> {
+                SectionSpec::deserialize(de::value::MapAccessDeserializer::new(map))
+                    .map(SectionRef::Inline)
+            }
+        }
+        deserializer.deserialize_any(V)
+    }
+}
+
+// ---------------------------------------------------------------------------------------
+// Conversion into domain types.
+// ---------------------------------------------------------------------------------------
+
+/// A conversion problem at a key path, before it is located in the text.
+struct Misplaced {
+    path: Vec<String>,
+    message: String,
+}
+
+fn at(path: &[&str], message: impl Into<String>) -> Misplaced {
+    Misplaced {
+        path: path.iter().map(|s| s.to_string()).collect(),
+        message: message.into(),
+    }
+}
+
+impl From<NetworkError> for Misplaced {
+    fn from(e: NetworkError) -> Self {
+        Misplaced {
+            path: e.place().0,
+            message: e.to_string(),
+        }
+    }
+}
+
+impl SectionSpec {
+    /// The domain shape, checking that exactly the dimensions of this kind are present.
+    fn to_shape(&self, path: &[&str]) -> Result<Shape, Misplaced> {
+        let given: [(&str, Option<Q<Length>>); 3] = [
+            ("diameter", self.diameter),
+            ("width", self.width),
+            ("height", self.height),
+        ];
+        let (kind, wanted): (&str, &[&str]) = match self.shape {
+            ShapeKind::Circle => ("circle", &["diameter"]),
+            ShapeKind::Rectangle => ("rectangle", &["width", "height"]),
+        };
+        for (field, value) in &given {
+            let mut p = path.to_vec();
+            p.push(field);
+            match (wanted.contains(field), value) {
+                (true, None) => {
+                    let mut p = path.to_vec();
+                    p.push("shape");
+                    return Err(at(
+                        &p,
+                        format!(
+                            "a {kind} needs '{field}' (a length such as '{}'); it takes: {}",
+                            crate::units::Dimension::Length.example(),
+                            wanted.join(", ")
+                        ),
+                    ));
+                }
+                (false, Some(_)) => {
+                    return Err(at(
+                        &p,
+                        format!(
+                            "a {kind} does not take '{field}'; it takes: {}",
+                            wanted.join(", ")
+                        ),
+                    ))
+                }
+                _ => {}
+            }
+        }
+        let get = |v: Option<Q<Length>>| v.map(|q| q.0).unwrap_or_default();
+        let shape = match self.shape {
+            ShapeKind::Circle => Shape::Circle {
+                diameter: get(self.diameter),
+            },
+            ShapeKind::Rectangle => Shape::Rectangle {
+                width: get(self.width),
+                height: get(self.height),
+            },
+        };
+        shape.check().map_err(|e| {
+            let mut p = path.to_vec();
+            p.push(e.field);
+            at(&p, e.problem)
+        })?;
+        Ok(shape)
+    }
+}
+
+impl ChipFile {
+    fn into_network(self) -> Result<Network, Misplaced> {
+        let fluid = Fluid {
+            viscosity: self.fluid.viscosity.0,
+            density: self.fluid.density.0,
+        };
+        fluid
+            .check()
+            .map_err(|(field, problem)| at(&["fluid", field], problem))?;
+        let mut b =
+            NetworkBuilder::new(fluid).with_capacity(self.nodes.0.len(), self.channels.0.len());
+        if let Some(name) = &self.name {
+            b.name(name.clone());
+        }
+        for (name, spec) in &self.sections.0 {
+            let shape = spec.to_shape(&["sections", name])?;
+            b.add_section(name, shape)?;
+        }
+        for (name, spec) in &self.nodes.0 {
+            let port = match (spec.pressure, spec.flow) {
+                (Some(_), Some(_)) => {
+                    return Err(at(
+                        &["nodes", name, "flow"],
+                        format!(
+                            "node '{name}' has both 'pressure' and 'flow'; a port is either \
+                             pressure-controlled or flow-controlled. Keep one (a junction has neither)"
+                        ),
+                    ))
+                }
+                (Some(p), None) => Port::Pressure(p.0),
+                (None, Some(q)) => Port::Flow(q.0),
+                (None, None) => Port::Junction,
+            };
+            b.add_node(name, port)?;
+        }
+        for (name, spec) in &self.channels.0 {
+            let section: SectionId = match &spec.section {
+                SectionRef::Named(s) => b.section(name, s)?,
+                SectionRef::Inline(inline) => {
+                    let shape = inline.to_shape(&["channels", name, "section"])?;
+                    b.inline_section(name, shape)?
+                }
+            };
+            b.add_channel(name, &spec.from, &spec.to, section, spec.length.0)?;
+        }
+        Ok(b.build()?)
+    }
+}
+
+/// Largest chip file accepted (bytes). A 10⁶-channel file is about 80 MB of YAML.
+pub const MAX_FILE_BYTES: usize = 1 << 30;
+
+/// Remove serde's trailing " at line L column C" (we print the place up front).
+fn strip_position(message: &str) -> String {
+    match message.rfind(" at line ") {
+        Some(i) if message[i..].contains(" column ") => message[..i].to_string(),
+        _ => message.to_string(),
+    }
+}
+
+/// Parse chip-file text into a validated network. `origin` names the file in errors.
+pub fn parse_chip(text: &str, origin: &str, syntax: Syntax) -> Result<Network, InputError> {
+    if text.len() > MAX_FILE_BYTES {
+        return Err(InputError::whole_file(
+            origin,
+            format!(
+                "the file is {} bytes; chip files are limited to {MAX_FILE_BYTES} bytes",
+                text.len()
+            ),
+        ));
+    }
+    let file: ChipFile = match syntax {
+        Syntax::Yaml => {
+            if let Err(x) = yaml_guard::check(text) {
+                return Err(InputError {
+                    origin: origin.to_string(),
+                    line: Some(x.line),
+                    column: Some(x.column),
+                    field: None,
+                    message: format!(
+                        "YAML aliases here would expand to {} values from {} written ones; \
+                         refused to protect memory. Write the values out, or reference smaller anchors",
+                        x.expanded_events, x.written_events
+                    ),
+                });
+            }
+            serde_yaml::from_str(text).map_err(|e| {
+                let loc = e.location();
+                InputError {
+                    origin: origin.to_string(),
+                    line: loc.as_ref().map(|l| l.line()),
+                    column: loc.as_ref().map(|l| l.column()),
+                    field: None,
+                    message: strip_position(&e.to_string()),
+                }
+            })?
+        }
+        Syntax::Json => {
+            let mut de = serde_json::Deserializer::from_str(text);
+            let parsed: Result<ChipFile, _> = serde_path_to_error::deserialize(&mut de);
+            let file = parsed.map_err(|e| {
+                let path = e.path().to_string();
+                let inner = e.into_inner();
+                InputError {
+                    origin: origin.to_string(),
+                    line: Some(inner.line()),
+                    column: Some(inner.column()),
+                    field: (path != ".").then_some(path),
+                    message: strip_position(&inner.to_string()),
+                }
+            })?;
+            de.end().map_err(|e| InputError {
+                origin: origin.to_string(),
+                line: Some(e.line()),
+                column: Some(e.column()),
+                field: None,
+                message: strip_position(&e.to_string()),
+            })?;
+            file
+        }
+    };
+    file.into_network().map_err(|m| {
+        let parts: Vec<&str> = m.path.iter().map(String::as_str).collect();
+        let place = locate(text, &parts);
+        InputError {
+            origin: origin.to_string(),
+            line: place.map(|p| p.0),
+            column: place.map(|p| p.1),
+            field: Some(m.path.join(".")),
+            message: m.message,
+        }
+    })
+}

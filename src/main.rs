@@ -1,0 +1,74 @@
+//! The `rillnet` command: parse arguments, call the library, print, map errors to exit codes
+//! (0 ok, 1 a check failed, 2 bad input or usage).
+
+use clap::{Parser, Subcommand, ValueEnum};
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+#[derive(Parser)]
+#[command(
+    name = "rillnet",
+    version,
+    about = "Laminar flow, pressure and wall shear in microfluidic channel networks"
+)]
+struct Cli {
+    #[command(subcommand)]
+    command: Command,
+}
+
+#[derive(Subcommand)]
+enum Command {
+    /// Solve a chip: every node pressure, channel flow and port operating point.
+    Solve {
+        /// Chip file (.yaml/.yml, or .json).
+        file: PathBuf,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
+        format: OutFormat,
+        /// Write to this new file instead of standard output (never overwrites).
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+    },
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+enum OutFormat {
+    Table,
+    Json,
+    Csv,
+}
+
+impl From<OutFormat> for rillnet::report::Format {
+    fn from(f: OutFormat) -> Self {
+        match f {
+            OutFormat::Table => rillnet::report::Format::Table,
+            OutFormat::Json => rillnet::report::Format::Json,
+            OutFormat::Csv => rillnet::report::Format::Csv,
+        }
+    }
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    let result = match &cli.command {
+        Command::Solve {
+            file,
+            format,
+            output,
+        } => rillnet::solve_command(&rillnet::SolveRequest {
+            chip: file,
+            format: (*format).into(),
+            output: output.as_deref(),
+        }),
+    };
+    match result {
+        Ok(text) => {
+            print!("{text}");
+            ExitCode::SUCCESS
+        }
+        Err(e) => {
+            eprintln!("error: {e}");
+            ExitCode::from(e.exit_code() as u8)
+        }
+    }
+}

@@ -1,0 +1,514 @@
+//! The chip as a graph: nodes (junctions and ports) joined by channels.
+//!
+//! A [`Network`] is built only through [`NetworkBuilder`], which checks names and
+//! connectivity, so a `Network` value is always solvable: every connected part has at least
+//! one pressure port (otherwise its pressures are undetermined, a singular system).
+//!
+//! Invariants:
+//! - node `i` of [`Network::nodes`] is `NodeIndex::new(i)` in [`Network::graph`], channel `k`
+//!   is `EdgeIndex::new(k)`;
+//! - a channel's flow is positive from `from` to `to`;
+//! - every value is SI.
+
+use crate::fluid::Fluid;
+use crate::section::{GeometryKey, SectionFigures, Shape};
+use crate::units::{Length, Pressure, VolumeFlow};
+use petgraph::graph::UnGraph;
+use petgraph::unionfind::UnionFind;
+use std::collections::HashMap;
+
+/// Index of a node in [`Network::nodes`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
+pub struct NodeId(pub usize);
+
+/// Index of a section in [`Network::sections`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub struct SectionId(pub usize);
+
+/// Index of a channel in [`Network::channels`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub struct ChannelId(pub usize);
+
+/// What drives or constrains a node.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Port {
+    /// An internal junction: flow in equals flow out.
+    Junction,
+    /// A pressure-controlled port (pressure controller, reservoir, open outlet); gauge.
+    Pressure(Pressure),
+    /// A flow-controlled port (syringe pump): this flow enters the chip here.
+    /// Negative values withdraw fluid.
+    Flow(VolumeFlow),
+}
+
+/// A node of the chip.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Node {
+    pub name: String,
+    pub port: Port,
+}
+
+/// A named cross-section with its precomputed laminar figures.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Section {
+    pub name: String,
+    pub shape: Shape,
+    pub figures: SectionFigures,
+}
+
+/// A straight channel segment between two nodes.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Channel {
+    pub name: String,
+    pub from: NodeId,
+    pub to: NodeId,
+    pub section: SectionId,
+    pub length: Length,
+}
+
+/// A validated chip network.
+#[derive(Clone, Debug)]
+pub struct Network {
+    pub name: Option<String>,
+    pub fluid: Fluid,
+    pub nodes: Vec<Node>,
+    pub sections: Vec<Section>,
+    pub channels: Vec<Channel>,
+    graph: UnGraph<NodeId, ChannelId>,
+}
+
+/// What is wrong with the network as described. The `field` names a place the file layer
+/// can locate (see [`NetworkError::place`]).
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum NetworkError {
+    #[error("node '{name}' is defined twice; node names must be unique")]
+    DuplicateNode { name: String },
+    #[error("section '{name}' is defined twice; section names must be unique")]
+    DuplicateSection { name: String },
+    #[error("channel '{name}' is defined twice; channel names must be unique")]
+    DuplicateChannel { name: String },
+    #[error("channel '{channel}' {field}: unknown node '{node}'{hint}")]
+    UnknownNode {
+        channel: String,
+        field: &'static str,
+        node: String,
+        hint: String,
+    },
+    #[error("channel '{channel}' section: unknown section '{section}'{hint}")]
+    UnknownSection {
+        channel: String,
+        section: String,
+        hint: String,
+    },
+    #[error("channel '{channel}' runs from node '{node}' to itself; a channel must join two different nodes")]
+    SelfLoop { channel: String, node: String },
+    #[error("channel '{channel}' length: must be a positive finite length, got {value} m")]
+    BadLength { channel: String, value: f64 },
+    #[error("section '{section}' {problem}")]
+    BadSection { section: String, problem: String },
+    #[error("node '{node}' {field}: must be finite, got {value}")]
+    BadPortValue {
+        node: String,
+        field: &'static str,
+        value: f64,
+    },
+    #[error(
+        "the pressures of {count} node(s) are undetermined: {listed} {verb} not connected to any pressure port. \
+         Connect them through channels to a node with a 'pressure:' (e.g. an outlet at 0 Pa), or remove them"
+    )]
+    Floating {
+        count: usize,
+        listed: String,
+        verb: &'static str,
+        nodes: Vec<String>,
+    },
+    #[error("the chip has no channels; add at least one channel between two nodes")]
+    Empty,
+}
+
+/// Where in the chip description an error belongs: a path of keys.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct Place(pub Vec<String>);
+
+impl NetworkError {
+    /// The key path (e.g. `channels.c3.to`) the error refers to, for locating it in a file.
+    pub fn place(&self) -> Place {
+        let p = |parts: &[&str]| Place(parts.iter().map(|s| s.to_string()).collect());
+        match self {
+            NetworkError::DuplicateNode { name } => p(&["nodes", name]),
+            NetworkError::DuplicateSection { name } => p(&["sections", name]),
+            NetworkError::DuplicateChannel { name } => p(&["channels", name]),
+            NetworkError::UnknownNode { channel, field, .. } => p(&["channels", channel, field]),
+            NetworkError::UnknownSection { channel, .. } => p(&["channels", channel, "section"]),
+            NetworkError::SelfLoop { channel, .. } => p(&["channels", channel, "to"]),
+            NetworkError::BadLength { channel, .. } => p(&["channels", channel, "length"]),
+            NetworkError::BadSection { section, .. } => p(&["sections", section]),
+            NetworkError::BadPortValue { node, field, .. } => p(&["nodes", node, field]),
+            NetworkError::Floating { nodes, .. } => match nodes.first() {
+                Some(first) => p(&["nodes", first]),
+                None => p(&["nodes"]),
+            },
+            NetworkError::Empty => p(&["channels"]),
+        }
+    }
+}
+
+/// Suggest a close name ("did you mean 'tee'?") when one differs by little.
+fn suggestion<'a>(wanted: &str, names: impl Iterator<Item = &'a str>) -> String {
+    let mut best: Option<(usize, &str)> = None;
+    for name in names {
+        let d = edit_distance(wanted, name);
+        if d <= 2.max(wanted.len() / 4) && best.is_none_or(|(bd, _)| d < bd) {
+            best = Some((d, name));
+        }
+    }
+    match best {
+        Some((_, name)) => format!(" (did you mean '{name}'?)"),
+        None => String::new(),
+    }
+}
+
+fn edit_distance(a: &str, b: &str) -> usize {
+    let b: Vec<char> = b.chars().collect();
+    let mut prev: Vec<usize> = (0..=b.len()).collect();
+    for (i, ca) in a.chars().enumerate() {
+        let mut cur = vec![i + 1; b.len() + 1];
+        for (j, &cb) in b.iter().enumerate() {
+            cur[j + 1] = (prev[j] + usize::from(ca != cb))
+                .min(prev[j + 1] + 1)
+                .min(cur[j] + 1);
+        }
+        prev = cur;
+    }
+    prev[b.len()]
+}
+
+/// Builds a [`Network`] by name, checking as it goes.
+#[derive(Debug)]
+pub struct NetworkBuilder {
+    name: Option<String>,
+    fluid: Fluid,
+    nodes: Vec<Node>,
+    node_index: HashMap<String, NodeId>,
+    sections: Vec<Section>,
+    section_index: HashMap<String, SectionId>,
+    /// Identical shapes share one section, so each geometry is solved once.
+    shape_cache: HashMap<GeometryKey, SectionId>,
+    channels: Vec<Channel>,
+    channel_names: HashMap<String, ChannelId>,
+}
+
+impl NetworkBuilder {
+    pub fn new(fluid: Fluid) -> Self {
+        NetworkBuilder {
+            name: None,
+            fluid,
+            nodes: Vec::new(),
+            node_index: HashMap::new(),
+            sections: Vec::new(),
+            section_index: HashMap::new(),
+            shape_cache: HashMap::new(),
+            channels: Vec::new(),
+            channel_names: HashMap::new(),
+        }
+    }
+
+    /// Reserve room for a large network.
+    pub fn with_capacity(mut self, nodes: usize, channels: usize) -> Self {
+        self.nodes.reserve(nodes);
+        self.node_index.reserve(nodes);
+        self.channels.reserve(channels);
+        self.channel_names.reserve(channels);
+        self
+    }
+
+    pub fn name(&mut self, name: impl Into<String>) -> &mut Self {
+        self.name = Some(name.into());
+        self
+    }
+
+    pub fn add_node(&mut self, name: &str, port: Port) -> Result<NodeId, NetworkError> {
+        let bad = |field, value: f64| NetworkError::BadPortValue {
+            node: name.to_string(),
+            field,
+            value,
+        };
+        match port {
+            Port::Pressure(p) if !p.si().is_finite() => return Err(bad("pressure", p.si())),
+            Port::Flow(q) if !q.si().is_finite() => return Err(bad("flow", q.si())),
+            _ => {}
+        }
+        let id = NodeId(self.nodes.len());
+        if self.node_index.insert(name.to_string(), id).is_some() {
+            return Err(NetworkError::DuplicateNode {
+                name: name.to_string(),
+            });
+        }
+        self.nodes.push(Node {
+            name: name.to_string(),
+            port,
+        });
+        Ok(id)
+    }
+
+    /// Add a named section. Its shape is checked and its figures computed once.
+    pub fn add_section(&mut self, name: &str, shape: Shape) -> Result<SectionId, NetworkError> {
+        if self.section_index.contains_key(name) {
+            return Err(NetworkError::DuplicateSection {
+                name: name.to_string(),
+            });
+        }
+        let id = self.intern_shape(name, shape)?;
+        self.section_index.insert(name.to_string(), id);
+        Ok(id)
+    }
+
+    /// A section given inline on a channel: shared with any identical shape seen before.
+    pub fn inline_section(
+        &mut self,
+        channel: &str,
+        shape: Shape,
+    ) -> Result<SectionId, NetworkError> {
+        self.intern_shape(&format!("{channel}.section"), shape)
+    }
+
+    fn intern_shape(&mut self, name: &str, shape: Shape) -> Result<SectionId, NetworkError> {
+        shape.check().map_err(|e| NetworkError::BadSection {
+            section: name.to_string(),
+            problem: e.to_string(),
+        })?;
+        let key = shape.geometry_key();
+        if let Some(&id) = self.shape_cache.get(&key) {
+            return Ok(id);
+        }
+        let id = SectionId(self.sections.len());
+        self.sections.push(Section {
+            name: name.to_string(),
+            shape,
+            figures: shape.figures(),
+        });
+        self.shape_cache.insert(key, id);
+        Ok(id)
+    }
+
+    /// Look up a named section.
+    pub fn section(&self, channel: &str, name: &str) -> Result<SectionId, NetworkError> {
+        self.section_index
+            .get(name)
+            .copied()
+            .ok_or_else(|| NetworkError::UnknownSection {
+                channel: channel.to_string(),
+                section: name.to_string(),
+                hint: suggestion(name, self.section_index.keys().map(String::as_str)),
+            })
+    }
+
+    fn node(&self, channel: &str, field: &'static str, name: &str) -> Result<NodeId, NetworkError> {
+        self.node_index
+            .get(name)
+            .copied()
+            .ok_or_else(|| NetworkError::UnknownNode {
+                channel: channel.to_string(),
+                field,
+                node: name.to_string(),
+                hint: suggestion(name, self.node_index.keys().map(String::as_str)),
+            })
+    }
+
+    pub fn add_channel(
+        &mut self,
+        name: &str,
+        from: &str,
+        to: &str,
+        section: SectionId,
+        length: Length,
+    ) -> Result<ChannelId, NetworkError> {
+        let from_id = self.node(name, "from", from)?;
+        let to_id = self.node(name, "to", to)?;
+        if from_id == to_id {
+            return Err(NetworkError::SelfLoop {
+                channel: name.to_string(),
+                node: from.to_string(),
+            });
+        }
+        let l = length.si();
+        if !(l.is_finite() && l > 0.0) {
+            return Err(NetworkError::BadLength {
+                channel: name.to_string(),
+                value: l,
+            });
+        }
+        let id = ChannelId(self.channels.len());
+        if self.channel_names.insert(name.to_string(), id).is_some() {
+            return Err(NetworkError::DuplicateChannel {
+                name: name.to_string(),
+            });
+        }
+        self.channels.push(Channel {
+            name: name.to_string(),
+            from: from_id,
+            to: to_id,
+            section,
+            length,
+        });
+        Ok(id)
+    }
+
+    /// Finish: build the graph and refuse any part whose pressures are undetermined.
+    pub fn build(self) -> Result<Network, NetworkError> {
+        if self.channels.is_empty() {
+            return Err(NetworkError::Empty);
+        }
+        let mut graph = UnGraph::with_capacity(self.nodes.len(), self.channels.len());
+        for i in 0..self.nodes.len() {
+            graph.add_node(NodeId(i));
+        }
+        let mut parts = UnionFind::<usize>::new(self.nodes.len());
+        for (k, c) in self.channels.iter().enumerate() {
+            graph.add_edge(
+                petgraph::graph::NodeIndex::new(c.from.0),
+                petgraph::graph::NodeIndex::new(c.to.0),
+                ChannelId(k),
+            );
+            parts.union(c.from.0, c.to.0);
+        }
+        let labels = parts.into_labeling();
+        let mut anchored = vec![false; self.nodes.len()];
+        for (i, n) in self.nodes.iter().enumerate() {
+            if matches!(n.port, Port::Pressure(_)) {
+                anchored[labels[i]] = true;
+            }
+        }
+        let floating: Vec<String> = self
+            .nodes
+            .iter()
+            .enumerate()
+            .filter(|(i, _)| !anchored[labels[*i]])
+            .map(|(_, n)| n.name.clone())
+            .collect();
+        if !floating.is_empty() {
+            const SHOWN: usize = 12;
+            let mut listed = floating
+                .iter()
+                .take(SHOWN)
+                .map(|n| format!("'{n}'"))
+                .collect::<Vec<_>>()
+                .join(", ");
+            if floating.len() > SHOWN {
+                listed.push_str(&format!(" and {} more", floating.len() - SHOWN));
+            }
+            return Err(NetworkError::Floating {
+                count: floating.len(),
+                verb: if floating.len() == 1 { "is" } else { "are" },
+                listed,
+                nodes: floating,
+            });
+        }
+        Ok(Network {
+            name: self.name,
+            fluid: self.fluid,
+            nodes: self.nodes,
+            sections: self.sections,
+            channels: self.channels,
+            graph,
+        })
+    }
+}
+
+impl Network {
+    /// The chip as an undirected petgraph graph (node weights are [`NodeId`]s, edge weights
+    /// [`ChannelId`]s; indices coincide).
+    pub fn graph(&self) -> &UnGraph<NodeId, ChannelId> {
+        &self.graph
+    }
+
+    /// Hydraulic resistance of a channel, R = μ·L/K [Pa·s/m³].
+    pub fn resistance(&self, channel: ChannelId) -> f64 {
+        let c = &self.channels[channel.0];
+        let s = &self.sections[c.section.0];
+        s.figures.resistance_per_length(self.fluid.viscosity.si()) * c.length.si()
+    }
+
+    /// Look a node up by name.
+    pub fn node_id(&self, name: &str) -> Option<NodeId> {
+        self.nodes.iter().position(|n| n.name == name).map(NodeId)
+    }
+
+    /// Look a channel up by name.
+    pub fn channel_id(&self, name: &str) -> Option<ChannelId> {
+        self.channels
+            .iter()
+            .position(|c| c.name == name)
+            .map(ChannelId)
+    }
+
+    /// The section of a channel.
+    pub fn section_of(&self, channel: ChannelId) -> &Section {
+        &self.sections[self.channels[channel.0].section.0]
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn tube() -> Shape {
+        Shape::Circle {
+            diameter: Length::from_si(1e-4),
+        }
+    }
+
+    #[test]
+    fn floating_part_is_named() {
+        let mut b = NetworkBuilder::new(Fluid::WATER_20C);
+        b.add_node("in", Port::Pressure(Pressure::from_si(100.0)))
+            .unwrap();
+        b.add_node("out", Port::Pressure(Pressure::from_si(0.0)))
+            .unwrap();
+        b.add_node("island_a", Port::Junction).unwrap();
+        b.add_node("island_b", Port::Flow(VolumeFlow::from_si(1e-9)))
+            .unwrap();
+        let s = b.add_section("t", tube()).unwrap();
+        let l = Length::from_si(1e-3);
+        b.add_channel("c1", "in", "out", s, l).unwrap();
+        b.add_channel("c2", "island_a", "island_b", s, l).unwrap();
+        let err = b.build().unwrap_err();
+        let text = err.to_string();
+        assert!(
+            text.contains("'island_a'") && text.contains("'island_b'"),
+            "{text}"
+        );
+        assert!(!text.contains("'in'"), "{text}");
+    }
+
+    #[test]
+    fn name_errors() {
+        let mut b = NetworkBuilder::new(Fluid::WATER_20C);
+        b.add_node("tee", Port::Junction).unwrap();
+        assert!(matches!(
+            b.add_node("tee", Port::Junction),
+            Err(NetworkError::DuplicateNode { .. })
+        ));
+        let s = b.add_section("t", tube()).unwrap();
+        let e = b
+            .add_channel("c", "tea", "tee", s, Length::from_si(1e-3))
+            .unwrap_err();
+        assert!(e.to_string().contains("did you mean 'tee'"), "{e}");
+        let e = b
+            .add_channel("c", "tee", "tee", s, Length::from_si(1e-3))
+            .unwrap_err();
+        assert!(matches!(e, NetworkError::SelfLoop { .. }));
+        assert_eq!(
+            e.place().0,
+            vec!["channels".to_string(), "c".into(), "to".into()]
+        );
+    }
+
+    #[test]
+    fn identical_shapes_share_a_section() {
+        let mut b = NetworkBuilder::new(Fluid::WATER_20C);
+        let a = b.add_section("a", tube()).unwrap();
+        let c = b.inline_section("c1", tube()).unwrap();
+        assert_eq!(a, c);
+    }
+}

@@ -1,0 +1,57 @@
+//! Writing results without ever overwriting what the user has.
+//!
+//! Outputs go to a temporary file beside the target, then are moved into place with a
+//! no-clobber rename: a reader never sees a half-written file, and an existing file (in
+//! particular the chip file itself) is never replaced.
+
+use crate::error::Error;
+use std::io::Write;
+use std::path::Path;
+
+/// Write `contents` to the new file `path`, atomically; refuse if it exists or if it is
+/// one of `protected` (inputs of this run).
+pub fn write_new_file(path: &Path, contents: &[u8], protected: &[&Path]) -> Result<(), Error> {
+    let fail = |reason: String| Error::Write {
+        path: path.to_path_buf(),
+        reason,
+    };
+    for p in protected {
+        let same = match (p.canonicalize(), path.canonicalize()) {
+            (Ok(a), Ok(b)) => a == b,
+            _ => *p == path,
+        };
+        if same {
+            return Err(fail(
+                "this is an input file of the run; choose a new output path".into(),
+            ));
+        }
+    }
+    if path.exists() {
+        return Err(fail(
+            "the file exists; rillnet never overwrites files. Choose a new path or move the old file away"
+                .into(),
+        ));
+    }
+    let dir = match path.parent() {
+        Some(d) if !d.as_os_str().is_empty() => d,
+        _ => Path::new("."),
+    };
+    if !dir.is_dir() {
+        return Err(fail(format!("the folder {} does not exist", dir.display())));
+    }
+    let mut tmp = tempfile::Builder::new()
+        .prefix(".rillnet-")
+        .suffix(".part")
+        .tempfile_in(dir)
+        .map_err(|e| fail(e.to_string()))?;
+    tmp.write_all(contents).map_err(|e| fail(e.to_string()))?;
+    tmp.as_file().sync_all().map_err(|e| fail(e.to_string()))?;
+    tmp.persist_noclobber(path).map_err(|e| {
+        fail(if e.error.kind() == std::io::ErrorKind::AlreadyExists {
+            "the file appeared while writing; it was left untouched".into()
+        } else {
+            e.error.to_string()
+        })
+    })?;
+    Ok(())
+}

@@ -1,0 +1,297 @@
+//! Sparse symmetric positive-definite solves (faer's sparse Cholesky).
+//!
+//! The solver sees only an assembled system: a [`SymmetricPattern`] (which entries exist),
+//! a vector of values for those entries, and right-hand sides. It knows nothing of chips.
+//!
+//! The work is split as in faer: [`SymbolicCholesky`] (fill-reducing ordering and the
+//! structure of L) depends on the pattern only and is computed once; [`Cholesky`] (the
+//! numeric factor) is recomputed whenever the values change, e.g. in a sweep over channel
+//! widths, without repeating the analysis.
+
+use faer::dyn_stack::{MemBuffer, MemStack, StackReq};
+use faer::linalg::cholesky::llt::factor::LltRegularization;
+use faer::sparse::linalg::cholesky::{
+    factorize_symbolic_cholesky, CholeskySymbolicParams, LltRef, SymbolicCholesky as FaerSymbolic,
+    SymmetricOrdering,
+};
+use faer::sparse::{SparseColMatRef, SymbolicSparseColMatRef};
+use faer::{Conj, MatMut, Par, Side};
+
+/// Failure of the linear algebra.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum SolverError {
+    #[error("the symbolic analysis of the {n}×{n} system failed: {reason}")]
+    Symbolic { n: usize, reason: String },
+    #[error(
+        "the conductance matrix is not numerically positive definite (pivot {pivot} of {n}); \
+         channel resistances may span too many orders of magnitude"
+    )]
+    NotPositiveDefinite { pivot: usize, n: usize },
+    #[error("out of memory for a workspace of the {n}×{n} system")]
+    OutOfMemory { n: usize },
+}
+
+/// How many threads the factorisation may use.
+///
+/// Measured by `cargo run --release --example scale` on the 2-core reference machine: the
+/// sequential factorisation is faster than the threaded one (see README, Performance), so
+/// sequential is the default.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum Parallelism {
+    #[default]
+    Sequential,
+    /// Use faer's rayon backend with this many threads.
+    Threads(usize),
+}
+
+impl Parallelism {
+    fn par(self) -> Par {
+        match self {
+            Parallelism::Sequential => Par::Seq,
+            Parallelism::Threads(n) => Par::rayon(n),
+        }
+    }
+}
+
+/// Lower-triangle (row ≥ column) structure of a symmetric matrix in compressed sparse
+/// column form, rows sorted within each column, no duplicates.
+#[derive(Clone, Debug, PartialEq, Eq)]
+pub struct SymmetricPattern {
+    n: usize,
+    col_ptr: Vec<usize>,
+    row_idx: Vec<usize>,
+}
+
+impl SymmetricPattern {
+    /// Build the pattern of an `n`×`n` symmetric matrix from `(row, col)` positions (either
+    /// triangle; repeats allowed). Returns the pattern and, for each input position, the
+    /// index of its slot in the value array, so values can be scattered with `+=`.
+    ///
+    /// ```
+    /// use rillnet::solver::SymmetricPattern;
+    /// let (p, slots) = SymmetricPattern::from_positions(2, &[(0, 0), (1, 0), (0, 1), (1, 1)]);
+    /// assert_eq!(p.nnz(), 3);
+    /// assert_eq!(slots[1], slots[2]); // (1,0) and (0,1) share one stored entry
+    /// ```
+    pub fn from_positions(n: usize, positions: &[(usize, usize)]) -> (Self, Vec<usize>) {
+        // Count per column, then bucket, then sort and merge each column.
+        let lower = |&(r, c): &(usize, usize)| if r >= c { (r, c) } else { (c, r) };
+        let mut counts = vec![0usize; n + 1];
+        for p in positions {
+            let (_, c) = lower(p);
+            counts[c + 1] += 1;
+        }
+        for j in 0..n {
+            counts[j + 1] += counts[j];
+        }
+        let mut next = counts.clone();
+        // (row, original index) per bucketed position
+        let mut bucket = vec![(0usize, 0usize); positions.len()];
+        for (k, p) in positions.iter().enumerate() {
+            let (r, c) = lower(p);
+            bucket[next[c]] = (r, k);
+            next[c] += 1;
+        }
+        let mut col_ptr = Vec::with_capacity(n + 1);
+        let mut row_idx = Vec::with_capacity(positions.len());
+        let mut slots = vec![0usize; positions.len()];
+        col_ptr.push(0);
+        for j in 0..n {
+            let col = &mut bucket[counts[j]..counts[j + 1]];
+            col.sort_unstable();
+            let mut last = usize::MAX;
+            for &(r, k) in col.iter() {
+                if r != last {
+                    row_idx.push(r);
+                    last = r;
+                }
+                slots[k] = row_idx.len() - 1;
+            }
+            col_ptr.push(row_idx.len());
+        }
+        (
+            SymmetricPattern {
+                n,
+                col_ptr,
+                row_idx,
+            },
+            slots,
+        )
+    }
+
+    /// Matrix dimension.
+    pub fn dim(&self) -> usize {
+        self.n
+    }
+
+    /// Number of stored (lower-triangle) entries.
+    pub fn nnz(&self) -> usize {
+        self.row_idx.len()
+    }
+
+    fn symbolic(&self) -> SymbolicSparseColMatRef<'_, usize> {
+        // SAFETY-free constructor: faer checks the invariants we maintain by construction.
+        SymbolicSparseColMatRef::new_checked(self.n, self.n, &self.col_ptr, None, &self.row_idx)
+    }
+
+    /// y = A·x for the symmetric matrix with these `values` (both triangles implied).
+    pub fn multiply(&self, values: &[f64], x: &[f64], y: &mut [f64]) {
+        y.iter_mut().for_each(|v| *v = 0.0);
+        for j in 0..self.n {
+            for k in self.col_ptr[j]..self.col_ptr[j + 1] {
+                let i = self.row_idx[k];
+                let a = values[k];
+                y[i] += a * x[j];
+                if i != j {
+                    y[j] += a * x[i];
+                }
+            }
+        }
+    }
+}
+
+/// Fill-reducing ordering and structure of the Cholesky factor of one pattern.
+#[derive(Debug)]
+pub struct SymbolicCholesky {
+    inner: FaerSymbolic<usize>,
+    par: Parallelism,
+}
+
+impl SymbolicCholesky {
+    /// Analyse a pattern (approximate minimum degree ordering, elimination tree,
+    /// supernodes). Done once per topology.
+    pub fn analyse(pattern: &SymmetricPattern, par: Parallelism) -> Result<Self, SolverError> {
+        let inner = factorize_symbolic_cholesky(
+            pattern.symbolic(),
+            Side::Lower,
+            SymmetricOrdering::Amd,
+            CholeskySymbolicParams::default(),
+        )
+        .map_err(|e| SolverError::Symbolic {
+            n: pattern.n,
+            reason: format!("{e:?}"),
+        })?;
+        Ok(SymbolicCholesky { inner, par })
+    }
+
+    /// Number of stored values in the factor L (a measure of fill-in).
+    pub fn factor_nnz(&self) -> usize {
+        self.inner.len_val()
+    }
+
+    /// Numeric factorisation A = L·Lᵀ for `values` on `pattern` (the analysed pattern).
+    pub fn factorize(
+        &self,
+        pattern: &SymmetricPattern,
+        values: &[f64],
+    ) -> Result<Cholesky<'_>, SolverError> {
+        let n = pattern.n;
+        let par = self.par.par();
+        let mut l_values = vec![0.0f64; self.inner.len_val()];
+        let req = self
+            .inner
+            .factorize_numeric_llt_scratch::<f64>(par, Default::default());
+        let mut mem = MemBuffer::try_new(req).map_err(|_| SolverError::OutOfMemory { n })?;
+        let stack = MemStack::new(&mut mem);
+        let a = SparseColMatRef::new(pattern.symbolic(), values);
+        self.inner
+            .factorize_numeric_llt(
+                &mut l_values,
+                a,
+                Side::Lower,
+                LltRegularization::default(),
+                par,
+                stack,
+                Default::default(),
+            )
+            .map_err(|e| SolverError::NotPositiveDefinite {
+                pivot: match e {
+                    faer::linalg::cholesky::llt::factor::LltError::NonPositivePivot { index } => {
+                        index
+                    }
+                },
+                n,
+            })?;
+        Ok(Cholesky {
+            symbolic: self,
+            l_values,
+        })
+    }
+}
+
+/// A numeric Cholesky factor, ready to solve.
+#[derive(Debug)]
+pub struct Cholesky<'s> {
+    symbolic: &'s SymbolicCholesky,
+    l_values: Vec<f64>,
+}
+
+impl Cholesky<'_> {
+    /// Solve A·x = b for every column of `rhs` (column-major, `n` rows each), in place.
+    pub fn solve_in_place(&self, rhs: &mut [f64]) -> Result<(), SolverError> {
+        let n = self.symbolic.inner.nrows();
+        if n == 0 {
+            return Ok(());
+        }
+        let ncols = rhs.len() / n;
+        let par = self.symbolic.par.par();
+        let req: StackReq = self
+            .symbolic
+            .inner
+            .solve_in_place_scratch::<f64>(ncols, par);
+        let mut mem = MemBuffer::try_new(req).map_err(|_| SolverError::OutOfMemory { n })?;
+        let stack = MemStack::new(&mut mem);
+        let llt = LltRef::new(&self.symbolic.inner, &self.l_values);
+        let mat = MatMut::from_column_major_slice_mut(rhs, n, ncols);
+        llt.solve_in_place_with_conj(Conj::No, mat, par, stack);
+        Ok(())
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn solves_a_small_spd_system() {
+        // [4 1 0; 1 3 1; 0 1 2] x = [1 2 3]; checked by substituting back.
+        let positions = [(0, 0), (1, 0), (1, 1), (2, 1), (2, 2)];
+        let (p, slots) = SymmetricPattern::from_positions(3, &positions);
+        let mut values = vec![0.0; p.nnz()];
+        for (k, v) in [4.0, 1.0, 3.0, 1.0, 2.0].into_iter().enumerate() {
+            values[slots[k]] += v;
+        }
+        let sym = SymbolicCholesky::analyse(&p, Parallelism::Sequential).unwrap();
+        let f = sym.factorize(&p, &values).unwrap();
+        let b = [1.0, 2.0, 3.0];
+        let mut x = b;
+        f.solve_in_place(&mut x).unwrap();
+        let mut ax = [0.0; 3];
+        p.multiply(&values, &x, &mut ax);
+        for i in 0..3 {
+            assert!((ax[i] - b[i]).abs() < 1e-14);
+        }
+        // Refactor with new values on the same analysis.
+        let doubled: Vec<f64> = values.iter().map(|v| 2.0 * v).collect();
+        let f2 = sym.factorize(&p, &doubled).unwrap();
+        let mut x2 = b;
+        f2.solve_in_place(&mut x2).unwrap();
+        for i in 0..3 {
+            assert!((2.0 * x2[i] - x[i]).abs() < 1e-14);
+        }
+    }
+
+    #[test]
+    fn indefinite_matrix_is_reported() {
+        let (p, slots) = SymmetricPattern::from_positions(2, &[(0, 0), (1, 0), (1, 1)]);
+        let mut values = vec![0.0; p.nnz()];
+        values[slots[0]] = 1.0;
+        values[slots[1]] = 2.0;
+        values[slots[2]] = 1.0;
+        let sym = SymbolicCholesky::analyse(&p, Parallelism::Sequential).unwrap();
+        assert!(matches!(
+            sym.factorize(&p, &values),
+            Err(SolverError::NotPositiveDefinite { .. })
+        ));
+    }
+}

@@ -1,0 +1,529 @@
+//! Physical quantities and the exact unit parser.
+//!
+//! Invariant: every quantity inside rillnet is in SI (m, Pa, m³/s, Pa·s, kg/m³, K, rad).
+//! Units exist only at the edges: this parser turns `"100 um"` into `Length` and the report
+//! module turns SI back into the units a chip designer reads.
+//!
+//! The parser is exact for decimal units: it splices the unit's power of ten into the
+//! number's own exponent and parses the result once, so `"100 um"` becomes the `f64` nearest
+//! to 1e-4 (what `"1e-4".parse()` gives), not `100.0 * 1e-6` (which is off by one ulp).
+//! Units with a non-decimal factor (psi, mmHg, per minute, per hour) apply that factor after
+//! the exact decimal parse: one rounding more.
+
+use std::fmt;
+
+/// What a number measures; each unit belongs to exactly one dimension.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
+pub enum Dimension {
+    Length,
+    Pressure,
+    VolumeFlow,
+    Viscosity,
+    Density,
+    Temperature,
+    Angle,
+}
+
+impl Dimension {
+    /// Human name used in error messages ("a length").
+    pub fn noun(self) -> &'static str {
+        match self {
+            Dimension::Length => "a length",
+            Dimension::Pressure => "a pressure",
+            Dimension::VolumeFlow => "a volume flow rate",
+            Dimension::Viscosity => "a dynamic viscosity",
+            Dimension::Density => "a density",
+            Dimension::Temperature => "a temperature",
+            Dimension::Angle => "an angle",
+        }
+    }
+
+    /// The unit symbols accepted for this dimension, for "expected one of" messages.
+    pub fn accepted_units(self) -> Vec<&'static str> {
+        UNITS
+            .iter()
+            .filter(|u| u.dimension == self && !u.alias)
+            .map(|u| u.symbol)
+            .collect()
+    }
+
+    /// An example value with a unit, used in hints.
+    pub fn example(self) -> &'static str {
+        match self {
+            Dimension::Length => "200 um",
+            Dimension::Pressure => "150 mbar",
+            Dimension::VolumeFlow => "10 uL/min",
+            Dimension::Viscosity => "1.0 mPa*s",
+            Dimension::Density => "998 kg/m^3",
+            Dimension::Temperature => "37 degC",
+            Dimension::Angle => "54.74 deg",
+        }
+    }
+}
+
+impl fmt::Display for Dimension {
+    fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+        f.write_str(self.noun())
+    }
+}
+
+/// One accepted unit symbol: SI value = number · 10^exp10 · factor + offset.
+struct UnitDef {
+    symbol: &'static str,
+    dimension: Dimension,
+    exp10: i32,
+    factor: f64,
+    offset: f64,
+    /// Alternative spelling, not listed in "expected one of" messages.
+    alias: bool,
+}
+
+const fn u(symbol: &'static str, dimension: Dimension, exp10: i32) -> UnitDef {
+    UnitDef {
+        symbol,
+        dimension,
+        exp10,
+        factor: 1.0,
+        offset: 0.0,
+        alias: false,
+    }
+}
+
+const fn alias(mut def: UnitDef) -> UnitDef {
+    def.alias = true;
+    def
+}
+
+const fn scaled(mut def: UnitDef, factor: f64) -> UnitDef {
+    def.factor = factor;
+    def
+}
+
+const MINUTE: f64 = 1.0 / 60.0;
+const HOUR: f64 = 1.0 / 3600.0;
+/// 1 psi = 6894.757293168361 Pa (NIST SP 811, Appendix B.8).
+const PSI: f64 = 6894.757_293_168_361;
+/// 1 mmHg = 133.322387415 Pa (NIST SP 811, Appendix B.8, conventional mmHg).
+const MMHG: f64 = 133.322_387_415;
+/// 1 degree = π/180 rad.
+const DEGREE: f64 = std::f64::consts::PI / 180.0;
+
+use Dimension as D;
+
+static UNITS: &[UnitDef] = &[
+    // length
+    u("m", D::Length, 0),
+    u("cm", D::Length, -2),
+    u("mm", D::Length, -3),
+    u("um", D::Length, -6),
+    alias(u("µm", D::Length, -6)), // U+00B5 micro sign
+    alias(u("μm", D::Length, -6)), // U+03BC Greek mu
+    u("nm", D::Length, -9),
+    // pressure (gauge, relative to the outlet reference)
+    u("Pa", D::Pressure, 0),
+    u("hPa", D::Pressure, 2),
+    u("kPa", D::Pressure, 3),
+    u("MPa", D::Pressure, 6),
+    u("mbar", D::Pressure, 2),
+    u("bar", D::Pressure, 5),
+    scaled(u("psi", D::Pressure, 0), PSI),
+    scaled(u("mmHg", D::Pressure, 0), MMHG),
+    // volume flow
+    u("m^3/s", D::VolumeFlow, 0),
+    alias(u("m3/s", D::VolumeFlow, 0)),
+    u("mL/s", D::VolumeFlow, -6),
+    scaled(u("mL/min", D::VolumeFlow, -6), MINUTE),
+    scaled(u("mL/h", D::VolumeFlow, -6), HOUR),
+    u("uL/s", D::VolumeFlow, -9),
+    alias(u("µL/s", D::VolumeFlow, -9)),
+    alias(u("μL/s", D::VolumeFlow, -9)),
+    scaled(u("uL/min", D::VolumeFlow, -9), MINUTE),
+    alias(scaled(u("µL/min", D::VolumeFlow, -9), MINUTE)),
+    alias(scaled(u("μL/min", D::VolumeFlow, -9), MINUTE)),
+    scaled(u("uL/h", D::VolumeFlow, -9), HOUR),
+    alias(scaled(u("µL/h", D::VolumeFlow, -9), HOUR)),
+    alias(scaled(u("μL/h", D::VolumeFlow, -9), HOUR)),
+    u("nL/s", D::VolumeFlow, -12),
+    scaled(u("nL/min", D::VolumeFlow, -12), MINUTE),
+    // dynamic viscosity
+    u("Pa*s", D::Viscosity, 0),
+    alias(u("Pa.s", D::Viscosity, 0)),
+    alias(u("Pa·s", D::Viscosity, 0)),
+    u("mPa*s", D::Viscosity, -3),
+    alias(u("mPa.s", D::Viscosity, -3)),
+    alias(u("mPa·s", D::Viscosity, -3)),
+    u("cP", D::Viscosity, -3),
+    // density
+    u("kg/m^3", D::Density, 0),
+    alias(u("kg/m3", D::Density, 0)),
+    u("g/cm^3", D::Density, 3),
+    alias(u("g/cm3", D::Density, 3)),
+    alias(u("g/mL", D::Density, 3)),
+    // temperature
+    u("K", D::Temperature, 0),
+    UnitDef {
+        symbol: "degC",
+        dimension: D::Temperature,
+        exp10: 0,
+        factor: 1.0,
+        offset: 273.15,
+        alias: false,
+    },
+    UnitDef {
+        symbol: "°C",
+        dimension: D::Temperature,
+        exp10: 0,
+        factor: 1.0,
+        offset: 273.15,
+        alias: true,
+    },
+    // angle
+    scaled(u("deg", D::Angle, 0), DEGREE),
+    alias(scaled(u("°", D::Angle, 0), DEGREE)),
+    u("rad", D::Angle, 0),
+];
+
+/// Why a text is not a valid quantity. The message says what was expected.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum UnitError {
+    #[error("'{text}' is a bare number; {dim} needs a unit, e.g. '{example}' (units: {units})")]
+    BareNumber {
+        text: String,
+        dim: Dimension,
+        example: &'static str,
+        units: String,
+    },
+    #[error("'{text}' is not a number followed by a unit; expected {dim}, e.g. '{example}'")]
+    NotAQuantity {
+        text: String,
+        dim: Dimension,
+        example: &'static str,
+    },
+    #[error("unknown unit '{unit}' in '{text}'; expected {dim} in one of: {units}")]
+    UnknownUnit {
+        text: String,
+        unit: String,
+        dim: Dimension,
+        units: String,
+    },
+    #[error("'{text}' is {found}, but {dim} is expected here (units: {units})")]
+    WrongDimension {
+        text: String,
+        found: Dimension,
+        dim: Dimension,
+        units: String,
+    },
+    #[error("'{text}' is not finite; expected {dim}")]
+    NotFinite { text: String, dim: Dimension },
+}
+
+fn unit_list(dim: Dimension) -> String {
+    dim.accepted_units().join(", ")
+}
+
+/// Split `"12.5e-1 uL/min"` into the mantissa digits, the decimal exponent and the unit text.
+fn split_number(text: &str) -> Option<(&str, i32, &str)> {
+    let bytes = text.as_bytes();
+    let mut i = 0;
+    if i < bytes.len() && (bytes[i] == b'+' || bytes[i] == b'-') {
+        i += 1;
+    }
+    let digits_start = i;
+    while i < bytes.len() && bytes[i].is_ascii_digit() {
+        i += 1;
+    }
+    let mut n_digits = i - digits_start;
+    if i < bytes.len() && bytes[i] == b'.' {
+        i += 1;
+        let frac_start = i;
+        while i < bytes.len() && bytes[i].is_ascii_digit() {
+            i += 1;
+        }
+        n_digits += i - frac_start;
+    }
+    if n_digits == 0 {
+        return None;
+    }
+    let mantissa_end = i;
+    let mut exponent = 0i32;
+    if i < bytes.len() && (bytes[i] == b'e' || bytes[i] == b'E') {
+        let mut j = i + 1;
+        if j < bytes.len() && (bytes[j] == b'+' || bytes[j] == b'-') {
+            j += 1;
+        }
+        let exp_digits_start = j;
+        while j < bytes.len() && bytes[j].is_ascii_digit() {
+            j += 1;
+        }
+        if j > exp_digits_start {
+            // A huge exponent is clamped; the parse then gives 0 or inf and is reported.
+            exponent = text[i + 1..j].parse::<i64>().map_or(i32::MAX / 2, |e| {
+                e.clamp(i64::from(-(i32::MAX / 2)), i64::from(i32::MAX / 2)) as i32
+            });
+            i = j;
+        }
+    }
+    Some((&text[..mantissa_end], exponent, text[i..].trim()))
+}
+
+/// Parse `text` as a quantity of dimension `dim`, returning its SI value.
+///
+/// ```
+/// use rillnet::units::{parse_si, Dimension};
+/// assert_eq!(parse_si("100 um", Dimension::Length).unwrap(), 1e-4);
+/// assert_eq!(parse_si("150 mbar", Dimension::Pressure).unwrap(), 15000.0);
+/// assert!(parse_si("3 mbar", Dimension::Length).is_err()); // wrong kind of unit
+/// assert!(parse_si("12", Dimension::Length).is_err()); // bare number
+/// ```
+pub fn parse_si(text: &str, dim: Dimension) -> Result<f64, UnitError> {
+    let trimmed = text.trim();
+    let Some((mantissa, exponent, unit)) = split_number(trimmed) else {
+        return Err(UnitError::NotAQuantity {
+            text: trimmed.to_string(),
+            dim,
+            example: dim.example(),
+        });
+    };
+    if unit.is_empty() {
+        let value: f64 = mantissa.parse().unwrap_or(f64::NAN);
+        // A bare zero is unambiguous for every dimension except temperature.
+        if value == 0.0 && dim != D::Temperature {
+            return Ok(0.0);
+        }
+        return Err(UnitError::BareNumber {
+            text: trimmed.to_string(),
+            dim,
+            example: dim.example(),
+            units: unit_list(dim),
+        });
+    }
+    let Some(def) = UNITS.iter().find(|d| d.symbol == unit) else {
+        return Err(UnitError::UnknownUnit {
+            text: trimmed.to_string(),
+            unit: unit.to_string(),
+            dim,
+            units: unit_list(dim),
+        });
+    };
+    if def.dimension != dim {
+        return Err(UnitError::WrongDimension {
+            text: trimmed.to_string(),
+            found: def.dimension,
+            dim,
+            units: unit_list(dim),
+        });
+    }
+    let total_exp = i64::from(exponent) + i64::from(def.exp10);
+    let exact: f64 =
+        format!("{mantissa}e{total_exp}")
+            .parse()
+            .map_err(|_| UnitError::NotAQuantity {
+                text: trimmed.to_string(),
+                dim,
+                example: dim.example(),
+            })?;
+    let value = if def.factor == 1.0 {
+        exact + def.offset
+    } else {
+        exact * def.factor + def.offset
+    };
+    if !value.is_finite() {
+        return Err(UnitError::NotFinite {
+            text: trimmed.to_string(),
+            dim,
+        });
+    }
+    Ok(value)
+}
+
+/// A number that was given without a unit (YAML/JSON numeric): only 0 is accepted.
+pub fn bare_number_si(value: f64, dim: Dimension) -> Result<f64, UnitError> {
+    if value == 0.0 && dim != D::Temperature {
+        Ok(0.0)
+    } else {
+        Err(UnitError::BareNumber {
+            text: format!("{value}"),
+            dim,
+            example: dim.example(),
+            units: unit_list(dim),
+        })
+    }
+}
+
+/// A typed SI quantity. The dimension travels with the type, so a pressure cannot be passed
+/// where a length is expected.
+pub trait Quantity: Copy {
+    const DIMENSION: Dimension;
+    fn from_si(value: f64) -> Self;
+    fn si(self) -> f64;
+}
+
+macro_rules! quantity {
+    ($(#[$doc:meta])* $name:ident, $dim:ident) => {
+        $(#[$doc])*
+        #[derive(Clone, Copy, Debug, PartialEq, PartialOrd, Default)]
+        pub struct $name(f64);
+
+        impl $name {
+            /// Wrap a value already in SI units.
+            pub const fn from_si(value: f64) -> Self {
+                Self(value)
+            }
+            /// The value in SI units.
+            pub const fn si(self) -> f64 {
+                self.0
+            }
+        }
+
+        impl Quantity for $name {
+            const DIMENSION: Dimension = Dimension::$dim;
+            fn from_si(value: f64) -> Self {
+                Self(value)
+            }
+            fn si(self) -> f64 {
+                self.0
+            }
+        }
+
+        impl std::str::FromStr for $name {
+            type Err = UnitError;
+            fn from_str(s: &str) -> Result<Self, UnitError> {
+                parse_si(s, Dimension::$dim).map(Self)
+            }
+        }
+    };
+}
+
+quantity!(
+    /// Length in metres.
+    Length,
+    Length
+);
+quantity!(
+    /// Gauge pressure in pascals.
+    Pressure,
+    Pressure
+);
+quantity!(
+    /// Volume flow rate in m³/s.
+    VolumeFlow,
+    VolumeFlow
+);
+quantity!(
+    /// Dynamic viscosity in Pa·s.
+    Viscosity,
+    Viscosity
+);
+quantity!(
+    /// Mass density in kg/m³.
+    Density,
+    Density
+);
+quantity!(
+    /// Absolute temperature in kelvin.
+    Temperature,
+    Temperature
+);
+quantity!(
+    /// Plane angle in radians.
+    Angle,
+    Angle
+);
+
+/// Display conversions used by the reports (SI → the units designers read).
+pub mod display {
+    /// Pa → mbar.
+    pub fn mbar(pa: f64) -> f64 {
+        pa / 100.0
+    }
+    /// m³/s → µL/min.
+    pub fn ul_per_min(m3_per_s: f64) -> f64 {
+        m3_per_s * 6.0e10
+    }
+    /// m/s → mm/s.
+    pub fn mm_per_s(m_per_s: f64) -> f64 {
+        m_per_s * 1.0e3
+    }
+    /// m → µm.
+    pub fn um(m: f64) -> f64 {
+        m * 1.0e6
+    }
+    /// m → mm.
+    pub fn mm(m: f64) -> f64 {
+        m * 1.0e3
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn decimal_units_are_exact() {
+        // The spliced exponent gives the correctly rounded value, the same as parsing "1e-4".
+        assert_eq!(parse_si("100 um", D::Length).unwrap(), 1e-4);
+        assert_eq!(parse_si("100um", D::Length).unwrap(), 1e-4);
+        assert_eq!(parse_si("0.1 mm", D::Length).unwrap(), 1e-4);
+        assert_eq!(parse_si("12 mm", D::Length).unwrap(), 0.012);
+        assert_eq!(parse_si("1.5e3 um", D::Length).unwrap(), 1.5e-3);
+        assert_eq!(parse_si("200 µm", D::Length).unwrap(), 2e-4);
+        assert_eq!(parse_si("200 μm", D::Length).unwrap(), 2e-4);
+        assert_eq!(parse_si("150 mbar", D::Pressure).unwrap(), 15000.0);
+        assert_eq!(parse_si("1.0 mPa*s", D::Viscosity).unwrap(), 1e-3);
+        assert_eq!(parse_si("1 cP", D::Viscosity).unwrap(), 1e-3);
+        assert_eq!(parse_si("1.26 g/cm^3", D::Density).unwrap(), 1260.0);
+        assert_eq!(parse_si("-2.5 kPa", D::Pressure).unwrap(), -2500.0);
+    }
+
+    #[test]
+    fn scaled_units() {
+        // 60 µL/min = 1 µL/s = 1e-9 m³/s.
+        approx::assert_relative_eq!(
+            parse_si("60 uL/min", D::VolumeFlow).unwrap(),
+            1e-9,
+            max_relative = 1e-15
+        );
+        approx::assert_relative_eq!(
+            parse_si("3.6 mL/h", D::VolumeFlow).unwrap(),
+            1e-9,
+            max_relative = 1e-15
+        );
+        // NIST SP 811: 1 psi = 6894.757 Pa.
+        approx::assert_relative_eq!(
+            parse_si("1 psi", D::Pressure).unwrap(),
+            6894.757,
+            max_relative = 1e-6
+        );
+        assert_eq!(parse_si("37 degC", D::Temperature).unwrap(), 310.15);
+        approx::assert_relative_eq!(
+            parse_si("90 deg", D::Angle).unwrap(),
+            std::f64::consts::FRAC_PI_2,
+            max_relative = 1e-15
+        );
+    }
+
+    #[test]
+    fn bad_quantities_are_explained() {
+        let e = parse_si("3 mbar", D::Length).unwrap_err();
+        assert!(matches!(e, UnitError::WrongDimension { .. }), "{e}");
+        assert!(e.to_string().contains("a pressure"), "{e}");
+        let e = parse_si("12", D::Length).unwrap_err();
+        assert!(matches!(e, UnitError::BareNumber { .. }));
+        assert!(e.to_string().contains("12 mm") || e.to_string().contains("um"));
+        assert!(matches!(
+            parse_si("12 furlongs", D::Length).unwrap_err(),
+            UnitError::UnknownUnit { .. }
+        ));
+        assert!(matches!(
+            parse_si("mm", D::Length).unwrap_err(),
+            UnitError::NotAQuantity { .. }
+        ));
+        assert!(matches!(
+            parse_si("1e999 m", D::Length).unwrap_err(),
+            UnitError::NotFinite { .. }
+        ));
+        assert!(parse_si("1e99999999999 m", D::Length).is_err());
+        assert_eq!(parse_si("0", D::Pressure).unwrap(), 0.0);
+        assert!(parse_si("0", D::Temperature).is_err());
+    }
+}
