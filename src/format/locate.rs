@@ -12,7 +12,7 @@
 /// ```
 /// use rillnet::format::locate;
 /// let text = "nodes:\n  a: {}\nchannels:\n  c1: {from: a, to: b}\n";
-/// assert_eq!(locate(text, &["channels", "c1", "to"]), Some((4, 16)));
+/// assert_eq!(locate(text, &["channels", "c1", "to"]), Some((4, 17)));
 /// ```
 pub fn locate(text: &str, path: &[&str]) -> Option<(usize, usize)> {
     let mut pos = 0;
