@@ -196,13 +196,7 @@ fn main() {
 
         let t = Instant::now();
         let p = system.node_pressures(&net, &x);
-        let flows: Vec<f64> = net
-            .channels
-            .iter()
-            .zip(&g)
-            .map(|(c, gk)| gk * (p[c.from.0] - p[c.to.0]))
-            .collect();
-        let worst = balance_residuals(&net, &flows)
+        let worst = balance_residuals(&net, &p, &g)
             .into_iter()
             .flatten()
             .fold(0.0f64, f64::max);
