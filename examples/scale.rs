@@ -92,10 +92,18 @@ fn write_chip(channels: usize, path: &str) {
             };
             nodes.push((format!("n{i}_{j}"), port));
             if j + 1 < side {
-                chans.push((format!("h{i}_{j}"), format!("n{i}_{j}"), format!("n{i}_{}", j + 1)));
+                chans.push((
+                    format!("h{i}_{j}"),
+                    format!("n{i}_{j}"),
+                    format!("n{i}_{}", j + 1),
+                ));
             }
             if i + 1 < side {
-                chans.push((format!("v{i}_{j}"), format!("n{i}_{j}"), format!("n{}_{j}", i + 1)));
+                chans.push((
+                    format!("v{i}_{j}"),
+                    format!("n{i}_{j}"),
+                    format!("n{}_{j}", i + 1),
+                ));
             }
         }
     }
@@ -112,14 +120,20 @@ fn write_chip(channels: usize, path: &str) {
         out.push_str(&c.join(",\n"));
         out.push_str("}}\n");
     } else {
-        out.push_str("name: generated grid\nfluid: {viscosity: 1.0016 mPa*s, density: 998.2 kg/m^3}\n");
-        out.push_str("sections:\n  cell: {shape: rectangle, width: 100 um, height: 50 um}\nnodes:\n");
+        out.push_str(
+            "name: generated grid\nfluid: {viscosity: 1.0016 mPa*s, density: 998.2 kg/m^3}\n",
+        );
+        out.push_str(
+            "sections:\n  cell: {shape: rectangle, width: 100 um, height: 50 um}\nnodes:\n",
+        );
         for (k, v) in &nodes {
             out.push_str(&format!("  {k}: {}\n", v.replace('"', "")));
         }
         out.push_str("channels:\n");
         for (k, a, b) in &chans {
-            out.push_str(&format!("  {k}: {{from: {a}, to: {b}, section: cell, length: 1 mm}}\n"));
+            out.push_str(&format!(
+                "  {k}: {{from: {a}, to: {b}, section: cell, length: 1 mm}}\n"
+            ));
         }
     }
     if std::path::Path::new(path).exists() {
@@ -127,7 +141,11 @@ fn write_chip(channels: usize, path: &str) {
         std::process::exit(2);
     }
     std::fs::write(path, out).expect("write chip file");
-    println!("wrote {path}: {} nodes, {} channels", nodes.len(), chans.len());
+    println!(
+        "wrote {path}: {} nodes, {} channels",
+        nodes.len(),
+        chans.len()
+    );
 }
 
 fn main() {
@@ -177,7 +195,9 @@ fn main() {
         let t_order = ms(t);
 
         let t = Instant::now();
-        let factor = symbolic.factorize(system.pattern(), &values).expect("factor");
+        let factor = symbolic
+            .factorize(system.pattern(), &values)
+            .expect("factor");
         let t_fact_seq = ms(t);
 
         let symbolic_par =

@@ -15,7 +15,7 @@ use crate::section::{GeometryKey, SectionFigures, Shape};
 use crate::units::{Length, Pressure, VolumeFlow};
 use petgraph::graph::UnGraph;
 use petgraph::unionfind::UnionFind;
-use std::collections::HashMap;
+use rustc_hash::FxHashMap as HashMap;
 
 /// Index of a node in [`Network::nodes`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, PartialOrd, Ord)]
@@ -126,18 +126,30 @@ pub enum NetworkError {
     Empty,
 }
 
-/// Where in the chip description an error belongs: a path of keys.
+/// Where in the chip description an error belongs: a path of keys. For a duplicate name
+/// the last key occurs twice; `repeated` asks for its second occurrence.
 #[derive(Clone, Debug, PartialEq, Eq)]
-pub struct Place(pub Vec<String>);
+pub struct Place {
+    pub keys: Vec<String>,
+    pub repeated: bool,
+}
 
 impl NetworkError {
     /// The key path (e.g. `channels.c3.to`) the error refers to, for locating it in a file.
     pub fn place(&self) -> Place {
-        let p = |parts: &[&str]| Place(parts.iter().map(|s| s.to_string()).collect());
+        let keys = |parts: &[&str]| parts.iter().map(|s| s.to_string()).collect();
+        let p = |parts: &[&str]| Place {
+            keys: keys(parts),
+            repeated: false,
+        };
+        let twice = |parts: &[&str]| Place {
+            keys: keys(parts),
+            repeated: true,
+        };
         match self {
-            NetworkError::DuplicateNode { name } => p(&["nodes", name]),
-            NetworkError::DuplicateSection { name } => p(&["sections", name]),
-            NetworkError::DuplicateChannel { name } => p(&["channels", name]),
+            NetworkError::DuplicateNode { name } => twice(&["nodes", name]),
+            NetworkError::DuplicateSection { name } => twice(&["sections", name]),
+            NetworkError::DuplicateChannel { name } => twice(&["channels", name]),
             NetworkError::UnknownNode { channel, field, .. } => p(&["channels", channel, field]),
             NetworkError::UnknownSection { channel, .. } => p(&["channels", channel, "section"]),
             NetworkError::SelfLoop { channel, .. } => p(&["channels", channel, "to"]),
@@ -204,12 +216,12 @@ impl NetworkBuilder {
             name: None,
             fluid,
             nodes: Vec::new(),
-            node_index: HashMap::new(),
+            node_index: HashMap::default(),
             sections: Vec::new(),
-            section_index: HashMap::new(),
-            shape_cache: HashMap::new(),
+            section_index: HashMap::default(),
+            shape_cache: HashMap::default(),
             channels: Vec::new(),
-            channel_names: HashMap::new(),
+            channel_names: HashMap::default(),
         }
     }
 
@@ -499,7 +511,7 @@ mod tests {
             .unwrap_err();
         assert!(matches!(e, NetworkError::SelfLoop { .. }));
         assert_eq!(
-            e.place().0,
+            e.place().keys,
             vec!["channels".to_string(), "c".into(), "to".into()]
         );
     }

@@ -6,7 +6,6 @@
 use crate::analysis::SteadyState;
 use crate::network::{Network, Port};
 use crate::units::display;
-use comfy_table::{presets::UTF8_FULL_CONDENSED, CellAlignment, ContentArrangement, Table};
 use serde::Serialize;
 
 /// Output formats of the solve report.
@@ -238,18 +237,65 @@ pub fn to_csv(network: &Network, state: &SteadyState) -> String {
 // Terminal tables
 // ---------------------------------------------------------------------------------------
 
-/// A table whose columns from `first_numeric` on are right-aligned numbers.
-fn new_table(header: &[&str], first_numeric: usize) -> Table {
-    let mut t = Table::new();
-    t.load_preset(UTF8_FULL_CONDENSED)
-        .set_content_arrangement(ContentArrangement::Disabled)
-        .set_header(header.iter().copied());
-    for i in first_numeric..header.len() {
-        if let Some(col) = t.column_mut(i) {
-            col.set_cell_alignment(CellAlignment::Right);
+/// A plain-text table: a header, a rule, and rows; text columns left-aligned, number
+/// columns right-aligned. Written by hand (not a table crate) because it must stay linear in
+/// size for chips with a million channels.
+struct TextTable {
+    header: Vec<String>,
+    first_numeric: usize,
+    rows: Vec<Vec<String>>,
+}
+
+impl TextTable {
+    /// A table whose columns from `first_numeric` on are right-aligned numbers.
+    fn new(header: &[&str], first_numeric: usize) -> Self {
+        TextTable {
+            header: header.iter().map(|h| h.to_string()).collect(),
+            first_numeric,
+            rows: Vec::new(),
         }
     }
-    t
+
+    fn add_row(&mut self, row: Vec<String>) {
+        self.rows.push(row);
+    }
+
+    fn render(&self, out: &mut String) {
+        let width = |s: &str| s.chars().count();
+        let mut widths: Vec<usize> = self.header.iter().map(|h| width(h)).collect();
+        for row in &self.rows {
+            for (w, cell) in widths.iter_mut().zip(row) {
+                *w = (*w).max(width(cell));
+            }
+        }
+        let line = |out: &mut String, cells: &[String]| {
+            for (i, (cell, w)) in cells.iter().zip(&widths).enumerate() {
+                let pad = w - width(cell);
+                if i > 0 {
+                    out.push_str("  ");
+                }
+                if i >= self.first_numeric {
+                    out.extend(std::iter::repeat_n(' ', pad));
+                    out.push_str(cell);
+                } else {
+                    out.push_str(cell);
+                    if i + 1 < cells.len() {
+                        out.extend(std::iter::repeat_n(' ', pad));
+                    }
+                }
+            }
+            out.push('\n');
+        };
+        out.push_str("  ");
+        line(out, &self.header);
+        let rule: Vec<String> = widths.iter().map(|w| "─".repeat(*w)).collect();
+        out.push_str("  ");
+        line(out, &rule);
+        for row in &self.rows {
+            out.push_str("  ");
+            line(out, row);
+        }
+    }
 }
 
 /// Human-readable report: ports, nodes, channels, residual, caution.
@@ -265,7 +311,7 @@ pub fn to_table(network: &Network, state: &SteadyState) -> String {
         fmt_sig(network.fluid.density.si(), 4)
     ));
 
-    let mut ports = new_table(
+    let mut ports = TextTable::new(
         &[
             "Port",
             "Controlled by",
@@ -292,14 +338,13 @@ pub fn to_table(network: &Network, state: &SteadyState) -> String {
         }
     }
     out.push_str("Ports\n");
-    out.push_str(&ports.to_string());
-    out.push('\n');
+    ports.render(&mut out);
 
     let junctions: Vec<usize> = (0..network.nodes.len())
         .filter(|&i| matches!(network.nodes[i].port, Port::Junction))
         .collect();
     if !junctions.is_empty() {
-        let mut nodes = new_table(&["Junction", "Pressure [mbar]"], 1);
+        let mut nodes = TextTable::new(&["Junction", "Pressure [mbar]"], 1);
         for i in junctions {
             nodes.add_row(vec![
                 network.nodes[i].name.clone(),
@@ -307,11 +352,10 @@ pub fn to_table(network: &Network, state: &SteadyState) -> String {
             ]);
         }
         out.push_str("\nJunctions\n");
-        out.push_str(&nodes.to_string());
-        out.push('\n');
+        nodes.render(&mut out);
     }
 
-    let mut ch = new_table(
+    let mut ch = TextTable::new(
         &[
             "Channel",
             "Flow direction",
@@ -344,8 +388,7 @@ pub fn to_table(network: &Network, state: &SteadyState) -> String {
         ]);
     }
     out.push_str("\nChannels\n");
-    out.push_str(&ch.to_string());
-    out.push('\n');
+    ch.render(&mut out);
     out.push_str(&format!(
         "\nFlow balance: worst relative residual {:.1e} (limit {:.0e}) over {} nodes and {} channels.\n",
         sol.max_relative_residual,

@@ -143,7 +143,7 @@ fn circle(a: f64) -> SectionFigures {
 }
 
 /// Σ_{n odd} 1/n⁵ = (1 − 2⁻⁵)·ζ(5), ζ(5) = 1.0369277551433699263 (Abramowitz & Stegun 23.2).
-const ODD_INV_FIFTH_POWERS: f64 = 31.0 / 32.0 * 1.036_927_755_143_369_926_3;
+const ODD_INV_FIFTH_POWERS: f64 = 31.0 / 32.0 * 1.036_927_755_143_37;
 
 /// Rectangle w × h with h ≤ w (the function sorts them). The exact series
 /// (Bruus, Theoretical Microfluidics 2008, eq. 3.56; Shah & London 1978):

@@ -138,9 +138,8 @@ impl SymmetricPattern {
     pub fn multiply(&self, values: &[f64], x: &[f64], y: &mut [f64]) {
         y.iter_mut().for_each(|v| *v = 0.0);
         for j in 0..self.n {
-            for k in self.col_ptr[j]..self.col_ptr[j + 1] {
-                let i = self.row_idx[k];
-                let a = values[k];
+            let range = self.col_ptr[j]..self.col_ptr[j + 1];
+            for (&i, &a) in self.row_idx[range.clone()].iter().zip(&values[range]) {
                 y[i] += a * x[j];
                 if i != j {
                     y[j] += a * x[i];

@@ -102,7 +102,7 @@ const fn scaled(mut def: UnitDef, factor: f64) -> UnitDef {
 const MINUTE: f64 = 1.0 / 60.0;
 const HOUR: f64 = 1.0 / 3600.0;
 /// 1 psi = 6894.757293168361 Pa (NIST SP 811, Appendix B.8).
-const PSI: f64 = 6894.757_293_168_361;
+const PSI: f64 = 6_894.757_293_168_361;
 /// 1 mmHg = 133.322387415 Pa (NIST SP 811, Appendix B.8, conventional mmHg).
 const MMHG: f64 = 133.322_387_415;
 /// 1 degree = π/180 rad.

@@ -157,8 +157,16 @@ fn unbalanced_wheatstone_bridge_matches_nodal_analysis() {
         .tube("r4", "right", "out", dims[3].0, dims[3].1)
         .tube("bridge", "left", "right", dims[4].0, dims[4].1)
         .solve();
-    assert_relative_eq!(pr[net.node_id("left").unwrap().0], left, max_relative = 1e-12);
-    assert_relative_eq!(pr[net.node_id("right").unwrap().0], right, max_relative = 1e-12);
+    assert_relative_eq!(
+        pr[net.node_id("left").unwrap().0],
+        left,
+        max_relative = 1e-12
+    );
+    assert_relative_eq!(
+        pr[net.node_id("right").unwrap().0],
+        right,
+        max_relative = 1e-12
+    );
     assert_relative_eq!(q[4], g[4] * (left - right), max_relative = 1e-10);
 }
 
@@ -180,13 +188,25 @@ fn uniform_ladder_matches_hyperbolic_solution() {
     }
     for k in 1..=n {
         chip = chip
-            .tube(&format!("rail{k}"), &format!("t{}", k - 1), &format!("t{k}"), rail_d, rail_l)
-            .tube(&format!("rung{k}"), &format!("t{k}"), "ground", rung_d, rung_l);
+            .tube(
+                &format!("rail{k}"),
+                &format!("t{}", k - 1),
+                &format!("t{k}"),
+                rail_d,
+                rail_l,
+            )
+            .tube(
+                &format!("rung{k}"),
+                &format!("t{k}"),
+                "ground",
+                rung_d,
+                rung_l,
+            );
     }
     let (net, pr, q) = chip.solve();
     for k in 1..=n {
-        let expected = p * ((n as f64 - k as f64 + 0.5) * gamma).cosh()
-            / ((n as f64 + 0.5) * gamma).cosh();
+        let expected =
+            p * ((n as f64 - k as f64 + 0.5) * gamma).cosh() / ((n as f64 + 0.5) * gamma).cosh();
         let node = net.node_id(&format!("t{k}")).unwrap().0;
         assert_relative_eq!(pr[node], expected, max_relative = 1e-10);
         let rung = net.channel_id(&format!("rung{k}")).unwrap().0;
@@ -209,7 +229,11 @@ fn flow_driven_port_needs_the_closed_form_pressure() {
         .solve();
     let (r0, r1, r2) = (hp(100e-6, 0.02), hp(80e-6, 0.01), hp(60e-6, 0.01));
     let expected = qin * (r0 + r1 * r2 / (r1 + r2));
-    assert_relative_eq!(pr[net.node_id("pump").unwrap().0], expected, max_relative = 1e-12);
+    assert_relative_eq!(
+        pr[net.node_id("pump").unwrap().0],
+        expected,
+        max_relative = 1e-12
+    );
     assert_relative_eq!(q[0], qin, max_relative = 1e-12);
     assert_relative_eq!(q[1] / q[2], r2 / r1, max_relative = 1e-12);
 }

@@ -15,8 +15,12 @@ struct Spec {
 
 fn spec() -> impl Strategy<Value = Spec> {
     (3usize..25).prop_flat_map(|n| {
-        let tree = proptest::collection::vec((any::<prop::sample::Index>(), 20.0..300.0f64, 0.5..50.0f64), n - 1);
-        let extra = proptest::collection::vec((0..n, 0..n, 20.0..300.0f64, 0.5..50.0f64), 0..(2 * n));
+        let tree = proptest::collection::vec(
+            (any::<prop::sample::Index>(), 20.0..300.0f64, 0.5..50.0f64),
+            n - 1,
+        );
+        let extra =
+            proptest::collection::vec((0..n, 0..n, 20.0..300.0f64, 0.5..50.0f64), 0..(2 * n));
         let ports = proptest::collection::vec((0u8..3, -500.0..2000.0f64), n);
         (Just(n), tree, extra, ports).prop_map(|(n, tree, extra, mut ports)| {
             let mut channels = Vec::new();
@@ -61,8 +65,14 @@ fn build(spec: &Spec, scale: f64, flip: Option<usize>, uniform_pressure: Option<
                 },
             )
             .unwrap();
-        b.add_channel(&format!("c{k}"), &format!("n{a}"), &format!("n{c}"), s, Length::from_si(l * 1e-3))
-            .unwrap();
+        b.add_channel(
+            &format!("c{k}"),
+            &format!("n{a}"),
+            &format!("n{c}"),
+            s,
+            Length::from_si(l * 1e-3),
+        )
+        .unwrap();
     }
     b.build().unwrap()
 }

@@ -206,20 +206,25 @@ impl<'de> Deserialize<'de> for SectionRef {
 /// A conversion problem at a key path, before it is located in the text.
 struct Misplaced {
     path: Vec<String>,
+    /// The last key occurs twice; point at the second.
+    repeated: bool,
     message: String,
 }
 
 fn at(path: &[&str], message: impl Into<String>) -> Misplaced {
     Misplaced {
         path: path.iter().map(|s| s.to_string()).collect(),
+        repeated: false,
         message: message.into(),
     }
 }
 
 impl From<NetworkError> for Misplaced {
     fn from(e: NetworkError) -> Self {
+        let place = e.place();
         Misplaced {
-            path: e.place().0,
+            path: place.keys,
+            repeated: place.repeated,
             message: e.to_string(),
         }
     }
@@ -382,31 +387,30 @@ pub fn parse_chip(text: &str, origin: &str, syntax: Syntax) -> Result<Network, I
             })?
         }
         Syntax::Json => {
-            let mut de = serde_json::Deserializer::from_str(text);
-            let parsed: Result<ChipFile, _> = serde_path_to_error::deserialize(&mut de);
-            let file = parsed.map_err(|e| {
-                let path = e.path().to_string();
-                let inner = e.into_inner();
+            // Fast path without path tracking; on error, parse again to learn the field path.
+            serde_json::from_str::<ChipFile>(text).map_err(|plain| {
+                let mut de = serde_json::Deserializer::from_str(text);
+                let path = match serde_path_to_error::deserialize::<_, ChipFile>(&mut de) {
+                    Err(e) => Some(e.path().to_string()).filter(|p| p != "."),
+                    Ok(_) => None,
+                };
                 InputError {
                     origin: origin.to_string(),
-                    line: Some(inner.line()),
-                    column: Some(inner.column()),
-                    field: (path != ".").then_some(path),
-                    message: strip_position(&inner.to_string()),
+                    line: Some(plain.line()),
+                    column: Some(plain.column()),
+                    field: path,
+                    message: strip_position(&plain.to_string()),
                 }
-            })?;
-            de.end().map_err(|e| InputError {
-                origin: origin.to_string(),
-                line: Some(e.line()),
-                column: Some(e.column()),
-                field: None,
-                message: strip_position(&e.to_string()),
-            })?;
-            file
+            })?
         }
     };
     file.into_network().map_err(|m| {
-        let parts: Vec<&str> = m.path.iter().map(String::as_str).collect();
+        let mut parts: Vec<&str> = m.path.iter().map(String::as_str).collect();
+        if m.repeated {
+            if let Some(last) = parts.last().copied() {
+                parts.push(last);
+            }
+        }
         let place = locate(text, &parts);
         InputError {
             origin: origin.to_string(),

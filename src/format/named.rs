@@ -1,10 +1,10 @@
-//! An ordered name → value mapping that refuses duplicate names.
+//! An ordered name → value mapping that keeps every entry, duplicates included.
 //!
 //! serde's map types keep the last of two equal keys silently; a chip file with two nodes
-//! called `tee` is a mistake the designer must hear about.
+//! called `tee` is a mistake the designer must hear about. Keeping both lets the network
+//! builder refuse the second one, and the error point at the second one's line.
 
 use serde::de::{self, Deserialize, DeserializeSeed, Deserializer, MapAccess, Visitor};
-use std::collections::HashSet;
 use std::fmt;
 use std::marker::PhantomData;
 
@@ -30,14 +30,8 @@ impl<'de, T: Deserialize<'de>> Deserialize<'de> for Named<T> {
                 Ok(Named(Vec::new()))
             }
             fn visit_map<A: MapAccess<'de>>(self, mut map: A) -> Result<Named<T>, A::Error> {
-                let mut seen = HashSet::new();
                 let mut out = Vec::with_capacity(map.size_hint().unwrap_or(0).min(1 << 20));
                 while let Some(key) = map.next_key_seed(NameSeed)? {
-                    if !seen.insert(key.clone()) {
-                        return Err(de::Error::custom(format!(
-                            "'{key}' is defined twice; names must be unique"
-                        )));
-                    }
                     let value = map.next_value::<T>()?;
                     out.push((key, value));
                 }

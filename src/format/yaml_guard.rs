@@ -127,7 +127,7 @@ mod tests {
         let mut text = String::from("l0: &l0 [a, a, a, a, a, a, a, a, a, a]\n");
         for i in 1..9 {
             let prev = format!("*l{}", i - 1);
-            let items = vec![prev.as_str(); 10].join(", ");
+            let items = [prev.as_str(); 10].join(", ");
             text.push_str(&format!("l{i}: &l{i} [{items}]\n"));
         }
         let e = check(&text).unwrap_err();
