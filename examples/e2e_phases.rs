@@ -7,30 +7,53 @@ fn main() {
     let text = std::fs::read_to_string(&path).expect("read");
     let t = Instant::now();
     let parsed: Result<serde_json::Value, _> = serde_json::from_str(&text);
-    println!("parse to serde_json::Value (reference): {:8.1} ms ({})", t.elapsed().as_secs_f64() * 1e3, parsed.is_ok());
+    println!(
+        "parse to serde_json::Value (reference): {:8.1} ms ({})",
+        t.elapsed().as_secs_f64() * 1e3,
+        parsed.is_ok()
+    );
     drop(parsed);
     let t = Instant::now();
     let net = rillnet::load_chip(std::path::Path::new(&path)).unwrap_or_else(|e| {
         eprintln!("{e}");
         std::process::exit(2)
     });
-    println!("load (read, parse, validate, graph): {:8.1} ms", t.elapsed().as_secs_f64() * 1e3);
+    println!(
+        "load (read, parse, validate, graph): {:8.1} ms",
+        t.elapsed().as_secs_f64() * 1e3
+    );
     let t = Instant::now();
     let sys = rillnet::analysis::kirchhoff::KirchhoffSystem::new(&net);
     let g = rillnet::analysis::kirchhoff::conductances(&net);
     println!("  assemble: {:8.1} ms", t.elapsed().as_secs_f64() * 1e3);
     let t = Instant::now();
-    let sym = rillnet::solver::SymbolicCholesky::analyse(sys.pattern(), Default::default()).expect("analyse");
+    let sym = rillnet::solver::SymbolicCholesky::analyse(sys.pattern(), Default::default())
+        .expect("analyse");
     println!("  analyse: {:8.1} ms", t.elapsed().as_secs_f64() * 1e3);
     let t = Instant::now();
     let sol = rillnet::analysis::kirchhoff::solve_with(&net, &sys, &sym, &g).expect("solve");
-    println!("  factor+solve+check: {:8.1} ms (residual {:e})", t.elapsed().as_secs_f64() * 1e3, sol.max_relative_residual);
+    println!(
+        "  factor+solve+check: {:8.1} ms (residual {:e})",
+        t.elapsed().as_secs_f64() * 1e3,
+        sol.max_relative_residual
+    );
     let t = Instant::now();
     let state = rillnet::analysis::steady_state(&net).expect("solve");
-    println!("solve (assemble, factor, check):     {:8.1} ms", t.elapsed().as_secs_f64() * 1e3);
-    for (name, f) in [("json", rillnet::report::Format::Json), ("csv", rillnet::report::Format::Csv), ("table", rillnet::report::Format::Table)] {
+    println!(
+        "solve (assemble, factor, check):     {:8.1} ms",
+        t.elapsed().as_secs_f64() * 1e3
+    );
+    for (name, f) in [
+        ("json", rillnet::report::Format::Json),
+        ("csv", rillnet::report::Format::Csv),
+        ("table", rillnet::report::Format::Table),
+    ] {
         let t = Instant::now();
         let s = rillnet::report::render(&net, &state, f);
-        println!("render {name:5} ({:6} kB):            {:8.1} ms", s.len() / 1024, t.elapsed().as_secs_f64() * 1e3);
+        println!(
+            "render {name:5} ({:6} kB):            {:8.1} ms",
+            s.len() / 1024,
+            t.elapsed().as_secs_f64() * 1e3
+        );
     }
 }

@@ -70,47 +70,30 @@ impl KirchhoffSystem {
                 n += 1;
             }
         }
-        let mut positions = Vec::with_capacity(3 * network.channels.len());
-        // Diagonal of every unknown first, so isolated unknowns still have an entry.
-        for i in 0..n {
-            positions.push((i, i));
-        }
-        let mut kinds = Vec::with_capacity(network.channels.len());
+        // Positions 0..n are the diagonals (so isolated unknowns still have an entry); then one
+        // off-diagonal position per channel joining two unknowns. A channel's diagonal slots
+        // are those of its end nodes.
+        let mut positions: Vec<(usize, usize)> = (0..n).map(|i| (i, i)).collect();
+        positions.reserve(network.channels.len());
+        let mut off_position = Vec::with_capacity(network.channels.len());
         for c in &network.channels {
-            let a = unknown_of[c.from.0];
-            let b = unknown_of[c.to.0];
-            let start = positions.len();
-            if let Some(a) = a {
-                positions.push((a, a));
+            match (unknown_of[c.from.0], unknown_of[c.to.0]) {
+                (Some(a), Some(b)) => {
+                    off_position.push(Some(positions.len()));
+                    positions.push((a, b));
+                }
+                _ => off_position.push(None),
             }
-            if let Some(b) = b {
-                positions.push((b, b));
-            }
-            if let (Some(a), Some(b)) = (a, b) {
-                positions.push((a, b));
-            }
-            kinds.push((start, a.is_some(), b.is_some()));
         }
         let (pattern, slot_of) = SymmetricPattern::from_positions(n, &positions);
-        let slots = kinds
-            .into_iter()
-            .map(|(start, has_a, has_b)| {
-                let mut k = start;
-                let mut take = |present: bool| {
-                    present.then(|| {
-                        let s = slot_of[k];
-                        k += 1;
-                        s
-                    })
-                };
-                let from_diag = take(has_a);
-                let to_diag = take(has_b);
-                let off = take(has_a && has_b);
-                ChannelSlots {
-                    from_diag,
-                    to_diag,
-                    off,
-                }
+        let slots = network
+            .channels
+            .iter()
+            .zip(off_position)
+            .map(|(c, off)| ChannelSlots {
+                from_diag: unknown_of[c.from.0].map(|a| slot_of[a]),
+                to_diag: unknown_of[c.to.0].map(|b| slot_of[b]),
+                off: off.map(|k| slot_of[k]),
             })
             .collect();
         KirchhoffSystem {
