@@ -77,6 +77,27 @@ pub fn load_chip(path: &Path) -> Result<network::Network, Error> {
     )?)
 }
 
+/// Load and solve a chip, mapping a failed solve to [`Error::Solve`].
+fn load_and_solve(chip: &Path) -> Result<(network::Network, analysis::SteadyState), Error> {
+    let network = load_chip(chip)?;
+    let state = analysis::steady_state(&network).map_err(|source| Error::Solve {
+        origin: chip.display().to_string(),
+        source,
+    })?;
+    Ok((network, state))
+}
+
+/// Deliver `text` to `output` (a new file) or return it for printing.
+fn deliver(text: String, output: Option<&Path>, inputs: &[&Path]) -> Result<String, Error> {
+    match output {
+        Some(path) => {
+            output::write_new_file(path, text.as_bytes(), inputs)?;
+            Ok(String::new())
+        }
+        None => Ok(text),
+    }
+}
+
 /// What the `solve` command needs.
 #[derive(Clone, Debug)]
 pub struct SolveRequest<'a> {
@@ -87,17 +108,37 @@ pub struct SolveRequest<'a> {
 
 /// Load, solve and render a chip. Returns the text to print (empty when written to a file).
 pub fn solve_command(req: &SolveRequest<'_>) -> Result<String, Error> {
-    let network = load_chip(req.chip)?;
-    let state = analysis::steady_state(&network).map_err(|source| Error::Solve {
-        origin: req.chip.display().to_string(),
-        source,
-    })?;
-    let text = report::render(&network, &state, req.format);
-    match req.output {
-        Some(path) => {
-            output::write_new_file(path, text.as_bytes(), &[req.chip])?;
-            Ok(String::new())
-        }
-        None => Ok(text),
-    }
+    let (network, state) = load_and_solve(req.chip)?;
+    deliver(
+        report::render(&network, &state, req.format),
+        req.output,
+        &[req.chip],
+    )
+}
+
+/// What the `check` command needs.
+#[derive(Clone, Debug)]
+pub struct CheckRequest<'a> {
+    pub chip: &'a Path,
+    pub format: report::Format,
+}
+
+/// The verdict of `check`: the report and whether every limit holds.
+#[derive(Clone, Debug)]
+pub struct CheckOutcome {
+    pub text: String,
+    pub passed: bool,
+}
+
+/// Solve a chip and check it against its shear limits and pressure rating.
+pub fn check_command(req: &CheckRequest<'_>) -> Result<CheckOutcome, Error> {
+    let (network, state) = load_and_solve(req.chip)?;
+    let passed = !analysis::findings(&network, &state)
+        .iter()
+        .any(|f| f.severity == analysis::Severity::Exceeded);
+    let text = match req.format {
+        report::Format::Table => report::check_text(&network, &state, passed),
+        other => report::render(&network, &state, other),
+    };
+    Ok(CheckOutcome { text, passed })
 }

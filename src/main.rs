@@ -18,7 +18,7 @@ struct Cli {
 
 #[derive(Subcommand)]
 enum Command {
-    /// Solve a chip: every node pressure, channel flow and port operating point.
+    /// Solve a chip: every node pressure, channel flow, wall shear and port operating point.
     Solve {
         /// Chip file (.yaml/.yml, or .json).
         file: PathBuf,
@@ -28,6 +28,15 @@ enum Command {
         /// Write to this new file instead of standard output (never overwrites).
         #[arg(long, short)]
         output: Option<PathBuf>,
+    },
+    /// Check a chip against its limits (cells' wall-shear limit, chip pressure rating);
+    /// exits 1 when any limit is exceeded.
+    Check {
+        /// Chip file (.yaml/.yml, or .json).
+        file: PathBuf,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
+        format: OutFormat,
     },
 }
 
@@ -48,9 +57,9 @@ impl From<OutFormat> for rillnet::report::Format {
     }
 }
 
-fn main() -> ExitCode {
-    let cli = Cli::parse();
-    let result = match &cli.command {
+/// Run the command: the text to print and whether every check passed.
+fn run(command: &Command) -> Result<(String, bool), rillnet::Error> {
+    match command {
         Command::Solve {
             file,
             format,
@@ -59,12 +68,26 @@ fn main() -> ExitCode {
             chip: file,
             format: (*format).into(),
             output: output.as_deref(),
-        }),
-    };
-    match result {
-        Ok(text) => {
+        })
+        .map(|text| (text, true)),
+        Command::Check { file, format } => rillnet::check_command(&rillnet::CheckRequest {
+            chip: file,
+            format: (*format).into(),
+        })
+        .map(|o| (o.text, o.passed)),
+    }
+}
+
+fn main() -> ExitCode {
+    let cli = Cli::parse();
+    match run(&cli.command) {
+        Ok((text, passed)) => {
             print!("{text}");
-            ExitCode::SUCCESS
+            if passed {
+                ExitCode::SUCCESS
+            } else {
+                ExitCode::from(1)
+            }
         }
         Err(e) => {
             eprintln!("error: {e}");

@@ -64,6 +64,8 @@ pub struct Channel {
     pub to: NodeId,
     pub section: SectionId,
     pub length: Length,
+    /// This channel's own wall-shear limit, overriding the fluid's cells' limit.
+    pub shear_limit: Option<Pressure>,
 }
 
 /// A validated chip network.
@@ -74,6 +76,10 @@ pub struct Network {
     pub nodes: Vec<Node>,
     pub sections: Vec<Section>,
     pub channels: Vec<Channel>,
+    /// Highest gauge pressure the chip is rated for, if given.
+    pub pressure_rating: Option<Pressure>,
+    /// Notes from the models (e.g. a fluid correlation used outside its range).
+    pub warnings: Vec<String>,
     graph: UnGraph<NodeId, ChannelId>,
 }
 
@@ -124,6 +130,8 @@ pub enum NetworkError {
     },
     #[error("the chip has no channels; add at least one channel between two nodes")]
     Empty,
+    #[error("{place}: must be a positive finite pressure, got {value} Pa")]
+    BadLimit { place: String, value: f64 },
 }
 
 /// Where in the chip description an error belongs: a path of keys. For a duplicate name
@@ -161,6 +169,10 @@ impl NetworkError {
                 None => p(&["nodes"]),
             },
             NetworkError::Empty => p(&["channels"]),
+            NetworkError::BadLimit { place, .. } => Place {
+                keys: place.split('.').map(str::to_string).collect(),
+                repeated: false,
+            },
         }
     }
 }
@@ -208,6 +220,8 @@ pub struct NetworkBuilder {
     shape_cache: HashMap<GeometryKey, SectionId>,
     channels: Vec<Channel>,
     channel_names: HashMap<String, ChannelId>,
+    pressure_rating: Option<Pressure>,
+    warnings: Vec<String>,
 }
 
 impl NetworkBuilder {
@@ -222,6 +236,8 @@ impl NetworkBuilder {
             shape_cache: HashMap::default(),
             channels: Vec::new(),
             channel_names: HashMap::default(),
+            pressure_rating: None,
+            warnings: Vec::new(),
         }
     }
 
@@ -237,6 +253,40 @@ impl NetworkBuilder {
     pub fn name(&mut self, name: impl Into<String>) -> &mut Self {
         self.name = Some(name.into());
         self
+    }
+
+    /// Record a model note to show with the results.
+    pub fn warn(&mut self, text: impl Into<String>) -> &mut Self {
+        self.warnings.push(text.into());
+        self
+    }
+
+    /// Set the chip's pressure rating.
+    pub fn pressure_rating(&mut self, rating: Pressure) -> Result<&mut Self, NetworkError> {
+        if !(rating.si().is_finite() && rating.si() > 0.0) {
+            return Err(NetworkError::BadLimit {
+                place: "pressure_rating".into(),
+                value: rating.si(),
+            });
+        }
+        self.pressure_rating = Some(rating);
+        Ok(self)
+    }
+
+    /// Give a channel its own wall-shear limit.
+    pub fn channel_shear_limit(
+        &mut self,
+        channel: ChannelId,
+        limit: Pressure,
+    ) -> Result<&mut Self, NetworkError> {
+        if !(limit.si().is_finite() && limit.si() > 0.0) {
+            return Err(NetworkError::BadLimit {
+                place: format!("channels.{}.shear_limit", self.channels[channel.0].name),
+                value: limit.si(),
+            });
+        }
+        self.channels[channel.0].shear_limit = Some(limit);
+        Ok(self)
     }
 
     pub fn add_node(&mut self, name: &str, port: Port) -> Result<NodeId, NetworkError> {
@@ -362,6 +412,7 @@ impl NetworkBuilder {
             to: to_id,
             section,
             length,
+            shear_limit: None,
         });
         Ok(id)
     }
@@ -422,6 +473,8 @@ impl NetworkBuilder {
             nodes: self.nodes,
             sections: self.sections,
             channels: self.channels,
+            pressure_rating: self.pressure_rating,
+            warnings: self.warnings,
             graph,
         })
     }

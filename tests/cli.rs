@@ -481,3 +481,143 @@ fn arbitrary_bytes_never_panic() {
         );
     }
 }
+
+#[test]
+fn check_exit_codes_on_passing_and_failing_chips() {
+    // The shipped T-cell chip is designed with one channel over its cells' limit.
+    let out = rillnet()
+        .args(["check", "networks/tcell_sorter.yaml"])
+        .output()
+        .unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("FAIL") && text.contains("pre_filter") && text.contains("OVER LIMIT"),
+        "{text}"
+    );
+    assert!(
+        text.contains("Shear limits:"),
+        "the shear caution is printed: {text}"
+    );
+    // Worst margin first: the failing channel is the first row of the table.
+    let first_row = text
+        .lines()
+        .skip_while(|l| !l.contains("──"))
+        .nth(1)
+        .unwrap();
+    assert!(first_row.contains("pre_filter"), "{first_row}");
+
+    // A gentle chip with a generous limit passes.
+    let dir = tempfile::tempdir().unwrap();
+    let passing = GOOD.replace(
+        "fluid: {viscosity: 1.0 mPa*s, density: 998 kg/m^3}",
+        "fluid: {viscosity: 1.0 mPa*s, density: 998 kg/m^3, cells: {volume_fraction: 0.01, shear_limit: 100 Pa}}\npressure_rating: 2 bar",
+    );
+    let p = write(dir.path(), "ok.yaml", &passing);
+    let out = rillnet().arg("check").arg(&p).output().unwrap();
+    assert_eq!(
+        out.status.code(),
+        Some(0),
+        "{}",
+        String::from_utf8_lossy(&out.stdout)
+    );
+    assert!(String::from_utf8_lossy(&out.stdout).contains("PASS"));
+
+    // The same chip with a rating below its supply pressure fails on pressure.
+    let over = passing.replace("pressure_rating: 2 bar", "pressure_rating: 100 mbar");
+    let p = write(dir.path(), "over.yaml", &over);
+    let out = rillnet().arg("check").arg(&p).output().unwrap();
+    assert_eq!(out.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("exceeds the chip's rating"));
+
+    // Bad input to check is still exit 2, not 1.
+    let out = rillnet().args(["check", "no/such.yaml"]).output().unwrap();
+    assert_eq!(out.status.code(), Some(2));
+}
+
+#[test]
+fn json_carries_shear_figures_and_limits() {
+    let v = json_of(Path::new("networks/tcell_sorter.yaml"));
+    let channels = v["channels"].as_array().unwrap();
+    for c in channels {
+        for key in [
+            "mean_velocity_m_per_s",
+            "reynolds",
+            "wall_shear_mean_pa",
+            "wall_shear_max_pa",
+            "shear_limit_pa",
+            "shear_margin",
+        ] {
+            assert!(c[key].is_number(), "{key} in {c}");
+        }
+        let margin = c["shear_margin"].as_f64().unwrap();
+        let limit = c["shear_limit_pa"].as_f64().unwrap();
+        let tmax = c["wall_shear_max_pa"].as_f64().unwrap();
+        assert!((margin - limit / tmax).abs() < 1e-12 * margin);
+        assert!(tmax >= c["wall_shear_mean_pa"].as_f64().unwrap());
+    }
+    let chamber = channels.iter().find(|c| c["name"] == "chamber_a").unwrap();
+    assert_eq!(chamber["shear_limit_pa"].as_f64(), Some(0.05));
+    assert!(v["findings"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .any(|f| f["severity"] == "exceeded"));
+    // Without any limit, the limit and margin are null.
+    let dir = tempfile::tempdir().unwrap();
+    let v = json_of(&write(dir.path(), "c.yaml", GOOD));
+    assert!(v["channels"][0]["shear_limit_pa"].is_null());
+    assert!(v["channels"][0]["shear_margin"].is_null());
+}
+
+#[test]
+fn fluid_models_in_the_chip_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let viscosity = |fluid: &str| -> f64 {
+        let text = GOOD.replace("fluid: {viscosity: 1.0 mPa*s, density: 998 kg/m^3}", fluid);
+        let v = json_of(&write(dir.path(), &format!("f{}.yaml", fluid.len()), &text));
+        v["fluid"]["viscosity_pa_s"].as_f64().unwrap()
+    };
+    // IAPWS R12-08: water at 20 °C is 1.00160 mPa·s.
+    let w = viscosity("fluid: {model: water, temperature: 20 degC}");
+    assert!((w - 1.0016e-3).abs() < 1e-4 * 1.0016e-3, "{w}");
+    // Einstein (1906) on water at 20 °C: φ = 0.02 → ×1.05.
+    let s = viscosity("fluid: {model: water, temperature: 20 degC, cells: {volume_fraction: 0.02, viscosity_model: einstein}}");
+    assert!((s / w - 1.05).abs() < 1e-12, "{}", s / w);
+    // Cheng (2008) / classic table: 50 % glycerol at 20 °C ≈ 6.00 mPa·s (±3 %).
+    let g = viscosity(
+        "fluid: {model: glycerol-water, glycerol_mass_fraction: 0.5, temperature: 20 degC}",
+    );
+    assert!((g - 6.0e-3).abs() < 0.03 * 6.0e-3, "{g}");
+
+    // Model errors are placed and explained.
+    for (fluid, needles) in [
+        ("fluid: {model: water}", &["fluid.model", "temperature"][..]),
+        ("fluid: {model: water, temperature: 20 degC, viscosity: 1 cP}", &["fluid.viscosity", "computes the viscosity"][..]),
+        ("fluid: {model: glycerol-water, temperature: 20 degC, glycerol_mass_fraction: 1.5}", &["glycerol_mass_fraction", "between 0 and 1"][..]),
+        ("fluid: {model: water, temperature: 20 degC, cells: {volume_fraction: 0.7}}", &["fluid.cells.volume_fraction", "max_packing"][..]),
+        ("fluid: {viscosity: 1 cP, density: 1 g/cm^3, cells: {volume_fraction: 0.1, shear_limit: -1 Pa}}", &["shear_limit", "positive"][..]),
+        ("fluid: {model: soup, temperature: 20 degC}", &["fluid.model", "soup"][..]),
+    ] {
+        let text = GOOD.replace("fluid: {viscosity: 1.0 mPa*s, density: 998 kg/m^3}", fluid);
+        let (code, err) = solve_text("chip.yaml", &text);
+        assert_eq!(code, 2, "{fluid}: {err}");
+        for n in needles {
+            assert!(err.contains(n), "{fluid}: '{n}' missing in {err}");
+        }
+    }
+    // A model used outside its range still solves, with a note.
+    let text = GOOD.replace(
+        "fluid: {viscosity: 1.0 mPa*s, density: 998 kg/m^3}",
+        "fluid: {model: water, temperature: 20 degC, cells: {volume_fraction: 0.2, viscosity_model: einstein}}",
+    );
+    let p = write(dir.path(), "dilute.yaml", &text);
+    let out = rillnet().arg("solve").arg(&p).output().unwrap();
+    assert!(out.status.success());
+    assert!(String::from_utf8_lossy(&out.stdout).contains("dilute range"));
+}

@@ -12,10 +12,10 @@ use std::f64::consts::PI;
 const MU: f64 = 1.0e-3;
 
 fn fluid() -> Fluid {
-    Fluid {
-        viscosity: Viscosity::from_si(MU),
-        density: rillnet::units::Density::from_si(1000.0),
-    }
+    Fluid::constant(
+        Viscosity::from_si(MU),
+        rillnet::units::Density::from_si(1000.0),
+    )
 }
 
 /// Hagen–Poiseuille resistance of a tube (Bruus 2008): R = 8μL/(πa⁴).
@@ -243,10 +243,10 @@ fn rectangle_network_uses_the_series_resistance() {
     // One rectangular channel: R = μL/K with K from the exact series; checked against the
     // worked value R = 1.40156e13 Pa·s/m³ for water (μ = 1.0016 mPa·s, IAPWS R12-08) in a
     // 100 µm × 50 µm channel of 1 cm (computed from Bruus 2008, eq. 3.56).
-    let mut b = NetworkBuilder::new(Fluid {
-        viscosity: Viscosity::from_si(1.0016e-3),
-        density: rillnet::units::Density::from_si(998.2),
-    });
+    let mut b = NetworkBuilder::new(Fluid::constant(
+        Viscosity::from_si(1.0016e-3),
+        rillnet::units::Density::from_si(998.2),
+    ));
     b.add_node("in", Port::Flow(VolumeFlow::from_si(1e-9 / 60.0)))
         .unwrap();
     b.add_node("out", Port::Pressure(Pressure::from_si(0.0)))
@@ -266,4 +266,86 @@ fn rectangle_network_uses_the_series_resistance() {
     let sol = solve(&net).unwrap();
     // At 1 µL/min the drop is 233.59 Pa (same worked example).
     assert_relative_eq!(sol.pressures[0], 233.59, max_relative = 2e-5);
+}
+
+#[test]
+fn circular_wall_shear_is_hagen_poiseuille() {
+    // Hagen–Poiseuille wall shear in a tube of radius r: τ = 4μQ/(πr³) (Bruus 2008, ch. 4),
+    // uniform around the wall, so mean = max.
+    let (d, l, qin) = (80e-6, 0.01, 2e-9 / 60.0);
+    let mut b = NetworkBuilder::new(fluid());
+    b.add_node("pump", Port::Flow(VolumeFlow::from_si(qin)))
+        .unwrap();
+    b.add_node("out", Port::Pressure(Pressure::from_si(0.0)))
+        .unwrap();
+    let s = b
+        .add_section(
+            "t",
+            Shape::Circle {
+                diameter: Length::from_si(d),
+            },
+        )
+        .unwrap();
+    b.add_channel("c", "pump", "out", s, Length::from_si(l))
+        .unwrap();
+    let net = b.build().unwrap();
+    let st = rillnet::analysis::steady_state(&net).unwrap();
+    let r = d / 2.0;
+    let tau = 4.0 * MU * qin / (PI * r.powi(3));
+    assert_relative_eq!(st.channels[0].wall_shear_max, tau, max_relative = 1e-12);
+    assert_relative_eq!(st.channels[0].wall_shear_mean, tau, max_relative = 1e-12);
+}
+
+#[test]
+fn rectangle_wall_shear_mean_is_force_balance_and_max_is_series() {
+    // Worked example (computed from the rectangle series, Bruus 2008 eq. 3.56, and its wall
+    // derivative): water μ = 1.0016 mPa·s, 100 µm × 50 µm, L = 1 cm, Q = 1 µL/min:
+    // ΔP = 233.59 Pa, mean wall shear 0.38932 Pa, maximum 0.54314 Pa.
+    let mut b = NetworkBuilder::new(Fluid::WATER_20C);
+    b.add_node("pump", Port::Flow(VolumeFlow::from_si(1e-9 / 60.0)))
+        .unwrap();
+    b.add_node("out", Port::Pressure(Pressure::from_si(0.0)))
+        .unwrap();
+    let s = b
+        .add_section(
+            "r",
+            Shape::Rectangle {
+                width: Length::from_si(100e-6),
+                height: Length::from_si(50e-6),
+            },
+        )
+        .unwrap();
+    b.add_channel("c", "pump", "out", s, Length::from_si(0.01))
+        .unwrap();
+    let net = b.build().unwrap();
+    let st = rillnet::analysis::steady_state(&net).unwrap();
+    let c = &st.channels[0];
+    // Force balance, exact for any shape: τ_mean = G·A/P.
+    let g = c.pressure_drop / 0.01;
+    assert_relative_eq!(
+        c.wall_shear_mean,
+        g * (100e-6 * 50e-6) / (2.0 * 150e-6),
+        max_relative = 1e-14
+    );
+    assert_relative_eq!(c.wall_shear_mean, 0.38932, max_relative = 2e-5);
+    assert_relative_eq!(c.wall_shear_max, 0.54314, max_relative = 2e-5);
+}
+
+#[test]
+fn entrance_length_correlations() {
+    // Durst et al. (2005), J. Fluids Eng. 127, 1154: L/D = [0.619^1.6 + (0.0567 Re)^1.6]^(1/1.6);
+    // at Re = 1 it gives 0.627; its creeping-flow limit is 0.619 and its high-Re slope 0.0567.
+    let durst = rillnet::analysis::entrance_length_ratio(1.0);
+    assert!((durst - 0.627).abs() < 5e-4, "{durst}");
+    assert!((rillnet::analysis::entrance_length_ratio(0.0) - 0.619).abs() < 1e-12);
+    let high = rillnet::analysis::entrance_length_ratio(2000.0);
+    assert!((high / 2000.0 - 0.0567).abs() < 1e-4, "{high}");
+    // The older correlation of Chen (1973), L/D = 0.60/(1 + 0.035 Re) + 0.056 Re (0.636 at
+    // Re = 1), differs from Durst by at most about 9 % (worst near Re ≈ 8, computed): the
+    // two published fits bracket the uncertainty of the entrance length itself.
+    for re in [0.0, 1.0, 8.0, 10.0, 100.0, 1000.0, 2000.0] {
+        let chen = 0.60 / (1.0 + 0.035 * re) + 0.056 * re;
+        let d = rillnet::analysis::entrance_length_ratio(re);
+        assert!((d - chen).abs() / chen < 0.095, "Re {re}: {d} vs {chen}");
+    }
 }

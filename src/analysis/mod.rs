@@ -5,8 +5,10 @@
 //! flow a pressure port delivers, the pressure a pump must produce).
 
 pub mod kirchhoff;
+pub mod limits;
 
 pub use kirchhoff::{solve, FlowSolution, SolveError, RESIDUAL_LIMIT};
+pub use limits::{findings, Finding, Severity};
 
 use crate::network::{ChannelId, Network, Port};
 
@@ -23,6 +25,23 @@ pub struct ChannelState {
     pub mean_velocity: f64,
     /// Reynolds number ρ|U|Dh/μ on the hydraulic diameter.
     pub reynolds: f64,
+    /// Mean wall shear stress τ_mean = G·A/P [Pa] (force balance; G = |ΔP|/L).
+    pub wall_shear_mean: f64,
+    /// Largest wall shear stress on the perimeter, τ_max = G·(τ_max/G) of the section [Pa].
+    pub wall_shear_max: f64,
+    /// The wall-shear limit that applies (the channel's own, else the cells') [Pa].
+    pub shear_limit: Option<f64>,
+    /// limit / τ_max: above 1 is inside the limit. `None` without a limit; infinite without
+    /// flow.
+    pub shear_margin: Option<f64>,
+    /// Laminar entrance length [m], Durst et al. (2005), J. Fluids Eng. 127, 1154:
+    /// L_e/Dh = [0.619^1.6 + (0.0567 Re)^1.6]^(1/1.6), fitted for 0 ≤ Re ≤ 2000 (pipe; used
+    /// with the hydraulic diameter for other sections).
+    pub entrance_length: f64,
+    /// Time a fluid parcel spends in the channel, volume/|Q| [s] (infinite without flow).
+    pub residence_time: f64,
+    /// Viscous power dissipated, ΔP·Q [W].
+    pub power: f64,
 }
 
 /// One port's operating point.
@@ -60,6 +79,11 @@ pub fn steady_state(network: &Network) -> Result<SteadyState, SolveError> {
     Ok(derive(network, solution))
 }
 
+/// Laminar entrance length over hydraulic diameter, Durst et al. (2005).
+pub fn entrance_length_ratio(reynolds: f64) -> f64 {
+    (0.619f64.powf(1.6) + (0.0567 * reynolds).powf(1.6)).powf(1.0 / 1.6)
+}
+
 /// Per-channel figures from a flow solution.
 pub fn derive(network: &Network, solution: FlowSolution) -> SteadyState {
     let mu = network.fluid.viscosity.si();
@@ -72,12 +96,32 @@ pub fn derive(network: &Network, solution: FlowSolution) -> SteadyState {
             let q = solution.flows[k];
             let fig = &network.sections[c.section.0].figures;
             let u = q / fig.area;
+            let dp = solution.pressures[c.from.0] - solution.pressures[c.to.0];
+            let length = c.length.si();
+            let gradient = dp.abs() / length;
+            let dh = fig.hydraulic_diameter();
+            let reynolds = rho * u.abs() * dh / mu;
+            let wall_shear_max = gradient * fig.max_wall_shear_per_gradient;
+            let shear_limit = c.shear_limit.or(network.fluid.shear_limit).map(|p| p.si());
             ChannelState {
                 flow: q,
-                pressure_drop: solution.pressures[c.from.0] - solution.pressures[c.to.0],
+                pressure_drop: dp,
                 resistance: network.resistance(ChannelId(k)),
                 mean_velocity: u,
-                reynolds: rho * u.abs() * fig.hydraulic_diameter() / mu,
+                reynolds,
+                wall_shear_mean: gradient * fig.mean_wall_shear_per_gradient(),
+                wall_shear_max,
+                shear_limit,
+                shear_margin: shear_limit.map(|l| {
+                    if wall_shear_max > 0.0 {
+                        l / wall_shear_max
+                    } else {
+                        f64::INFINITY
+                    }
+                }),
+                entrance_length: dh * entrance_length_ratio(reynolds),
+                residence_time: fig.area * length / q.abs(),
+                power: dp * q,
             }
         })
         .collect();

@@ -20,19 +20,20 @@
 //!   c3: {from: tee, to: drain, section: feed, length: 8 mm}
 //! ```
 
+mod fluid_spec;
 mod locate;
 mod named;
 mod quantity;
 mod yaml_guard;
 
+pub use fluid_spec::{CellsSpec, FluidModel, FluidSpec, SuspensionKind};
 pub use locate::locate;
 pub use named::Named;
 pub use quantity::Q;
 
-use crate::fluid::Fluid;
 use crate::network::{Network, NetworkBuilder, NetworkError, Port, SectionId};
 use crate::section::Shape;
-use crate::units::{Density, Length, Pressure, Viscosity, VolumeFlow};
+use crate::units::{Length, Pressure, VolumeFlow};
 use serde::de::{self, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
 use std::fmt;
@@ -120,14 +121,9 @@ pub struct ChipFile {
     pub sections: Named<SectionSpec>,
     pub nodes: Named<NodeSpec>,
     pub channels: Named<ChannelSpec>,
-}
-
-/// `fluid:` — constant properties.
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct FluidSpec {
-    pub viscosity: Q<Viscosity>,
-    pub density: Q<Density>,
+    /// The chip's pressure rating (e.g. a bonded chip's burst limit, with a safety factor).
+    #[serde(default)]
+    pub pressure_rating: Option<Q<Pressure>>,
 }
 
 /// The shape kinds a section may name.
@@ -170,6 +166,9 @@ pub struct ChannelSpec {
     pub to: String,
     pub section: SectionRef,
     pub length: Q<Length>,
+    /// A stricter (or looser) wall-shear limit for this channel than the cells' own.
+    #[serde(default)]
+    pub shear_limit: Option<Q<Pressure>>,
 }
 
 /// A channel's section: the name of one in `sections:`, or a mapping given inline.
@@ -204,14 +203,14 @@ impl<'de> Deserialize<'de> for SectionRef {
 // ---------------------------------------------------------------------------------------
 
 /// A conversion problem at a key path, before it is located in the text.
-struct Misplaced {
+pub(crate) struct Misplaced {
     path: Vec<String>,
     /// The last key occurs twice; point at the second.
     repeated: bool,
     message: String,
 }
 
-fn at(path: &[&str], message: impl Into<String>) -> Misplaced {
+pub(crate) fn at(path: &[&str], message: impl Into<String>) -> Misplaced {
     Misplaced {
         path: path.iter().map(|s| s.to_string()).collect(),
         repeated: false,
@@ -291,15 +290,15 @@ impl SectionSpec {
 
 impl ChipFile {
     fn into_network(self) -> Result<Network, Misplaced> {
-        let fluid = Fluid {
-            viscosity: self.fluid.viscosity.0,
-            density: self.fluid.density.0,
-        };
-        fluid
-            .check()
-            .map_err(|(field, problem)| at(&["fluid", field], problem))?;
+        let (fluid, warnings) = self.fluid.to_fluid()?;
         let mut b =
             NetworkBuilder::new(fluid).with_capacity(self.nodes.0.len(), self.channels.0.len());
+        for w in warnings {
+            b.warn(w);
+        }
+        if let Some(rating) = self.pressure_rating {
+            b.pressure_rating(rating.0)?;
+        }
         if let Some(name) = &self.name {
             b.name(name.clone());
         }
@@ -332,7 +331,10 @@ impl ChipFile {
                     b.inline_section(name, shape)?
                 }
             };
-            b.add_channel(name, &spec.from, &spec.to, section, spec.length.0)?;
+            let id = b.add_channel(name, &spec.from, &spec.to, section, spec.length.0)?;
+            if let Some(limit) = spec.shear_limit {
+                b.channel_shear_limit(id, limit.0)?;
+            }
         }
         Ok(b.build()?)
     }

@@ -1,0 +1,186 @@
+//! The solve report as JSON (SI units in every key; names are a stable interface).
+
+use super::role;
+use crate::analysis::SteadyState;
+use crate::network::Network;
+use serde::Serialize;
+
+// ---------------------------------------------------------------------------------------
+// JSON
+// ---------------------------------------------------------------------------------------
+
+#[derive(Serialize)]
+struct JsonReport<'a> {
+    chip: Option<&'a str>,
+    units: &'static str,
+    fluid: JsonFluid,
+    max_relative_residual: f64,
+    /// The chip's pressure rating, null when none is given.
+    pressure_rating_pa: Option<f64>,
+    /// Limits exceeded and model notes, most serious first.
+    findings: Vec<JsonFinding>,
+    nodes: Vec<JsonNode<'a>>,
+    ports: Vec<JsonPort<'a>>,
+    channels: Vec<JsonChannel<'a>>,
+    sections: Vec<JsonSection<'a>>,
+}
+
+#[derive(Serialize)]
+struct JsonFluid {
+    viscosity_pa_s: f64,
+    density_kg_per_m3: f64,
+    shear_limit_pa: Option<f64>,
+}
+
+#[derive(Serialize)]
+struct JsonFinding {
+    /// "exceeded" (a limit is broken) or "note".
+    severity: &'static str,
+    message: String,
+}
+
+#[derive(Serialize)]
+struct JsonNode<'a> {
+    name: &'a str,
+    kind: &'static str,
+    pressure_pa: f64,
+}
+
+#[derive(Serialize)]
+struct JsonPort<'a> {
+    name: &'a str,
+    kind: &'static str,
+    /// Set pressure (pressure port) or required pressure (flow port).
+    pressure_pa: f64,
+    /// Set flow (flow port) or delivered flow (pressure port), positive into the chip.
+    flow_into_chip_m3_per_s: f64,
+}
+
+#[derive(Serialize)]
+struct JsonChannel<'a> {
+    name: &'a str,
+    from: &'a str,
+    to: &'a str,
+    section: &'a str,
+    length_m: f64,
+    flow_m3_per_s: f64,
+    pressure_drop_pa: f64,
+    resistance_pa_s_per_m3: f64,
+    mean_velocity_m_per_s: f64,
+    reynolds: f64,
+    wall_shear_mean_pa: f64,
+    wall_shear_max_pa: f64,
+    /// The limit that applies (channel's own, else the cells'); null when none.
+    shear_limit_pa: Option<f64>,
+    /// limit / maximum wall shear; null when there is no limit or no flow.
+    shear_margin: Option<f64>,
+    entrance_length_m: f64,
+    /// null when the channel carries no flow.
+    residence_time_s: Option<f64>,
+    power_w: f64,
+}
+
+#[derive(Serialize)]
+struct JsonSection<'a> {
+    name: &'a str,
+    shape: &'static str,
+    area_m2: f64,
+    perimeter_m: f64,
+    hydraulic_diameter_m: f64,
+    resistance_per_length_pa_s_per_m4: f64,
+    fre_fanning: f64,
+}
+
+/// The solve report as pretty JSON (SI).
+pub fn to_json(network: &Network, state: &SteadyState) -> String {
+    let sol = &state.solution;
+    let report = JsonReport {
+        chip: network.name.as_deref(),
+        units: "SI",
+        fluid: JsonFluid {
+            viscosity_pa_s: network.fluid.viscosity.si(),
+            density_kg_per_m3: network.fluid.density.si(),
+            shear_limit_pa: network.fluid.shear_limit.map(|p| p.si()),
+        },
+        max_relative_residual: sol.max_relative_residual,
+        pressure_rating_pa: network.pressure_rating.map(|p| p.si()),
+        findings: crate::analysis::findings(network, state)
+            .into_iter()
+            .map(|f| JsonFinding {
+                severity: match f.severity {
+                    crate::analysis::Severity::Exceeded => "exceeded",
+                    crate::analysis::Severity::Note => "note",
+                },
+                message: f.message,
+            })
+            .collect(),
+        nodes: network
+            .nodes
+            .iter()
+            .enumerate()
+            .map(|(i, n)| JsonNode {
+                name: &n.name,
+                kind: role(n.port),
+                pressure_pa: sol.pressures[i],
+            })
+            .collect(),
+        ports: network
+            .nodes
+            .iter()
+            .enumerate()
+            .filter_map(|(i, n)| {
+                state.port(network, i).map(|p| JsonPort {
+                    name: &n.name,
+                    kind: role(n.port),
+                    pressure_pa: p.pressure,
+                    flow_into_chip_m3_per_s: p.flow_into_chip,
+                })
+            })
+            .collect(),
+        channels: network
+            .channels
+            .iter()
+            .zip(&state.channels)
+            .map(|(c, s)| JsonChannel {
+                name: &c.name,
+                from: &network.nodes[c.from.0].name,
+                to: &network.nodes[c.to.0].name,
+                section: &network.sections[c.section.0].name,
+                length_m: c.length.si(),
+                flow_m3_per_s: s.flow,
+                pressure_drop_pa: s.pressure_drop,
+                resistance_pa_s_per_m3: s.resistance,
+                mean_velocity_m_per_s: s.mean_velocity,
+                reynolds: s.reynolds,
+                wall_shear_mean_pa: s.wall_shear_mean,
+                wall_shear_max_pa: s.wall_shear_max,
+                shear_limit_pa: s.shear_limit,
+                shear_margin: s.shear_margin.filter(|m| m.is_finite()),
+                entrance_length_m: s.entrance_length,
+                residence_time_s: Some(s.residence_time).filter(|t| t.is_finite()),
+                power_w: s.power,
+            })
+            .collect(),
+        sections: network
+            .sections
+            .iter()
+            .map(|s| JsonSection {
+                name: &s.name,
+                shape: s.shape.kind(),
+                area_m2: s.figures.area,
+                perimeter_m: s.figures.perimeter,
+                hydraulic_diameter_m: s.figures.hydraulic_diameter(),
+                resistance_per_length_pa_s_per_m4: s
+                    .figures
+                    .resistance_per_length(network.fluid.viscosity.si()),
+                fre_fanning: s.figures.f_re(),
+            })
+            .collect(),
+    };
+    // Serialising plain structs of strings and finite floats cannot fail; non-finite floats
+    // become null.
+    let mut out =
+        serde_json::to_string_pretty(&report).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}"));
+    out.push('\n');
+    out
+}

@@ -1,0 +1,332 @@
+//! Human-readable tables for the terminal.
+
+use super::{fmt_sig, CAUTION};
+use crate::analysis::SteadyState;
+use crate::network::{Network, Port};
+use crate::units::display;
+
+// ---------------------------------------------------------------------------------------
+// Terminal tables
+// ---------------------------------------------------------------------------------------
+
+/// A plain-text table: a header, a rule, and rows; text columns left-aligned, number
+/// columns right-aligned. Written by hand (not a table crate) because it must stay linear in
+/// size for chips with a million channels.
+struct TextTable {
+    header: Vec<String>,
+    first_numeric: usize,
+    rows: Vec<Vec<String>>,
+}
+
+impl TextTable {
+    /// A table whose columns from `first_numeric` on are right-aligned numbers.
+    fn new(header: &[&str], first_numeric: usize) -> Self {
+        TextTable {
+            header: header.iter().map(|h| h.to_string()).collect(),
+            first_numeric,
+            rows: Vec::new(),
+        }
+    }
+
+    fn add_row(&mut self, row: Vec<String>) {
+        self.rows.push(row);
+    }
+
+    fn render(&self, out: &mut String) {
+        let width = |s: &str| s.chars().count();
+        let mut widths: Vec<usize> = self.header.iter().map(|h| width(h)).collect();
+        for row in &self.rows {
+            for (w, cell) in widths.iter_mut().zip(row) {
+                *w = (*w).max(width(cell));
+            }
+        }
+        let line = |out: &mut String, cells: &[String]| {
+            for (i, (cell, w)) in cells.iter().zip(&widths).enumerate() {
+                let pad = w - width(cell);
+                if i > 0 {
+                    out.push_str("  ");
+                }
+                if i >= self.first_numeric {
+                    out.extend(std::iter::repeat_n(' ', pad));
+                    out.push_str(cell);
+                } else {
+                    out.push_str(cell);
+                    if i + 1 < cells.len() {
+                        out.extend(std::iter::repeat_n(' ', pad));
+                    }
+                }
+            }
+            out.push('\n');
+        };
+        out.push_str("  ");
+        line(out, &self.header);
+        let rule: Vec<String> = widths.iter().map(|w| "─".repeat(*w)).collect();
+        out.push_str("  ");
+        line(out, &rule);
+        for row in &self.rows {
+            out.push_str("  ");
+            line(out, row);
+        }
+    }
+}
+
+/// Human-readable report: ports, nodes, channels, residual, caution.
+pub fn to_table(network: &Network, state: &SteadyState) -> String {
+    let sol = &state.solution;
+    let mut out = String::new();
+    if let Some(name) = &network.name {
+        out.push_str(&format!("Chip: {name}\n"));
+    }
+    out.push_str(&format!(
+        "Fluid: viscosity {} mPa·s, density {} kg/m³\n\n",
+        fmt_sig(network.fluid.viscosity.si() * 1e3, 4),
+        fmt_sig(network.fluid.density.si(), 4)
+    ));
+
+    let mut ports = TextTable::new(
+        &[
+            "Port",
+            "Controlled by",
+            "Pressure [mbar]",
+            "Flow into chip [µL/min]",
+        ],
+        2,
+    );
+    for (i, n) in network.nodes.iter().enumerate() {
+        if let Some(p) = state.port(network, i) {
+            let (kind, p_txt, q_txt) = match n.port {
+                Port::Pressure(_) => (
+                    "pressure (set)",
+                    fmt_sig(display::mbar(p.pressure), 4),
+                    fmt_sig(display::ul_per_min(p.flow_into_chip), 4),
+                ),
+                _ => (
+                    "flow (set)",
+                    format!("{} needed", fmt_sig(display::mbar(p.pressure), 4)),
+                    fmt_sig(display::ul_per_min(p.flow_into_chip), 4),
+                ),
+            };
+            ports.add_row(vec![n.name.clone(), kind.to_string(), p_txt, q_txt]);
+        }
+    }
+    out.push_str("Ports\n");
+    ports.render(&mut out);
+
+    let junctions: Vec<usize> = (0..network.nodes.len())
+        .filter(|&i| matches!(network.nodes[i].port, Port::Junction))
+        .collect();
+    if !junctions.is_empty() {
+        let mut nodes = TextTable::new(&["Junction", "Pressure [mbar]"], 1);
+        for i in junctions {
+            nodes.add_row(vec![
+                network.nodes[i].name.clone(),
+                fmt_sig(display::mbar(sol.pressures[i]), 4),
+            ]);
+        }
+        out.push_str("\nJunctions\n");
+        nodes.render(&mut out);
+    }
+
+    let mut ch = TextTable::new(
+        &[
+            "Channel",
+            "Flow direction",
+            "Flow [µL/min]",
+            "ΔP [mbar]",
+            "R [mbar/(µL/min)]",
+            "Mean velocity [mm/s]",
+            "Re",
+        ],
+        2,
+    );
+    for (c, s) in network.channels.iter().zip(&state.channels) {
+        let (a, b) = (&network.nodes[c.from.0].name, &network.nodes[c.to.0].name);
+        let direction = if s.flow == 0.0 {
+            format!("{a} ─ {b} (no flow)")
+        } else if s.flow > 0.0 {
+            format!("{a} → {b}")
+        } else {
+            format!("{b} → {a}")
+        };
+        ch.add_row(vec![
+            c.name.clone(),
+            direction,
+            fmt_sig(display::ul_per_min(s.flow.abs()), 4),
+            fmt_sig(display::mbar(s.pressure_drop.abs()), 4),
+            // R in mbar per µL/min: Pa·s/m³ × (1 mbar/100 Pa) × (1 m³/s per 6e10 µL/min).
+            fmt_sig(s.resistance / 100.0 / 6.0e10, 4),
+            fmt_sig(display::mm_per_s(s.mean_velocity.abs()), 4),
+            fmt_sig(s.reynolds, 3),
+        ]);
+    }
+    out.push_str("\nChannels\n");
+    ch.render(&mut out);
+    out.push('\n');
+    shear_section(network, state, &mut out);
+    out.push_str(&format!(
+        "\nFlow balance: worst relative residual {:.1e} (limit {:.0e}) over {} nodes and {} channels.\n",
+        sol.max_relative_residual,
+        crate::analysis::RESIDUAL_LIMIT,
+        network.nodes.len(),
+        network.channels.len()
+    ));
+    findings_section(network, state, &mut out);
+    out
+}
+
+/// Channels in the order a cell biologist wants them: smallest shear margin first, then
+/// channels without a limit by decreasing maximum shear.
+fn worst_first(state: &SteadyState) -> Vec<usize> {
+    let mut order: Vec<usize> = (0..state.channels.len()).collect();
+    order.sort_by(|&a, &b| {
+        let (sa, sb) = (&state.channels[a], &state.channels[b]);
+        match (sa.shear_margin, sb.shear_margin) {
+            (Some(ma), Some(mb)) => ma.total_cmp(&mb),
+            (Some(_), None) => std::cmp::Ordering::Less,
+            (None, Some(_)) => std::cmp::Ordering::Greater,
+            (None, None) => sb.wall_shear_max.total_cmp(&sa.wall_shear_max),
+        }
+    });
+    order
+}
+
+/// Wall shear, margins and timing per channel, worst margin first.
+pub fn shear_section(network: &Network, state: &SteadyState, out: &mut String) {
+    let any_limit = state.channels.iter().any(|s| s.shear_limit.is_some());
+    let mut t = TextTable::new(
+        &[
+            "Channel",
+            "Status",
+            "τ mean [Pa]",
+            "τ max [Pa]",
+            "Limit [Pa]",
+            "Margin",
+            "Residence [s]",
+            "Entrance / length",
+        ],
+        2,
+    );
+    for k in worst_first(state) {
+        let (c, s) = (&network.channels[k], &state.channels[k]);
+        let status = match s.shear_margin {
+            Some(m) if m < 1.0 => "OVER LIMIT",
+            Some(_) => "ok",
+            None => "",
+        };
+        t.add_row(vec![
+            c.name.clone(),
+            status.to_string(),
+            fmt_sig(s.wall_shear_mean, 3),
+            fmt_sig(s.wall_shear_max, 3),
+            s.shear_limit
+                .map(|l| fmt_sig(l, 3))
+                .unwrap_or_else(|| "—".into()),
+            s.shear_margin
+                .map(|m| {
+                    if m.is_finite() {
+                        fmt_sig(m, 3)
+                    } else {
+                        "no flow".into()
+                    }
+                })
+                .unwrap_or_else(|| "—".into()),
+            if s.residence_time.is_finite() {
+                fmt_sig(s.residence_time, 3)
+            } else {
+                "no flow".into()
+            },
+            format!("{:.1} %", 100.0 * s.entrance_length / c.length.si()),
+        ]);
+    }
+    out.push_str(if any_limit {
+        "Wall shear stress (smallest margin first; margin = limit / maximum wall shear)\n"
+    } else {
+        "Wall shear stress (highest first; no shear limit set: add 'shear_limit' to fluid.cells or a channel)\n"
+    });
+    t.render(out);
+}
+
+/// Limits exceeded, notes, and the cautions that apply.
+pub fn findings_section(network: &Network, state: &SteadyState, out: &mut String) {
+    let found = crate::analysis::findings(network, state);
+    if !found.is_empty() {
+        out.push_str("\nFindings\n");
+        for f in &found {
+            let tag = match f.severity {
+                crate::analysis::Severity::Exceeded => "LIMIT EXCEEDED",
+                crate::analysis::Severity::Note => "note",
+            };
+            out.push_str(&format!("  [{tag}] {}\n", f.message));
+        }
+    }
+    out.push('\n');
+    out.push_str(CAUTION);
+    out.push('\n');
+    if state.channels.iter().any(|s| s.shear_limit.is_some()) {
+        out.push('\n');
+        out.push_str(SHEAR_CAUTION);
+        out.push('\n');
+    }
+    if network.pressure_rating.is_some() {
+        out.push('\n');
+        out.push_str(PRESSURE_CAUTION);
+        out.push('\n');
+    }
+}
+
+/// Caution printed whenever shear limits are evaluated.
+pub const SHEAR_CAUTION: &str =
+    "Shear limits: the tolerance of cells to wall shear stress varies with cell type, \
+exposure time, medium and attachment; a margin above 1 is not a guarantee of viability. Validate \
+viability experimentally, and handle biological samples under your institution's biosafety rules.";
+
+/// Caution printed whenever a pressure rating is checked.
+pub const PRESSURE_CAUTION: &str = "Pressure rating: bonded chips, ports and fittings can fail below their nominal rating \
+(defects, ageing, pressure spikes when valves close). Stay well inside it, shield pressurised setups, \
+and follow your lab's rules for pressurised equipment.";
+
+/// The `check` report: verdict, shear margins, pressures against the rating, findings.
+pub fn check_text(network: &Network, state: &SteadyState, passed: bool) -> String {
+    let mut out = String::new();
+    if let Some(name) = &network.name {
+        out.push_str(&format!("Chip: {name}\n"));
+    }
+    let limited = state
+        .channels
+        .iter()
+        .filter(|s| s.shear_limit.is_some())
+        .count();
+    out.push_str(&format!(
+        "Checked: wall shear of {limited} of {} channels against a limit; node pressures {}.\n",
+        state.channels.len(),
+        match network.pressure_rating {
+            Some(r) => format!(
+                "against the rating {} mbar",
+                fmt_sig(display::mbar(r.si()), 4)
+            ),
+            None => "not checked (no pressure_rating in the chip file)".to_string(),
+        }
+    ));
+    out.push_str(if passed {
+        "Verdict: PASS — no limit exceeded.\n\n"
+    } else {
+        "Verdict: FAIL — limits exceeded (see Findings).\n\n"
+    });
+    shear_section(network, state, &mut out);
+    if let Some(i) = state
+        .solution
+        .pressures
+        .iter()
+        .enumerate()
+        .max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))
+        .map(|(i, _)| i)
+    {
+        out.push_str(&format!(
+            "\nHighest pressure: {} mbar at node '{}'.\n",
+            fmt_sig(display::mbar(state.solution.pressures[i]), 4),
+            network.nodes[i].name
+        ));
+    }
+    findings_section(network, state, &mut out);
+    out
+}
