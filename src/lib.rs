@@ -21,6 +21,7 @@ pub mod fluid;
 pub mod format;
 pub mod network;
 pub mod output;
+pub mod plots;
 pub mod report;
 pub mod section;
 pub mod solver;
@@ -98,17 +99,38 @@ fn deliver(text: String, output: Option<&Path>, inputs: &[&Path]) -> Result<Stri
     }
 }
 
+/// Draw the shear-margin chart of a solved chip into a new picture file.
+fn margin_plot(
+    network: &network::Network,
+    state: &analysis::SteadyState,
+    path: &Path,
+    chip: &Path,
+) -> Result<(), Error> {
+    let chart = plots::MarginChart::new(network, state).ok_or_else(|| Error::Write {
+        path: path.to_path_buf(),
+        reason: "no channel has a wall-shear limit, so there is no margin to chart; add \
+                 'shear_limit' under fluid.cells or on a channel"
+            .into(),
+    })?;
+    plots::save(&chart, path, &[chip])
+}
+
 /// What the `solve` command needs.
 #[derive(Clone, Debug)]
 pub struct SolveRequest<'a> {
     pub chip: &'a Path,
     pub format: report::Format,
     pub output: Option<&'a Path>,
+    /// Draw the shear-margin chart to this new .svg/.png file.
+    pub plot: Option<&'a Path>,
 }
 
 /// Load, solve and render a chip. Returns the text to print (empty when written to a file).
 pub fn solve_command(req: &SolveRequest<'_>) -> Result<String, Error> {
     let (network, state) = load_and_solve(req.chip)?;
+    if let Some(path) = req.plot {
+        margin_plot(&network, &state, path, req.chip)?;
+    }
     deliver(
         report::render(&network, &state, req.format),
         req.output,
@@ -121,6 +143,8 @@ pub fn solve_command(req: &SolveRequest<'_>) -> Result<String, Error> {
 pub struct CheckRequest<'a> {
     pub chip: &'a Path,
     pub format: report::Format,
+    /// Draw the shear-margin chart to this new .svg/.png file.
+    pub plot: Option<&'a Path>,
 }
 
 /// The verdict of `check`: the report and whether every limit holds.
@@ -133,6 +157,9 @@ pub struct CheckOutcome {
 /// Solve a chip and check it against its shear limits and pressure rating.
 pub fn check_command(req: &CheckRequest<'_>) -> Result<CheckOutcome, Error> {
     let (network, state) = load_and_solve(req.chip)?;
+    if let Some(path) = req.plot {
+        margin_plot(&network, &state, path, req.chip)?;
+    }
     let passed = !analysis::findings(&network, &state)
         .iter()
         .any(|f| f.severity == analysis::Severity::Exceeded);

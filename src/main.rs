@@ -28,6 +28,9 @@ enum Command {
         /// Write to this new file instead of standard output (never overwrites).
         #[arg(long, short)]
         output: Option<PathBuf>,
+        /// Draw the wall-shear margin chart to this new .svg or .png file.
+        #[arg(long)]
+        plot: Option<PathBuf>,
     },
     /// Check a chip against its limits (cells' wall-shear limit, chip pressure rating);
     /// exits 1 when any limit is exceeded.
@@ -37,6 +40,9 @@ enum Command {
         /// Output format.
         #[arg(long, value_enum, default_value_t = OutFormat::Table)]
         format: OutFormat,
+        /// Draw the wall-shear margin chart to this new .svg or .png file.
+        #[arg(long)]
+        plot: Option<PathBuf>,
     },
 }
 
@@ -64,15 +70,18 @@ fn run(command: &Command) -> Result<(String, bool), rillnet::Error> {
             file,
             format,
             output,
+            plot,
         } => rillnet::solve_command(&rillnet::SolveRequest {
             chip: file,
             format: (*format).into(),
             output: output.as_deref(),
+            plot: plot.as_deref(),
         })
         .map(|text| (text, true)),
-        Command::Check { file, format } => rillnet::check_command(&rillnet::CheckRequest {
+        Command::Check { file, format, plot } => rillnet::check_command(&rillnet::CheckRequest {
             chip: file,
             format: (*format).into(),
+            plot: plot.as_deref(),
         })
         .map(|o| (o.text, o.passed)),
     }

@@ -45,6 +45,14 @@ pub fn write_new_file(path: &Path, contents: &[u8], protected: &[&Path]) -> Resu
         .tempfile_in(dir)
         .map_err(|e| fail(e.to_string()))?;
     tmp.write_all(contents).map_err(|e| fail(e.to_string()))?;
+    // Temporary files are created private (0600); a result file is an ordinary file.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        tmp.as_file()
+            .set_permissions(std::fs::Permissions::from_mode(0o644))
+            .map_err(|e| fail(e.to_string()))?;
+    }
     tmp.as_file().sync_all().map_err(|e| fail(e.to_string()))?;
     tmp.persist_noclobber(path).map_err(|e| {
         fail(if e.error.kind() == std::io::ErrorKind::AlreadyExists {

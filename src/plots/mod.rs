@@ -1,0 +1,133 @@
+//! Pictures of results, drawn with plotters into SVG or PNG (chosen by file extension).
+//!
+//! PNG text is rendered with DejaVu Sans embedded in the binary (assets/fonts, Bitstream Vera
+//! licence), so pictures render identically on a machine without system fonts. SVG text
+//! names the generic `sans-serif` family and is rendered by the viewer.
+//!
+//! Colours: the Okabe–Ito palette (Okabe & Ito 2008, "Color Universal Design"), which stays
+//! distinguishable for the common colour-vision deficiencies; the over-limit state is also
+//! marked by text, never by colour alone.
+
+mod margins;
+
+pub use margins::MarginChart;
+
+use crate::error::Error;
+use plotters::coord::Shift;
+use plotters::prelude::*;
+use std::path::Path;
+use std::sync::Once;
+
+/// Okabe–Ito blue: within limits.
+pub const OK_BLUE: RGBColor = RGBColor(0, 114, 178);
+/// Okabe–Ito vermillion: over a limit.
+pub const ALERT_VERMILLION: RGBColor = RGBColor(213, 94, 0);
+/// Neutral grey for axes and grid.
+pub const GRID_GREY: RGBColor = RGBColor(200, 200, 200);
+/// Text colour.
+pub const INK: RGBColor = RGBColor(30, 30, 30);
+
+/// The font family every figure uses.
+pub const FONT: &str = "sans-serif";
+
+static DEJAVU_SANS: &[u8] = include_bytes!("../../assets/fonts/DejaVuSans.ttf");
+static REGISTER: Once = Once::new();
+
+/// Make the embedded font available to the bitmap backend (once per process).
+fn register_font() {
+    REGISTER.call_once(|| {
+        // The bytes are a valid TrueType font shipped in the repository; a failure here
+        // would only mean PNG text is not drawn, which the tests would catch.
+        let _ = plotters::style::register_font(FONT, FontStyle::Normal, DEJAVU_SANS);
+    });
+}
+
+/// A figure that can draw itself on any plotters backend.
+pub trait Figure {
+    /// Pixel size (width, height).
+    fn size(&self) -> (u32, u32);
+    /// Draw onto `area` (already sized).
+    fn draw<DB: DrawingBackend>(&self, area: &DrawingArea<DB, Shift>) -> Result<(), String>;
+}
+
+/// Picture formats, by file extension.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum PictureFormat {
+    Svg,
+    Png,
+}
+
+impl PictureFormat {
+    /// `.svg` or `.png` (case-insensitive); anything else is refused with a hint.
+    pub fn from_path(path: &Path) -> Result<Self, Error> {
+        match path
+            .extension()
+            .and_then(|e| e.to_str())
+            .map(str::to_ascii_lowercase)
+            .as_deref()
+        {
+            Some("svg") => Ok(PictureFormat::Svg),
+            Some("png") => Ok(PictureFormat::Png),
+            _ => Err(Error::Write {
+                path: path.to_path_buf(),
+                reason: "a picture must end in .svg or .png".into(),
+            }),
+        }
+    }
+}
+
+/// Render a figure to bytes in the given format.
+pub fn render(figure: &impl Figure, format: PictureFormat) -> Result<Vec<u8>, String> {
+    let (w, h) = figure.size();
+    match format {
+        PictureFormat::Svg => {
+            let mut text = String::new();
+            {
+                let area = SVGBackend::with_string(&mut text, (w, h)).into_drawing_area();
+                figure.draw(&area)?;
+                area.present().map_err(|e| e.to_string())?;
+            }
+            Ok(text.into_bytes())
+        }
+        PictureFormat::Png => {
+            register_font();
+            let mut rgb = vec![0u8; (w as usize) * (h as usize) * 3];
+            {
+                let area = BitMapBackend::with_buffer(&mut rgb, (w, h)).into_drawing_area();
+                figure.draw(&area)?;
+                area.present().map_err(|e| e.to_string())?;
+            }
+            let mut out = Vec::new();
+            {
+                let mut enc = png::Encoder::new(&mut out, w, h);
+                enc.set_color(png::ColorType::Rgb);
+                enc.set_depth(png::BitDepth::Eight);
+                let mut writer = enc.write_header().map_err(|e| e.to_string())?;
+                writer.write_image_data(&rgb).map_err(|e| e.to_string())?;
+            }
+            Ok(out)
+        }
+    }
+}
+
+/// Render a figure into the new file `path` (never overwriting; `protected` are inputs).
+pub fn save(figure: &impl Figure, path: &Path, protected: &[&Path]) -> Result<(), Error> {
+    let format = PictureFormat::from_path(path)?;
+    let bytes = render(figure, format).map_err(|reason| Error::Write {
+        path: path.to_path_buf(),
+        reason: format!("drawing failed: {reason}"),
+    })?;
+    crate::output::write_new_file(path, &bytes, protected)
+}
+
+/// Text in the figures' font, anchored at its top-left corner.
+pub(crate) fn text_style(size: u32, color: RGBColor) -> TextStyle<'static> {
+    let mut style = TextStyle::from((FONT, size).into_font());
+    style.color = color.to_backend_color();
+    style
+}
+
+/// Map a drawing error to text.
+pub(crate) fn drawing<E: std::fmt::Display>(e: E) -> String {
+    e.to_string()
+}

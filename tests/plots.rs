@@ -1,0 +1,154 @@
+//! Pictures: well-formed SVG (parsed) and PNG (decoded), the expected marks and labels,
+//! byte-identical output for the same input, and text drawn without system fonts.
+
+use assert_cmd::Command;
+use std::path::Path;
+
+fn rillnet() -> Command {
+    Command::cargo_bin("rillnet").unwrap()
+}
+
+fn plot(args: &[&str], chip: &Path, out: &Path) -> std::process::Output {
+    rillnet()
+        .args(args)
+        .arg(chip)
+        .arg("--plot")
+        .arg(out)
+        .output()
+        .unwrap()
+}
+
+/// Colours of the filled rectangles in an SVG, by fill.
+fn rect_fills(svg: &str) -> Vec<String> {
+    let doc = roxmltree::Document::parse(svg).expect("well-formed SVG");
+    doc.descendants()
+        .filter(|n| n.has_tag_name("rect"))
+        .filter_map(|n| n.attribute("fill").map(str::to_string))
+        .collect()
+}
+
+fn texts(svg: &str) -> Vec<String> {
+    let doc = roxmltree::Document::parse(svg).expect("well-formed SVG");
+    doc.descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|n| n.text().map(|t| t.trim().to_string()))
+        .collect()
+}
+
+#[test]
+fn margin_chart_svg_has_one_bar_per_limited_channel() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("m.svg");
+    let res = plot(&["check"], Path::new("networks/tcell_sorter.yaml"), &out);
+    assert_eq!(res.status.code(), Some(1)); // the chip fails its check, the plot is still drawn
+    let svg = std::fs::read_to_string(&out).unwrap();
+    let fills = rect_fills(&svg);
+    // Okabe–Ito vermillion (#D55E00) for the one channel over its limit, blue for the 7 others.
+    assert_eq!(
+        fills
+            .iter()
+            .filter(|f| f.eq_ignore_ascii_case("#D55E00"))
+            .count(),
+        1
+    );
+    assert_eq!(
+        fills
+            .iter()
+            .filter(|f| f.eq_ignore_ascii_case("#0072B2"))
+            .count(),
+        7
+    );
+    let t = texts(&svg);
+    for name in ["pre_filter", "chamber_a", "collect", "limit (margin = 1)"] {
+        assert!(t.iter().any(|x| x == name), "{name} missing from {t:?}");
+    }
+    assert!(t.iter().any(|x| x.contains("OVER LIMIT")));
+    assert!(t.iter().any(|x| x.contains("T-cell capture chip")));
+    // Same input, same bytes.
+    let again = dir.path().join("m2.svg");
+    plot(&["check"], Path::new("networks/tcell_sorter.yaml"), &again);
+    assert_eq!(std::fs::read(&again).unwrap(), svg.as_bytes());
+}
+
+#[test]
+fn margin_chart_png_decodes_and_has_text() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("m.png");
+    plot(&["solve"], Path::new("networks/tcell_sorter.yaml"), &out);
+    let decoder = png::Decoder::new(std::io::BufReader::new(std::fs::File::open(&out).unwrap()));
+    let mut reader = decoder.read_info().unwrap();
+    let mut buf = vec![0; reader.output_buffer_size()];
+    let info = reader.next_frame(&mut buf).unwrap();
+    assert_eq!(info.width, 960);
+    assert_eq!(info.height, 70 + 64 + 22 * 8);
+    let px = |x: u32, y: u32| {
+        let i = ((y * info.width + x) * 3) as usize;
+        (buf[i], buf[i + 1], buf[i + 2])
+    };
+    // The title band (top 35 px, left half) holds dark text pixels: the embedded font rendered.
+    let dark = (0..35)
+        .flat_map(|y| (0..480).map(move |x| (x, y)))
+        .filter(|&(x, y)| {
+            let (r, g, b) = px(x, y);
+            (r as u32 + g as u32 + b as u32) < 200
+        })
+        .count();
+    assert!(dark > 200, "only {dark} dark pixels in the title band");
+    // And the over-limit bar's vermillion is present.
+    let vermillion = (0..info.height)
+        .flat_map(|y| (0..info.width).map(move |x| (x, y)))
+        .filter(|&(x, y)| px(x, y) == (213, 94, 0))
+        .count();
+    assert!(vermillion > 100);
+}
+
+#[test]
+fn margin_chart_stays_readable_with_many_channels() {
+    // 60 parallel channels with a limit: one row each, every name present.
+    let mut chip = String::from(
+        "name: wide manifold\nfluid: {viscosity: 1 mPa*s, density: 1000 kg/m^3, cells: {volume_fraction: 0.01, shear_limit: 0.5 Pa}}\n\
+         nodes:\n  in: {pressure: 20 mbar}\n  out: {pressure: 0 Pa}\nchannels:\n",
+    );
+    for i in 0..60 {
+        chip.push_str(&format!(
+            "  lane_{i:02}: {{from: in, to: out, section: {{shape: rectangle, width: {} um, height: 40 um}}, length: 10 mm}}\n",
+            40 + 5 * i
+        ));
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("wide.yaml");
+    std::fs::write(&p, chip).unwrap();
+    let out = dir.path().join("wide.svg");
+    plot(&["check"], &p, &out);
+    let svg = std::fs::read_to_string(&out).unwrap();
+    let t = texts(&svg);
+    for i in 0..60 {
+        let name = format!("lane_{i:02}");
+        assert!(t.contains(&name), "{name}");
+    }
+    let doc = roxmltree::Document::parse(&svg).unwrap();
+    let height: u32 = doc
+        .root_element()
+        .attribute("height")
+        .unwrap()
+        .parse()
+        .unwrap();
+    assert_eq!(height, 70 + 64 + 22 * 60);
+}
+
+#[test]
+fn margin_chart_needs_a_limit_and_a_picture_extension() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("m.svg");
+    let res = plot(&["solve"], Path::new("networks/reagent_mixer.yaml"), &out);
+    assert_eq!(res.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&res.stderr).contains("shear_limit"));
+    assert!(!out.exists());
+    let res = plot(
+        &["solve"],
+        Path::new("networks/tcell_sorter.yaml"),
+        &dir.path().join("m.jpg"),
+    );
+    assert_eq!(res.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&res.stderr).contains(".svg or .png"));
+}
