@@ -11,6 +11,7 @@
 //! - every value is SI.
 
 use crate::fluid::Fluid;
+use crate::section::numeric::NumericOptions;
 use crate::section::{GeometryKey, SectionFigures, Shape};
 use crate::units::{Length, Pressure, VolumeFlow};
 use petgraph::graph::UnGraph;
@@ -222,6 +223,7 @@ pub struct NetworkBuilder {
     channel_names: HashMap<String, ChannelId>,
     pressure_rating: Option<Pressure>,
     warnings: Vec<String>,
+    numeric: NumericOptions,
 }
 
 impl NetworkBuilder {
@@ -238,6 +240,7 @@ impl NetworkBuilder {
             channel_names: HashMap::default(),
             pressure_rating: None,
             warnings: Vec::new(),
+            numeric: NumericOptions::default(),
         }
     }
 
@@ -252,6 +255,12 @@ impl NetworkBuilder {
 
     pub fn name(&mut self, name: impl Into<String>) -> &mut Self {
         self.name = Some(name.into());
+        self
+    }
+
+    /// Accuracy of numerically solved sections added after this call.
+    pub fn numeric_options(&mut self, opts: NumericOptions) -> &mut Self {
+        self.numeric = opts;
         self
     }
 
@@ -343,11 +352,18 @@ impl NetworkBuilder {
         if let Some(&id) = self.shape_cache.get(&key) {
             return Ok(id);
         }
+        let (figures, _) =
+            shape
+                .figures_with(&self.numeric)
+                .map_err(|e| NetworkError::BadSection {
+                    section: name.to_string(),
+                    problem: e.to_string(),
+                })?;
         let id = SectionId(self.sections.len());
         self.sections.push(Section {
             name: name.to_string(),
             shape,
-            figures: shape.figures(),
+            figures,
         });
         self.shape_cache.insert(key, id);
         Ok(id)

@@ -24,15 +24,16 @@ mod fluid_spec;
 mod locate;
 mod named;
 mod quantity;
+mod section_spec;
 mod yaml_guard;
 
 pub use fluid_spec::{CellsSpec, FluidModel, FluidSpec, SuspensionKind};
 pub use locate::locate;
 pub use named::Named;
 pub use quantity::Q;
+pub use section_spec::{parse_profile_csv, FileReader, SectionSpec, ShapeKind};
 
 use crate::network::{Network, NetworkBuilder, NetworkError, Port, SectionId};
-use crate::section::Shape;
 use crate::units::{Length, Pressure, VolumeFlow};
 use serde::de::{self, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
@@ -124,28 +125,9 @@ pub struct ChipFile {
     /// The chip's pressure rating (e.g. a bonded chip's burst limit, with a safety factor).
     #[serde(default)]
     pub pressure_rating: Option<Q<Pressure>>,
-}
-
-/// The shape kinds a section may name.
-#[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq)]
-#[serde(rename_all = "lowercase")]
-pub enum ShapeKind {
-    Circle,
-    Rectangle,
-}
-
-/// A cross-section: `shape:` plus the dimensions that shape takes. Kept flat (not a serde
-/// tagged enum) so errors inside keep their line numbers.
-#[derive(Debug, Deserialize)]
-#[serde(deny_unknown_fields)]
-pub struct SectionSpec {
-    pub shape: ShapeKind,
+    /// Relative error target of numerically solved sections (default 1e-4).
     #[serde(default)]
-    pub diameter: Option<Q<Length>>,
-    #[serde(default)]
-    pub width: Option<Q<Length>>,
-    #[serde(default)]
-    pub height: Option<Q<Length>>,
+    pub section_tolerance: Option<f64>,
 }
 
 /// `nodes.NAME:` — a junction (`{}`), a pressure port or a flow port.
@@ -175,7 +157,7 @@ pub struct ChannelSpec {
 #[derive(Debug)]
 pub enum SectionRef {
     Named(String),
-    Inline(SectionSpec),
+    Inline(Box<SectionSpec>),
 }
 
 impl<'de> Deserialize<'de> for SectionRef {
@@ -191,7 +173,7 @@ impl<'de> Deserialize<'de> for SectionRef {
             }
             fn visit_map<A: MapAccess<'de>>(self, map: A) -> Result<SectionRef, A::Error> {
                 SectionSpec::deserialize(de::value::MapAccessDeserializer::new(map))
-                    .map(SectionRef::Inline)
+                    .map(|spec| SectionRef::Inline(Box::new(spec)))
             }
         }
         deserializer.deserialize_any(V)
@@ -229,67 +211,8 @@ impl From<NetworkError> for Misplaced {
     }
 }
 
-impl SectionSpec {
-    /// The domain shape, checking that exactly the dimensions of this kind are present.
-    fn to_shape(&self, path: &[&str]) -> Result<Shape, Misplaced> {
-        let given: [(&str, Option<Q<Length>>); 3] = [
-            ("diameter", self.diameter),
-            ("width", self.width),
-            ("height", self.height),
-        ];
-        let (kind, wanted): (&str, &[&str]) = match self.shape {
-            ShapeKind::Circle => ("circle", &["diameter"]),
-            ShapeKind::Rectangle => ("rectangle", &["width", "height"]),
-        };
-        for (field, value) in &given {
-            let mut p = path.to_vec();
-            p.push(field);
-            match (wanted.contains(field), value) {
-                (true, None) => {
-                    let mut p = path.to_vec();
-                    p.push("shape");
-                    return Err(at(
-                        &p,
-                        format!(
-                            "a {kind} needs '{field}' (a length such as '{}'); it takes: {}",
-                            crate::units::Dimension::Length.example(),
-                            wanted.join(", ")
-                        ),
-                    ));
-                }
-                (false, Some(_)) => {
-                    return Err(at(
-                        &p,
-                        format!(
-                            "a {kind} does not take '{field}'; it takes: {}",
-                            wanted.join(", ")
-                        ),
-                    ))
-                }
-                _ => {}
-            }
-        }
-        let get = |v: Option<Q<Length>>| v.map(|q| q.0).unwrap_or_default();
-        let shape = match self.shape {
-            ShapeKind::Circle => Shape::Circle {
-                diameter: get(self.diameter),
-            },
-            ShapeKind::Rectangle => Shape::Rectangle {
-                width: get(self.width),
-                height: get(self.height),
-            },
-        };
-        shape.check().map_err(|e| {
-            let mut p = path.to_vec();
-            p.push(e.field);
-            at(&p, e.problem)
-        })?;
-        Ok(shape)
-    }
-}
-
 impl ChipFile {
-    fn into_network(self) -> Result<Network, Misplaced> {
+    fn into_network(self, read: FileReader<'_>) -> Result<Network, Misplaced> {
         let (fluid, warnings) = self.fluid.to_fluid()?;
         let mut b =
             NetworkBuilder::new(fluid).with_capacity(self.nodes.0.len(), self.channels.0.len());
@@ -299,11 +222,24 @@ impl ChipFile {
         if let Some(rating) = self.pressure_rating {
             b.pressure_rating(rating.0)?;
         }
+        if let Some(tol) = self.section_tolerance {
+            if !(tol.is_finite() && tol > 0.0 && tol < 0.1) {
+                return Err(at(
+                    &["section_tolerance"],
+                    format!("must be a relative tolerance between 0 and 0.1, got {tol}"),
+                ));
+            }
+            b.numeric_options(crate::section::numeric::NumericOptions {
+                tolerance: tol,
+                shear_tolerance: (10.0 * tol).min(0.05),
+                ..Default::default()
+            });
+        }
         if let Some(name) = &self.name {
             b.name(name.clone());
         }
         for (name, spec) in &self.sections.0 {
-            let shape = spec.to_shape(&["sections", name])?;
+            let shape = spec.to_shape(&["sections", name], read)?;
             b.add_section(name, shape)?;
         }
         for (name, spec) in &self.nodes.0 {
@@ -327,7 +263,7 @@ impl ChipFile {
             let section: SectionId = match &spec.section {
                 SectionRef::Named(s) => b.section(name, s)?,
                 SectionRef::Inline(inline) => {
-                    let shape = inline.to_shape(&["channels", name, "section"])?;
+                    let shape = inline.to_shape(&["channels", name, "section"], read)?;
                     b.inline_section(name, shape)?
                 }
             };
@@ -352,7 +288,22 @@ fn strip_position(message: &str) -> String {
 }
 
 /// Parse chip-file text into a validated network. `origin` names the file in errors.
+/// Files named inside the chip (measured profiles) are refused; see [`parse_chip_with`].
 pub fn parse_chip(text: &str, origin: &str, syntax: Syntax) -> Result<Network, InputError> {
+    parse_chip_with(text, origin, syntax, &|name: &str| {
+        Err(format!(
+            "'{name}': this chip was not read from a file, so files it names cannot be found"
+        ))
+    })
+}
+
+/// Parse chip-file text; `read` returns the text of files the chip names (profiles).
+pub fn parse_chip_with(
+    text: &str,
+    origin: &str,
+    syntax: Syntax,
+    read: FileReader<'_>,
+) -> Result<Network, InputError> {
     if text.len() > MAX_FILE_BYTES {
         return Err(InputError::whole_file(
             origin,
@@ -406,7 +357,7 @@ pub fn parse_chip(text: &str, origin: &str, syntax: Syntax) -> Result<Network, I
             })?
         }
     };
-    file.into_network().map_err(|m| {
+    file.into_network(read).map_err(|m| {
         let mut parts: Vec<&str> = m.path.iter().map(String::as_str).collect();
         if m.repeated {
             if let Some(last) = parts.last().copied() {

@@ -1,0 +1,323 @@
+//! `sections.NAME:` and inline `section:` — a shape keyword plus the dimensions it takes.
+//!
+//! Kept flat (not a serde tagged enum) so errors inside keep their line numbers; which fields
+//! belong to which shape is checked here, with messages that list what the shape takes.
+
+use super::{at, Misplaced, Q};
+use crate::section::Shape;
+use crate::units::{Angle, Length};
+use serde::Deserialize;
+
+/// The shape kinds a section may name.
+#[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq)]
+#[serde(rename_all = "kebab-case")]
+pub enum ShapeKind {
+    Circle,
+    Rectangle,
+    Ellipse,
+    Annulus,
+    Plates,
+    Triangle,
+    Trapezoid,
+    DShape,
+    Semicircle,
+    RoundedRectangle,
+    Polygon,
+    Profile,
+}
+
+/// A cross-section as written in the chip file.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SectionSpec {
+    pub shape: Option<ShapeKind>,
+    #[serde(default)]
+    pub diameter: Option<Q<Length>>,
+    #[serde(default)]
+    pub width: Option<Q<Length>>,
+    #[serde(default)]
+    pub height: Option<Q<Length>>,
+    #[serde(default)]
+    pub outer_diameter: Option<Q<Length>>,
+    #[serde(default)]
+    pub inner_diameter: Option<Q<Length>>,
+    #[serde(default)]
+    pub gap: Option<Q<Length>>,
+    #[serde(default)]
+    pub side: Option<Q<Length>>,
+    #[serde(default)]
+    pub top: Option<Q<Length>>,
+    #[serde(default)]
+    pub bottom: Option<Q<Length>>,
+    #[serde(default)]
+    pub depth: Option<Q<Length>>,
+    /// Trapezoid sidewall angle from the lid plane (54.74 deg for KOH-etched Si(100)).
+    #[serde(default)]
+    pub sidewall: Option<Q<Angle>>,
+    #[serde(default)]
+    pub mask_width: Option<Q<Length>>,
+    #[serde(default)]
+    pub corner_radius: Option<Q<Length>>,
+    /// Polygon vertices, or profile (position, depth) pairs.
+    #[serde(default)]
+    pub points: Option<Vec<[Q<Length>; 2]>>,
+    /// Profile from a two-column CSV file (position, depth), relative to the chip file.
+    #[serde(default)]
+    pub file: Option<String>,
+    /// Unit of the numbers in `file` (default um).
+    #[serde(default)]
+    pub unit: Option<String>,
+}
+
+/// Reads a file named in the chip file; returns its text or a message.
+pub type FileReader<'a> = &'a dyn Fn(&str) -> Result<String, String>;
+
+/// Which fields a shape uses, for checks and "it takes" messages.
+fn takes(kind: ShapeKind) -> &'static [&'static str] {
+    match kind {
+        ShapeKind::Circle | ShapeKind::Semicircle => &["diameter"],
+        ShapeKind::Rectangle | ShapeKind::Ellipse => &["width", "height"],
+        ShapeKind::Annulus => &["outer_diameter", "inner_diameter"],
+        ShapeKind::Plates => &["gap", "width"],
+        ShapeKind::Triangle => &["side"],
+        ShapeKind::Trapezoid => &["top", "depth", "bottom or sidewall"],
+        ShapeKind::DShape => &["mask_width", "depth"],
+        ShapeKind::RoundedRectangle => &["width", "height", "corner_radius"],
+        ShapeKind::Polygon => &["points"],
+        ShapeKind::Profile => &["points or file (+ unit)"],
+    }
+}
+
+fn kind_name(kind: ShapeKind) -> &'static str {
+    match kind {
+        ShapeKind::Circle => "circle",
+        ShapeKind::Rectangle => "rectangle",
+        ShapeKind::Ellipse => "ellipse",
+        ShapeKind::Annulus => "annulus",
+        ShapeKind::Plates => "plates",
+        ShapeKind::Triangle => "triangle",
+        ShapeKind::Trapezoid => "trapezoid",
+        ShapeKind::DShape => "d-shape",
+        ShapeKind::Semicircle => "semicircle",
+        ShapeKind::RoundedRectangle => "rounded-rectangle",
+        ShapeKind::Polygon => "polygon",
+        ShapeKind::Profile => "profile",
+    }
+}
+
+/// Parse a profilometer export: two numeric columns (position, depth) separated by comma,
+/// semicolon, tab or spaces; header and `#` comment lines skipped. `scale` converts to metres.
+pub fn parse_profile_csv(text: &str, scale: f64) -> Result<Vec<[Length; 2]>, String> {
+    let mut points = Vec::new();
+    for (i, line) in text.lines().enumerate() {
+        let line = line.trim();
+        if line.is_empty() || line.starts_with('#') {
+            continue;
+        }
+        let cols: Vec<&str> = line
+            .split([',', ';', '\t', ' '])
+            .filter(|c| !c.is_empty())
+            .collect();
+        let nums: Vec<Option<f64>> = cols.iter().map(|c| c.parse::<f64>().ok()).collect();
+        match nums.as_slice() {
+            [Some(x), Some(d), ..] => {
+                points.push([Length::from_si(x * scale), Length::from_si(d * scale)])
+            }
+            _ if points.is_empty() => continue, // header line(s)
+            _ => {
+                return Err(format!(
+                    "line {}: expected two numbers (position, depth), found '{line}'",
+                    i + 1
+                ))
+            }
+        }
+    }
+    if points.len() < 2 {
+        return Err("fewer than two (position, depth) rows".into());
+    }
+    Ok(points)
+}
+
+impl SectionSpec {
+    /// The domain shape, checking that exactly the dimensions of this kind are present.
+    pub(super) fn to_shape(&self, path: &[&str], read: FileReader<'_>) -> Result<Shape, Misplaced> {
+        let place = |field: &str| {
+            let mut p = path.to_vec();
+            p.push(field);
+            p.into_iter().map(str::to_string).collect::<Vec<_>>()
+        };
+        let err = |field: &str, msg: String| Misplaced {
+            path: place(field),
+            repeated: false,
+            message: msg,
+        };
+        let Some(kind) = self.shape else {
+            return Err(at(path, "a section needs 'shape' (circle, rectangle, ellipse, annulus, plates, triangle, trapezoid, d-shape, semicircle, rounded-rectangle, polygon or profile)"));
+        };
+        let name = kind_name(kind);
+        let it_takes = takes(kind).join(", ");
+        let lengths: [(&str, Option<Q<Length>>); 13] = [
+            ("diameter", self.diameter),
+            ("width", self.width),
+            ("height", self.height),
+            ("outer_diameter", self.outer_diameter),
+            ("inner_diameter", self.inner_diameter),
+            ("gap", self.gap),
+            ("side", self.side),
+            ("top", self.top),
+            ("bottom", self.bottom),
+            ("depth", self.depth),
+            ("mask_width", self.mask_width),
+            ("corner_radius", self.corner_radius),
+            (
+                "sidewall",
+                self.sidewall.map(|a| Q(Length::from_si(a.0.si()))),
+            ),
+        ];
+        let mut used: Vec<&str> = Vec::new();
+        let mut need = |field: &'static str| -> Result<Length, Misplaced> {
+            used.push(field);
+            lengths
+                .iter()
+                .find(|(f, _)| *f == field)
+                .and_then(|(_, v)| *v)
+                .map(|q| q.0)
+                .ok_or_else(|| {
+                    err(
+                        "shape",
+                        format!("a {name} needs '{field}'; it takes: {it_takes}"),
+                    )
+                })
+        };
+        let shape = match kind {
+            ShapeKind::Circle => Shape::Circle {
+                diameter: need("diameter")?,
+            },
+            ShapeKind::Semicircle => Shape::Semicircle {
+                diameter: need("diameter")?,
+            },
+            ShapeKind::Rectangle => Shape::Rectangle {
+                width: need("width")?,
+                height: need("height")?,
+            },
+            ShapeKind::Ellipse => Shape::Ellipse {
+                width: need("width")?,
+                height: need("height")?,
+            },
+            ShapeKind::Annulus => Shape::Annulus {
+                outer_diameter: need("outer_diameter")?,
+                inner_diameter: need("inner_diameter")?,
+            },
+            ShapeKind::Plates => Shape::Plates {
+                gap: need("gap")?,
+                width: need("width")?,
+            },
+            ShapeKind::Triangle => Shape::Triangle {
+                side: need("side")?,
+            },
+            ShapeKind::DShape => Shape::DShape {
+                mask_width: need("mask_width")?,
+                depth: need("depth")?,
+            },
+            ShapeKind::RoundedRectangle => Shape::RoundedRectangle {
+                width: need("width")?,
+                height: need("height")?,
+                corner_radius: need("corner_radius")?,
+            },
+            ShapeKind::Trapezoid => {
+                let top = need("top")?;
+                let depth = need("depth")?;
+                let bottom = match (self.bottom, self.sidewall) {
+                    (Some(b), None) => need("bottom").map(|_| b.0)?,
+                    (None, Some(angle)) => {
+                        used.push("sidewall");
+                        let a = angle.0.si();
+                        if !(a > 0.0 && a <= std::f64::consts::FRAC_PI_2 + 1e-12) {
+                            return Err(err("sidewall", format!(
+                                "the sidewall angle from the lid must be in (0, 90] deg, got {} deg",
+                                a.to_degrees()
+                            )));
+                        }
+                        let b = top.si() - 2.0 * depth.si() / a.tan();
+                        if b <= 0.0 {
+                            return Err(err("depth", format!(
+                                "with top {} um and sidewalls at {:.2} deg the walls meet at {} um depth; \
+                                 a trapezoid needs a depth below that (or it is a triangle: use shape: polygon)",
+                                top.si() * 1e6, a.to_degrees(), top.si() / 2.0 * a.tan() * 1e6
+                            )));
+                        }
+                        Length::from_si(b)
+                    }
+                    (Some(_), Some(_)) => {
+                        return Err(err(
+                            "sidewall",
+                            "give either 'bottom' or 'sidewall', not both".into(),
+                        ))
+                    }
+                    (None, None) => {
+                        return Err(err(
+                            "shape",
+                            format!(
+                                "a trapezoid needs 'bottom' or 'sidewall'; it takes: {it_takes}"
+                            ),
+                        ))
+                    }
+                };
+                Shape::Trapezoid { top, bottom, depth }
+            }
+            ShapeKind::Polygon => {
+                let Some(points) = &self.points else {
+                    return Err(err("shape", "a polygon needs 'points', e.g. [[0 um, 0 um], [100 um, 0 um], [50 um, -40 um]]".into()));
+                };
+                Shape::Polygon {
+                    points: points.iter().map(|p| [p[0].0, p[1].0]).collect(),
+                }
+            }
+            ShapeKind::Profile => {
+                let points = match (&self.points, &self.file) {
+                    (Some(p), None) => p.iter().map(|p| [p[0].0, p[1].0]).collect(),
+                    (None, Some(f)) => {
+                        let unit = self.unit.as_deref().unwrap_or("um");
+                        let scale = crate::units::parse_si(&format!("1 {unit}"), crate::units::Dimension::Length)
+                            .map_err(|e| err("unit", format!("{e}")))?;
+                        let text = read(f).map_err(|e| err("file", format!("cannot read profile '{f}': {e}")))?;
+                        parse_profile_csv(&text, scale).map_err(|e| err("file", format!("profile '{f}': {e}")))?
+                    }
+                    (Some(_), Some(_)) => return Err(err("file", "give either 'points' or 'file', not both".into())),
+                    (None, None) => return Err(err("shape", "a profile needs 'points' ((position, depth) pairs) or 'file' (a two-column CSV)".into())),
+                };
+                Shape::Profile { points }
+            }
+        };
+        // Anything given that this shape does not use is a mistake worth stopping for.
+        let list_fields: [(&str, bool); 3] = [
+            (
+                "points",
+                self.points.is_some() && !matches!(kind, ShapeKind::Polygon | ShapeKind::Profile),
+            ),
+            ("file", self.file.is_some() && kind != ShapeKind::Profile),
+            (
+                "unit",
+                self.unit.is_some() && (kind != ShapeKind::Profile || self.file.is_none()),
+            ),
+        ];
+        for (field, value) in &lengths {
+            if value.is_some() && !used.contains(field) {
+                return Err(err(
+                    field,
+                    format!("a {name} does not take '{field}'; it takes: {it_takes}"),
+                ));
+            }
+        }
+        for (field, wrong) in list_fields {
+            if wrong {
+                return Err(err(
+                    field,
+                    format!("a {name} does not take '{field}'; it takes: {it_takes}"),
+                ));
+            }
+        }
+        shape.check().map_err(|e| err(e.field, e.problem))?;
+        Ok(shape)
+    }
+}
