@@ -71,10 +71,16 @@ pub fn load_chip(path: &Path) -> Result<network::Network, Error> {
             ),
         )
     })?;
-    Ok(format::parse_chip(
+    // Files the chip names (measured profiles) are found beside the chip file.
+    let base = path.parent().unwrap_or(Path::new(".")).to_path_buf();
+    let read = move |name: &str| -> Result<String, String> {
+        std::fs::read_to_string(base.join(name)).map_err(|e| e.to_string())
+    };
+    Ok(format::parse_chip_with(
         &text,
         &origin,
         format::Syntax::from_path(path),
+        &read,
     )?)
 }
 
@@ -168,4 +174,92 @@ pub fn check_command(req: &CheckRequest<'_>) -> Result<CheckOutcome, Error> {
         other => report::render(&network, &state, other),
     };
     Ok(CheckOutcome { text, passed })
+}
+
+/// What the `section` command needs: a shape given inline, or a named section of a chip.
+#[derive(Clone, Debug, Default)]
+pub struct SectionRequest<'a> {
+    /// Inline mapping in the chip-file syntax.
+    pub spec: Option<&'a str>,
+    /// Chip file and section name (a `sections:` entry, or `CHANNEL.section` for an inline one).
+    pub chip: Option<&'a Path>,
+    pub name: Option<&'a str>,
+    /// Viscosity for the resistance (default: the chip's fluid, else water at 20 °C).
+    pub viscosity: Option<units::Viscosity>,
+    /// Relative error target for numerical shapes (default 1e-4).
+    pub tolerance: Option<f64>,
+    pub json: bool,
+    pub plot: Option<&'a Path>,
+}
+
+/// Compute and render one cross-section's figures (and picture).
+pub fn section_command(req: &SectionRequest<'_>) -> Result<String, Error> {
+    let usage = |msg: &str| Error::Input(format::InputError::whole_file("section", msg));
+    let (shape, chip_viscosity, label) = match (req.spec, req.chip, req.name) {
+        (Some(spec), None, None) => {
+            let read = |name: &str| std::fs::read_to_string(name).map_err(|e| e.to_string());
+            (
+                format::parse_section_spec(spec, "section spec", &read)?,
+                None,
+                "inline section".to_string(),
+            )
+        }
+        (None, Some(chip), Some(name)) => {
+            let net = load_chip(chip)?;
+            let s = net.sections.iter().find(|s| s.name == name).ok_or_else(|| {
+                let names: Vec<&str> = net.sections.iter().map(|s| s.name.as_str()).collect();
+                Error::Input(format::InputError::whole_file(
+                    &chip.display().to_string(),
+                    format!("no section named '{name}'; the chip has: {}", names.join(", ")),
+                ))
+            })?;
+            (s.shape.clone(), Some(net.fluid.viscosity), format!("section '{name}' of {}", chip.display()))
+        }
+        _ => {
+            return Err(usage(
+                "give either a section mapping, e.g. '{shape: circle, diameter: 100 um}', or --file CHIP --name SECTION",
+            ))
+        }
+    };
+    let mut opts = section::numeric::NumericOptions::default();
+    if let Some(t) = req.tolerance {
+        if !(t.is_finite() && t > 0.0 && t < 0.1) {
+            return Err(usage(
+                "--tolerance must be a relative error between 0 and 0.1",
+            ));
+        }
+        opts.tolerance = t;
+        opts.shear_tolerance = (10.0 * t).min(0.05);
+    }
+    let mu = req
+        .viscosity
+        .or(chip_viscosity)
+        .unwrap_or(fluid::Fluid::WATER_20C.viscosity);
+    let started = std::time::Instant::now();
+    let (figures, numeric) = shape
+        .figures_with(&opts)
+        .map_err(|e| usage(&format!("{}: {e}", shape.kind())))?;
+    let seconds = started.elapsed().as_secs_f64();
+    if let Some(path) = req.plot {
+        let sol = match &numeric {
+            Some(sol) => sol.clone(),
+            None => shape
+                .solve_numeric(&opts)
+                .map_err(|e| usage(&format!("{}: {e}", shape.kind())))?,
+        };
+        let picture = plots::SectionPicture {
+            title: format!("{} — {}", shape.kind(), label),
+            solution: &sol,
+        };
+        let protected: Vec<&Path> = req.chip.into_iter().collect();
+        plots::save(&picture, path, &protected)?;
+    }
+    Ok(report::section_report(
+        &shape,
+        &figures,
+        numeric.as_ref(),
+        mu.si(),
+        seconds,
+        req.json,
+    ))
 }

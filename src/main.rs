@@ -44,6 +44,32 @@ enum Command {
         #[arg(long)]
         plot: Option<PathBuf>,
     },
+    /// Figures of one cross-section: area, perimeter, hydraulic diameter, resistance per
+    /// length, f·Re, mean and maximum wall shear per unit gradient, error estimate.
+    Section {
+        /// The section as a mapping in chip-file syntax, e.g.
+        /// '{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}'.
+        spec: Option<String>,
+        /// Take the section from this chip file (with --name).
+        #[arg(long, requires = "name")]
+        file: Option<PathBuf>,
+        /// Name of the section in the chip file (CHANNEL.section for an inline one).
+        #[arg(long, requires = "file")]
+        name: Option<String>,
+        /// Viscosity for the resistance, e.g. '1.0 mPa*s' (default: the chip's fluid, or
+        /// water at 20 °C).
+        #[arg(long)]
+        viscosity: Option<String>,
+        /// Relative error target for numerical shapes.
+        #[arg(long)]
+        tolerance: Option<f64>,
+        /// Output format (table or json).
+        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
+        format: OutFormat,
+        /// Draw the velocity field and the wall shear to this new .svg or .png file.
+        #[arg(long)]
+        plot: Option<PathBuf>,
+    },
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -78,6 +104,35 @@ fn run(command: &Command) -> Result<(String, bool), rillnet::Error> {
             plot: plot.as_deref(),
         })
         .map(|text| (text, true)),
+        Command::Section {
+            spec,
+            file,
+            name,
+            viscosity,
+            tolerance,
+            format,
+            plot,
+        } => {
+            let viscosity = match viscosity {
+                Some(v) => Some(v.parse::<rillnet::units::Viscosity>().map_err(|e| {
+                    rillnet::Error::Input(rillnet::format::InputError::whole_file(
+                        "--viscosity",
+                        e.to_string(),
+                    ))
+                })?),
+                None => None,
+            };
+            rillnet::section_command(&rillnet::SectionRequest {
+                spec: spec.as_deref(),
+                chip: file.as_deref(),
+                name: name.as_deref(),
+                viscosity,
+                tolerance: *tolerance,
+                json: matches!(format, OutFormat::Json),
+                plot: plot.as_deref(),
+            })
+            .map(|text| (text, true))
+        }
         Command::Check { file, format, plot } => rillnet::check_command(&rillnet::CheckRequest {
             chip: file,
             format: (*format).into(),

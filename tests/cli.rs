@@ -621,3 +621,122 @@ fn fluid_models_in_the_chip_file() {
     assert!(out.status.success());
     assert!(String::from_utf8_lossy(&out.stdout).contains("dilute range"));
 }
+
+#[test]
+fn section_command_reports_figures_in_json() {
+    // Equilateral triangle: f·Re = 40/3 and τ_max/G = a√3/8 (closed forms, Shah & London 1978).
+    let out = rillnet()
+        .args([
+            "section",
+            "{shape: triangle, side: 100 um}",
+            "--format",
+            "json",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    for key in [
+        "area_m2",
+        "perimeter_m",
+        "hydraulic_diameter_m",
+        "resistance_per_length_pa_s_per_m4",
+        "fre_fanning",
+        "max_wall_shear_per_gradient_m",
+        "mean_wall_shear_per_gradient_m",
+        "relative_error_estimate",
+    ] {
+        assert!(v[key].is_number(), "{key}");
+    }
+    assert!((v["fre_fanning"].as_f64().unwrap() - 40.0 / 3.0).abs() < 1e-12);
+    assert!(
+        (v["max_wall_shear_per_gradient_m"].as_f64().unwrap() - 100e-6 * 3f64.sqrt() / 8.0).abs()
+            < 1e-15
+    );
+
+    // The KOH trapezoid of the issue: numerical, with an error estimate below 1e-4.
+    let out = rillnet()
+        .args([
+            "section",
+            "{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}",
+            "--format",
+            "json",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert!(v["relative_error_estimate"].as_f64().unwrap() < 1e-4);
+    // Bottom width 120 − 2·40/tan(54.74°) = 63.43 µm; area = (120 + 63.43)/2·40 µm².
+    let bottom = 120.0 - 80.0 / 54.74f64.to_radians().tan();
+    let area = (120.0 + bottom) / 2.0 * 40.0 * 1e-12;
+    assert!((v["area_m2"].as_f64().unwrap() - area).abs() < 1e-6 * area);
+    // Force balance check reported: mean wall shear per gradient = A/P.
+    let ap = v["area_m2"].as_f64().unwrap() / v["perimeter_m"].as_f64().unwrap();
+    assert!((v["mean_wall_shear_per_gradient_m"].as_f64().unwrap() - ap).abs() < 1e-12 * ap);
+}
+
+#[test]
+fn section_command_from_a_chip_and_its_errors() {
+    let out = rillnet()
+        .args([
+            "section",
+            "--file",
+            "networks/koh_silicon_splitter.yaml",
+            "--name",
+            "outlet_measured",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(String::from_utf8_lossy(&out.stdout).contains("profile"));
+    for (args, needle) in [
+        (vec!["section", "{shape: trapezoid, top: 120 um, depth: 100 um, sidewall: 54.74 deg}"], "walls meet"),
+        (vec!["section", "{shape: circle, width: 1 mm}"], "does not take 'width'"),
+        (vec!["section", "{shape: hexagon}"], "hexagon"),
+        (vec!["section", "{shape: polygon, points: [[0 um, 0 um], [1 um, 1 um]]}"], "at least 3 points"),
+        (vec!["section", "{shape: polygon, points: [[0 um, 0 um], [10 um, 10 um], [10 um, 0 um], [0 um, 10 um]]}"], "crosses itself"),
+        (vec!["section", "{shape: profile, points: [[0 um, 5 um], [0 um, 6 um]]}"], "increase"),
+        (vec!["section", "{shape: circle, diameter: 3 mbar}"], "a pressure"),
+        (vec!["section", "--file", "networks/koh_silicon_splitter.yaml", "--name", "nope"], "no section named 'nope'"),
+        (vec!["section"], "give either"),
+    ] {
+        let out = rillnet().args(&args).output().unwrap();
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{args:?}: {err}");
+        assert!(err.contains(needle), "{args:?}: '{needle}' missing from {err}");
+    }
+}
+
+#[test]
+fn trapezoid_chip_solves_end_to_end() {
+    let v = json_of(Path::new("networks/koh_silicon_splitter.yaml"));
+    let sections = v["sections"].as_array().unwrap();
+    let koh = sections.iter().find(|s| s["name"] == "koh_feed").unwrap();
+    assert_eq!(koh["shape"], "trapezoid");
+    // Shah & London (1978) trapezoidal ducts: f·Re lies between the triangle's 13.3 and the
+    // parallel plates' 24 for these aspect ratios; this one is wide and shallow-sided.
+    let fre = koh["fre_fanning"].as_f64().unwrap();
+    assert!(fre > 13.0 && fre < 24.0, "{fre}");
+    // Flow splits inversely to the branch resistances, and the junctions balance.
+    let ch = v["channels"].as_array().unwrap();
+    let q = |n: &str| {
+        ch.iter().find(|c| c["name"] == n).unwrap()["flow_m3_per_s"]
+            .as_f64()
+            .unwrap()
+    };
+    assert!((q("feed") - q("branch_left") - q("branch_right")).abs() < 1e-12 * q("feed"));
+    assert!(q("branch_right") > q("branch_left")); // the shorter branch takes more
+}

@@ -152,3 +152,59 @@ fn margin_chart_needs_a_limit_and_a_picture_extension() {
     assert_eq!(res.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&res.stderr).contains(".svg or .png"));
 }
+
+#[test]
+fn section_picture_svg_and_png() {
+    let dir = tempfile::tempdir().unwrap();
+    let svg_path = dir.path().join("d.svg");
+    let out = rillnet()
+        .args([
+            "section",
+            "{shape: d-shape, mask_width: 50 um, depth: 30 um}",
+            "--plot",
+        ])
+        .arg(&svg_path)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let svg = std::fs::read_to_string(&svg_path).unwrap();
+    let doc = roxmltree::Document::parse(&svg).expect("well-formed SVG");
+    // The field is drawn as filled sub-triangles (four per quadratic element).
+    let polygons = doc
+        .descendants()
+        .filter(|n| n.has_tag_name("polygon"))
+        .count();
+    assert!(polygons > 400 && polygons % 4 == 0, "{polygons} polygons");
+    let t = texts(&svg);
+    for label in [
+        "u / U_mean",
+        "d-shape — inline section",
+        "distance along the wall [µm]",
+        "τ / G [µm]",
+    ] {
+        assert!(t.iter().any(|x| x == label), "{label} missing");
+    }
+    let png_path = dir.path().join("d.png");
+    let out = rillnet()
+        .args(["section", "{shape: semicircle, diameter: 100 um}", "--plot"])
+        .arg(&png_path)
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+    let decoder = png::Decoder::new(std::io::BufReader::new(
+        std::fs::File::open(&png_path).unwrap(),
+    ));
+    let reader = decoder.read_info().unwrap();
+    assert_eq!((reader.info().width, reader.info().height), (900, 720));
+    // An analytic shape is solved numerically for its picture as well.
+    let out = rillnet()
+        .args(["section", "{shape: circle, diameter: 100 um}", "--plot"])
+        .arg(dir.path().join("c.svg"))
+        .output()
+        .unwrap();
+    assert!(out.status.success());
+}

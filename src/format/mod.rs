@@ -276,6 +276,43 @@ impl ChipFile {
     }
 }
 
+/// Parse one section mapping in the chip-file syntax (`{shape: trapezoid, top: 120 um, ...}`).
+pub fn parse_section_spec(
+    text: &str,
+    origin: &str,
+    read: FileReader<'_>,
+) -> Result<crate::section::Shape, InputError> {
+    if let Err(x) = yaml_guard::check(text) {
+        return Err(InputError {
+            origin: origin.to_string(),
+            line: Some(x.line),
+            column: Some(x.column),
+            field: None,
+            message: "YAML aliases here would expand enormously; refused".into(),
+        });
+    }
+    let spec: SectionSpec = serde_yaml::from_str(text).map_err(|e| {
+        let loc = e.location();
+        InputError {
+            origin: origin.to_string(),
+            line: loc.as_ref().map(|l| l.line()),
+            column: loc.as_ref().map(|l| l.column()),
+            field: None,
+            message: format!(
+                "{} (expected a mapping such as '{{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}}')",
+                strip_position(&e.to_string())
+            ),
+        }
+    })?;
+    spec.to_shape(&[], read).map_err(|m| InputError {
+        origin: origin.to_string(),
+        line: None,
+        column: None,
+        field: Some(m.path.join(".")).filter(|p| !p.is_empty()),
+        message: m.message,
+    })
+}
+
 /// Largest chip file accepted (bytes). A 10⁶-channel file is about 80 MB of YAML.
 pub const MAX_FILE_BYTES: usize = 1 << 30;
 

@@ -88,6 +88,15 @@ fn takes(kind: ShapeKind) -> &'static [&'static str] {
     }
 }
 
+/// Every field a shape may carry (alternatives included).
+fn allowed(kind: ShapeKind) -> &'static [&'static str] {
+    match kind {
+        ShapeKind::Trapezoid => &["top", "depth", "bottom", "sidewall"],
+        ShapeKind::Profile => &["points", "file", "unit"],
+        other => takes(other),
+    }
+}
+
 fn kind_name(kind: ShapeKind) -> &'static str {
     match kind {
         ShapeKind::Circle => "circle",
@@ -174,6 +183,22 @@ impl SectionSpec {
                 self.sidewall.map(|a| Q(Length::from_si(a.0.si()))),
             ),
         ];
+        // Fields this shape never takes are reported first: the likeliest mistake.
+        let present = lengths
+            .iter()
+            .filter(|(_, v)| v.is_some())
+            .map(|(f, _)| *f)
+            .chain(self.points.as_ref().map(|_| "points"))
+            .chain(self.file.as_ref().map(|_| "file"))
+            .chain(self.unit.as_ref().map(|_| "unit"));
+        for field in present {
+            if !allowed(kind).contains(&field) {
+                return Err(err(
+                    field,
+                    format!("a {name} does not take '{field}'; it takes: {it_takes}"),
+                ));
+            }
+        }
         let mut used: Vec<&str> = Vec::new();
         let mut need = |field: &'static str| -> Result<Length, Misplaced> {
             used.push(field);

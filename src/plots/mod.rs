@@ -9,8 +9,10 @@
 //! marked by text, never by colour alone.
 
 mod margins;
+mod section_field;
 
 pub use margins::MarginChart;
+pub use section_field::SectionPicture;
 
 use crate::error::Error;
 use plotters::coord::Shift;
@@ -79,6 +81,8 @@ impl PictureFormat {
 /// Render a figure to bytes in the given format.
 pub fn render(figure: &impl Figure, format: PictureFormat) -> Result<Vec<u8>, String> {
     let (w, h) = figure.size();
+    // Both backends measure text with the font (chart layout), so it is registered for SVG too.
+    register_font();
     match format {
         PictureFormat::Svg => {
             let mut text = String::new();
@@ -90,7 +94,6 @@ pub fn render(figure: &impl Figure, format: PictureFormat) -> Result<Vec<u8>, St
             Ok(text.into_bytes())
         }
         PictureFormat::Png => {
-            register_font();
             let mut rgb = vec![0u8; (w as usize) * (h as usize) * 3];
             {
                 let area = BitMapBackend::with_buffer(&mut rgb, (w, h)).into_drawing_area();

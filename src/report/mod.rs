@@ -5,10 +5,12 @@
 
 mod csv;
 mod json;
+mod section;
 mod text;
 
 pub use csv::to_csv;
 pub use json::to_json;
+pub use section::section_report;
 pub use text::{check_text, to_table};
 
 use crate::analysis::SteadyState;

@@ -1,0 +1,150 @@
+//! The `section` command's report: one cross-section's figures.
+
+use super::fmt_sig;
+use crate::section::numeric::NumericSection;
+use crate::section::{SectionFigures, Shape};
+use serde::Serialize;
+
+#[derive(Serialize)]
+struct JsonSection {
+    shape: &'static str,
+    method: &'static str,
+    viscosity_pa_s: f64,
+    area_m2: f64,
+    perimeter_m: f64,
+    hydraulic_diameter_m: f64,
+    conductance_factor_m4: f64,
+    resistance_per_length_pa_s_per_m4: f64,
+    fre_fanning: f64,
+    max_wall_shear_per_gradient_m: f64,
+    max_wall_shear_at_m: Option<[f64; 2]>,
+    mean_wall_shear_per_gradient_m: f64,
+    relative_error_estimate: f64,
+    shear_error_estimate: Option<f64>,
+    mesh_nodes: Option<usize>,
+    seconds: f64,
+}
+
+/// Render one section's figures as a table or JSON.
+pub fn section_report(
+    shape: &Shape,
+    f: &SectionFigures,
+    numeric: Option<&NumericSection>,
+    viscosity: f64,
+    seconds: f64,
+    json: bool,
+) -> String {
+    if json {
+        let j = JsonSection {
+            shape: shape.kind(),
+            method: if numeric.is_some() {
+                "numerical (P2 finite elements)"
+            } else {
+                "closed form"
+            },
+            viscosity_pa_s: viscosity,
+            area_m2: f.area,
+            perimeter_m: f.perimeter,
+            hydraulic_diameter_m: f.hydraulic_diameter(),
+            conductance_factor_m4: f.conductance_factor,
+            resistance_per_length_pa_s_per_m4: f.resistance_per_length(viscosity),
+            fre_fanning: f.f_re(),
+            max_wall_shear_per_gradient_m: f.max_wall_shear_per_gradient,
+            max_wall_shear_at_m: numeric.map(|n| n.max_shear_at),
+            mean_wall_shear_per_gradient_m: f.mean_wall_shear_per_gradient(),
+            relative_error_estimate: f.relative_error_estimate,
+            shear_error_estimate: numeric
+                .map(|n| n.shear_error_estimate)
+                .filter(|e| e.is_finite()),
+            mesh_nodes: numeric.map(|n| n.field.nodes.len()),
+            seconds,
+        };
+        let mut s = serde_json::to_string_pretty(&j).unwrap_or_default();
+        s.push('\n');
+        return s;
+    }
+    let um = |m: f64| fmt_sig(m * 1e6, 5);
+    let mut out = String::new();
+    out.push_str(&format!(
+        "Section: {} ({})\n",
+        shape.kind(),
+        if numeric.is_some() {
+            "numerical: quadratic finite elements"
+        } else {
+            "closed form"
+        }
+    ));
+    let rows: Vec<(&str, String)> = vec![
+        ("area", format!("{} µm²", fmt_sig(f.area * 1e12, 6))),
+        ("wetted perimeter", format!("{} µm", um(f.perimeter))),
+        (
+            "hydraulic diameter",
+            format!("{} µm", um(f.hydraulic_diameter())),
+        ),
+        (
+            "conductance factor K (Q = K·G/μ)",
+            format!("{} µm⁴", fmt_sig(f.conductance_factor * 1e24, 6)),
+        ),
+        (
+            "resistance per length",
+            format!(
+                "{} Pa·s/m⁴ (μ = {} mPa·s) = {} mbar/(µL/min) per mm",
+                fmt_sig(f.resistance_per_length(viscosity), 6),
+                fmt_sig(viscosity * 1e3, 4),
+                fmt_sig(
+                    f.resistance_per_length(viscosity) * 1e-3 / 100.0 / 6.0e10,
+                    4
+                )
+            ),
+        ),
+        ("f·Re (Fanning)", fmt_sig(f.f_re(), 6)),
+        (
+            "mean wall shear / G = A/P",
+            format!("{} µm", um(f.mean_wall_shear_per_gradient())),
+        ),
+        (
+            "maximum wall shear / G",
+            match numeric {
+                Some(n) => format!(
+                    "{} µm at ({}, {}) µm",
+                    um(f.max_wall_shear_per_gradient),
+                    fmt_sig(n.max_shear_at[0] * 1e6, 4),
+                    fmt_sig(n.max_shear_at[1] * 1e6, 4)
+                ),
+                None => format!("{} µm", um(f.max_wall_shear_per_gradient)),
+            },
+        ),
+        (
+            "relative error estimate (K)",
+            if numeric.is_some() {
+                format!("{:.1e}", f.relative_error_estimate)
+            } else {
+                "0 (exact)".into()
+            },
+        ),
+    ];
+    let mut rows = rows;
+    if let Some(n) = numeric {
+        rows.push((
+            "relative change of max shear",
+            format!("{:.1e}", n.shear_error_estimate),
+        ));
+        rows.push((
+            "mesh",
+            format!(
+                "{} nodes, {} refinements",
+                n.field.nodes.len(),
+                n.refinements
+            ),
+        ));
+    }
+    rows.push(("time", format!("{:.1} ms", seconds * 1e3)));
+    let width = rows.iter().map(|r| r.0.chars().count()).max().unwrap_or(0);
+    for (k, v) in rows {
+        out.push_str(&format!("  {k:<width$}  {v}\n"));
+    }
+    out.push_str(
+        "\nG is the pressure drop per length; multiply by G for stresses, by G/μ for velocities.\n",
+    );
+    out
+}
