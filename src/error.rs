@@ -20,6 +20,11 @@ pub enum Error {
     Write { path: PathBuf, reason: String },
     #[error("{}: {source}", origin)]
     Solve { origin: String, source: SolveError },
+    #[error("{}: {source}", origin)]
+    Design {
+        origin: String,
+        source: crate::analysis::design::DesignError,
+    },
 }
 
 impl Error {
@@ -28,6 +33,10 @@ impl Error {
         match self {
             Error::Input(_) | Error::Read { .. } | Error::Write { .. } => 2,
             Error::Solve { .. } => 1,
+            Error::Design { source, .. } => match source {
+                crate::analysis::design::DesignError::Solve(_) => 1,
+                _ => 2,
+            },
         }
     }
 }

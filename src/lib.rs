@@ -129,6 +129,8 @@ pub struct SolveRequest<'a> {
     pub output: Option<&'a Path>,
     /// Draw the shear-margin chart to this new .svg/.png file.
     pub plot: Option<&'a Path>,
+    /// Add d(flow)/d(width, height, length) of the target channels.
+    pub sensitivity: bool,
 }
 
 /// Load, solve and render a chip. Returns the text to print (empty when written to a file).
@@ -137,11 +139,22 @@ pub fn solve_command(req: &SolveRequest<'_>) -> Result<String, Error> {
     if let Some(path) = req.plot {
         margin_plot(&network, &state, path, req.chip)?;
     }
-    deliver(
-        report::render(&network, &state, req.format),
-        req.output,
-        &[req.chip],
-    )
+    let mut text = report::render(&network, &state, req.format);
+    if req.sensitivity {
+        let json = req.format == report::Format::Json;
+        let sens = sensitivity_text(req.chip, json)?;
+        if json {
+            // One JSON document: the solution and the sensitivities side by side.
+            text = format!(
+                "{{\n\"solution\": {},\n\"sensitivities\": {}}}\n",
+                text.trim_end(),
+                sens.trim_end()
+            );
+        } else {
+            text.push_str(&sens);
+        }
+    }
+    deliver(text, req.output, &[req.chip])
 }
 
 /// What the `check` command needs.
@@ -262,4 +275,164 @@ pub fn section_command(req: &SectionRequest<'_>) -> Result<String, Error> {
         seconds,
         req.json,
     ))
+}
+
+/// Read a chip file's text (for rewriting it into a tuned or sized copy).
+fn chip_text(path: &Path) -> Result<String, Error> {
+    std::fs::read_to_string(path).map_err(|source| Error::Read {
+        path: path.to_path_buf(),
+        source,
+    })
+}
+
+/// Quote a value for the chip file's syntax.
+fn value_literal(path: &Path, text: &str) -> String {
+    match format::Syntax::from_path(path) {
+        format::Syntax::Json => format!("\"{text}\""),
+        format::Syntax::Yaml => text.to_string(),
+    }
+}
+
+fn rewrite_failed(chip: &Path, what: &str) -> Error {
+    Error::Write {
+        path: chip.to_path_buf(),
+        reason: format!(
+            "cannot rewrite {what} in a copy of the chip: write that entry in flow style \
+             ({{key: value, ...}} on one line) so rillnet can change its value in place"
+        ),
+    }
+}
+
+/// What `tune` and `size` need.
+#[derive(Clone, Debug)]
+pub struct DesignRequest<'a> {
+    pub chip: &'a Path,
+    pub json: bool,
+    /// Write the tuned/sized chip to this new file.
+    pub output: Option<&'a Path>,
+    /// Serpentine straight run and centre-line pitch for long sized lengths [m].
+    pub run: f64,
+    pub pitch: f64,
+}
+
+/// Tune the adjustable ports of a chip to its targets.
+pub fn tune_command(req: &DesignRequest<'_>) -> Result<String, Error> {
+    let net = load_chip(req.chip)?;
+    let origin = req.chip.display().to_string();
+    let r = analysis::design::tune(&net, &net.design).map_err(|source| Error::Design {
+        origin: origin.clone(),
+        source,
+    })?;
+    if let Some(out) = req.output {
+        let mut text = chip_text(req.chip)?;
+        for s in &r.settings {
+            let node = &net.nodes[s.node.0];
+            let (key, value) = match node.port {
+                network::Port::Flow(_) => (
+                    "flow",
+                    format!("{} uL/min", units::display::ul_per_min(s.after)),
+                ),
+                _ => (
+                    "pressure",
+                    format!("{} mbar", units::display::mbar(s.after)),
+                ),
+            };
+            text = format::replace_value(
+                &text,
+                &["nodes", &node.name, key],
+                &value_literal(req.chip, &value),
+            )
+            .ok_or_else(|| rewrite_failed(req.chip, &format!("nodes.{}.{key}", node.name)))?;
+        }
+        output::write_new_file(out, text.as_bytes(), &[req.chip])?;
+    }
+    Ok(report::tune_report(&net, &r, req.json))
+}
+
+/// Inline section text for a closed-form shape, in the chip file's syntax.
+fn section_literal(path: &Path, shape: &section::Shape) -> Option<String> {
+    let um = |l: &units::Length| format!("{} um", l.si() * 1e6);
+    let fields: Vec<(&str, String)> = match shape {
+        section::Shape::Circle { diameter } => vec![("diameter", um(diameter))],
+        section::Shape::Rectangle { width, height } | section::Shape::Ellipse { width, height } => {
+            vec![("width", um(width)), ("height", um(height))]
+        }
+        section::Shape::Plates { gap, width } => vec![("gap", um(gap)), ("width", um(width))],
+        _ => return None,
+    };
+    Some(match format::Syntax::from_path(path) {
+        format::Syntax::Json => format!(
+            "{{\"shape\": \"{}\", {}}}",
+            shape.kind(),
+            fields
+                .iter()
+                .map(|(k, v)| format!("\"{k}\": \"{v}\""))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+        format::Syntax::Yaml => format!(
+            "{{shape: {}, {}}}",
+            shape.kind(),
+            fields
+                .iter()
+                .map(|(k, v)| format!("{k}: {v}"))
+                .collect::<Vec<_>>()
+                .join(", ")
+        ),
+    })
+}
+
+/// Size the free channel dimensions of a chip to its targets.
+pub fn size_command(req: &DesignRequest<'_>) -> Result<String, Error> {
+    let net = load_chip(req.chip)?;
+    let origin = req.chip.display().to_string();
+    let r = analysis::design::size(&net, &net.design).map_err(|source| Error::Design {
+        origin: origin.clone(),
+        source,
+    })?;
+    if let Some(out) = req.output {
+        let mut text = chip_text(req.chip)?;
+        for s in &r.sizes {
+            let ch = &r.network.channels[s.var.channel.0];
+            let (key, value) = match s.var.dim {
+                analysis::design::SizeDim::Length => (
+                    "length",
+                    value_literal(req.chip, &format!("{} mm", s.after * 1e3)),
+                ),
+                analysis::design::SizeDim::Width => (
+                    "section",
+                    section_literal(req.chip, &r.network.sections[ch.section.0].shape)
+                        .ok_or_else(|| rewrite_failed(req.chip, "a section"))?,
+                ),
+            };
+            text = format::replace_value(&text, &["channels", &ch.name, key], &value)
+                .ok_or_else(|| rewrite_failed(req.chip, &format!("channels.{}.{key}", ch.name)))?;
+        }
+        output::write_new_file(out, text.as_bytes(), &[req.chip])?;
+    }
+    Ok(report::size_report(&net, &r, req.run, req.pitch, req.json))
+}
+
+/// Sensitivity table of a chip's target channels (or every channel if it has no flow targets).
+pub fn sensitivity_text(chip: &Path, json: bool) -> Result<String, Error> {
+    let net = load_chip(chip)?;
+    let mut targets: Vec<network::ChannelId> = Vec::new();
+    for t in &net.design.targets {
+        match &t.kind {
+            analysis::design::TargetKind::ChannelFlow { channel, .. } => targets.push(*channel),
+            analysis::design::TargetKind::Split { channels, .. } => {
+                targets.extend(channels.iter().copied())
+            }
+            analysis::design::TargetKind::NodePressure { .. } => {}
+        }
+    }
+    if targets.is_empty() {
+        targets = (0..net.channels.len()).map(network::ChannelId).collect();
+    }
+    targets.dedup();
+    let s = analysis::design::sensitivities(&net, &targets).map_err(|source| Error::Solve {
+        origin: chip.display().to_string(),
+        source,
+    })?;
+    Ok(report::sensitivity_report(&net, &s, json))
 }

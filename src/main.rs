@@ -31,6 +31,38 @@ enum Command {
         /// Draw the wall-shear margin chart to this new .svg or .png file.
         #[arg(long)]
         plot: Option<PathBuf>,
+        /// Also print d(flow)/d(width, height, length) for the target channels (all channels
+        /// when the chip has no flow targets).
+        #[arg(long)]
+        sensitivity: bool,
+    },
+    /// Tune the adjustable ports (pressure controllers, syringe pumps) to meet the chip's targets.
+    Tune {
+        /// Chip file with 'targets:' and ports marked 'adjust: {min: ..., max: ...}'.
+        file: PathBuf,
+        /// Output format (table or json).
+        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
+        format: OutFormat,
+        /// Write the tuned chip to this new file.
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+    },
+    /// Size channel lengths/widths (marked 'size:') to meet the chip's targets, drives fixed.
+    Size {
+        /// Chip file with 'targets:' and channels marked 'size: {length: {min: ..., max: ...}}'.
+        file: PathBuf,
+        /// Output format (table or json).
+        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
+        format: OutFormat,
+        /// Write the sized chip to this new file.
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+        /// Straight run of a serpentine for long channels, e.g. '10 mm'.
+        #[arg(long, default_value = "10 mm")]
+        run: String,
+        /// Centre-line pitch of the serpentine, e.g. '400 um'.
+        #[arg(long, default_value = "400 um")]
+        pitch: String,
     },
     /// Check a chip against its limits (cells' wall-shear limit, chip pressure rating);
     /// exits 1 when any limit is exceeded.
@@ -97,13 +129,41 @@ fn run(command: &Command) -> Result<(String, bool), rillnet::Error> {
             format,
             output,
             plot,
+            sensitivity,
         } => rillnet::solve_command(&rillnet::SolveRequest {
             chip: file,
             format: (*format).into(),
             output: output.as_deref(),
             plot: plot.as_deref(),
+            sensitivity: *sensitivity,
         })
         .map(|text| (text, true)),
+        Command::Tune {
+            file,
+            format,
+            output,
+        } => rillnet::tune_command(&design_request(
+            file,
+            *format,
+            output.as_deref(),
+            "10 mm",
+            "400 um",
+        )?)
+        .map(|t| (t, true)),
+        Command::Size {
+            file,
+            format,
+            output,
+            run,
+            pitch,
+        } => rillnet::size_command(&design_request(
+            file,
+            *format,
+            output.as_deref(),
+            run,
+            pitch,
+        )?)
+        .map(|t| (t, true)),
         Command::Section {
             spec,
             file,
@@ -140,6 +200,30 @@ fn run(command: &Command) -> Result<(String, bool), rillnet::Error> {
         })
         .map(|o| (o.text, o.passed)),
     }
+}
+
+fn length_arg(flag: &str, text: &str) -> Result<f64, rillnet::Error> {
+    text.parse::<rillnet::units::Length>()
+        .map(|l| l.si())
+        .map_err(|e| {
+            rillnet::Error::Input(rillnet::format::InputError::whole_file(flag, e.to_string()))
+        })
+}
+
+fn design_request<'a>(
+    file: &'a std::path::Path,
+    format: OutFormat,
+    output: Option<&'a std::path::Path>,
+    run: &str,
+    pitch: &str,
+) -> Result<rillnet::DesignRequest<'a>, rillnet::Error> {
+    Ok(rillnet::DesignRequest {
+        chip: file,
+        json: matches!(format, OutFormat::Json),
+        output,
+        run: length_arg("--run", run)?,
+        pitch: length_arg("--pitch", pitch)?,
+    })
 }
 
 fn main() -> ExitCode {

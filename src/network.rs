@@ -81,6 +81,8 @@ pub struct Network {
     pub pressure_rating: Option<Pressure>,
     /// Notes from the models (e.g. a fluid correlation used outside its range).
     pub warnings: Vec<String>,
+    /// Targets, adjustable ports and free channel dimensions for the design commands.
+    pub design: crate::analysis::design::Design,
     graph: UnGraph<NodeId, ChannelId>,
 }
 
@@ -491,6 +493,7 @@ impl NetworkBuilder {
             channels: self.channels,
             pressure_rating: self.pressure_rating,
             warnings: self.warnings,
+            design: Default::default(),
             graph,
         })
     }

@@ -132,18 +132,25 @@ impl KirchhoffSystem {
 
     /// Right-hand side: pump injections plus the pull of known port pressures.
     pub fn rhs(&self, network: &Network, g: &[f64]) -> Vec<f64> {
+        self.rhs_for(network, g, &drive_values(network))
+    }
+
+    /// Right-hand side for other drive settings: `drives[i]` is the pressure of pressure
+    /// port i or the injected flow of flow port i (ignored at junctions). The matrix does not
+    /// depend on the drives, so one factorisation serves every setting.
+    pub fn rhs_for(&self, network: &Network, g: &[f64], drives: &[f64]) -> Vec<f64> {
         let mut b = vec![0.0; self.dim()];
-        for (node, u) in network.nodes.iter().zip(&self.unknown_of) {
-            if let (Port::Flow(q), Some(u)) = (node.port, u) {
-                b[*u] += q.si();
+        for ((node, u), d) in network.nodes.iter().zip(&self.unknown_of).zip(drives) {
+            if let (Port::Flow(_), Some(u)) = (node.port, u) {
+                b[*u] += d;
             }
         }
         for (c, &gk) in network.channels.iter().zip(g) {
             let a = self.unknown_of[c.from.0];
             let bb = self.unknown_of[c.to.0];
             match (a, bb) {
-                (Some(a), None) => b[a] += gk * port_pressure(network, c.to.0),
-                (None, Some(bb)) => b[bb] += gk * port_pressure(network, c.from.0),
+                (Some(a), None) => b[a] += gk * drives[c.to.0],
+                (None, Some(bb)) => b[bb] += gk * drives[c.from.0],
                 _ => {}
             }
         }
@@ -152,22 +159,39 @@ impl KirchhoffSystem {
 
     /// Expand the unknowns `x` into a pressure for every node.
     pub fn node_pressures(&self, network: &Network, x: &[f64]) -> Vec<f64> {
+        self.node_pressures_for(x, &drive_values(network))
+    }
+
+    /// Expand the unknowns into node pressures, with port pressures from `drives`.
+    pub fn node_pressures_for(&self, x: &[f64], drives: &[f64]) -> Vec<f64> {
         self.unknown_of
             .iter()
-            .enumerate()
-            .map(|(i, u)| match u {
+            .zip(drives)
+            .map(|(u, d)| match u {
                 Some(u) => x[*u],
-                None => port_pressure(network, i),
+                None => *d,
             })
             .collect()
     }
+
+    /// The unknown index of a node (None for pressure ports).
+    pub fn unknown(&self, node: usize) -> Option<usize> {
+        self.unknown_of[node]
+    }
 }
 
-fn port_pressure(network: &Network, node: usize) -> f64 {
-    match network.nodes[node].port {
-        Port::Pressure(p) => p.si(),
-        _ => 0.0,
-    }
+/// Each node's drive value: pressure of a pressure port, injected flow of a flow port, 0 at a
+/// junction (SI).
+pub fn drive_values(network: &Network) -> Vec<f64> {
+    network
+        .nodes
+        .iter()
+        .map(|n| match n.port {
+            Port::Pressure(p) => p.si(),
+            Port::Flow(q) => q.si(),
+            Port::Junction => 0.0,
+        })
+        .collect()
 }
 
 /// Channel conductances g = 1/R [m³/(Pa·s)].

@@ -4,6 +4,8 @@
 //! per channel (pressure drop, resistance, mean velocity, Reynolds number) and per port (the
 //! flow a pressure port delivers, the pressure a pump must produce).
 
+pub mod boxqp;
+pub mod design;
 pub mod kirchhoff;
 pub mod limits;
 

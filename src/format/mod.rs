@@ -20,6 +20,7 @@
 //!   c3: {from: tee, to: drain, section: feed, length: 8 mm}
 //! ```
 
+mod design_spec;
 mod fluid_spec;
 mod locate;
 mod named;
@@ -27,8 +28,9 @@ mod quantity;
 mod section_spec;
 mod yaml_guard;
 
+pub use design_spec::{AdjustSpec, BoundSpec, RawQuantity, SizeSpec, TargetSpec};
 pub use fluid_spec::{CellsSpec, FluidModel, FluidSpec, SuspensionKind};
-pub use locate::locate;
+pub use locate::{locate, locate_offset, replace_value};
 pub use named::Named;
 pub use quantity::Q;
 pub use section_spec::{parse_profile_csv, FileReader, SectionSpec, ShapeKind};
@@ -128,6 +130,9 @@ pub struct ChipFile {
     /// Relative error target of numerically solved sections (default 1e-4).
     #[serde(default)]
     pub section_tolerance: Option<f64>,
+    /// Design targets for `rillnet tune` and `rillnet size`.
+    #[serde(default)]
+    pub targets: Vec<TargetSpec>,
 }
 
 /// `nodes.NAME:` — a junction (`{}`), a pressure port or a flow port.
@@ -138,6 +143,9 @@ pub struct NodeSpec {
     pub pressure: Option<Q<Pressure>>,
     #[serde(default)]
     pub flow: Option<Q<VolumeFlow>>,
+    /// The port's setting may be changed by `rillnet tune` within these bounds.
+    #[serde(default)]
+    pub adjust: Option<AdjustSpec>,
 }
 
 /// `channels.NAME:`.
@@ -151,6 +159,9 @@ pub struct ChannelSpec {
     /// A stricter (or looser) wall-shear limit for this channel than the cells' own.
     #[serde(default)]
     pub shear_limit: Option<Q<Pressure>>,
+    /// Dimensions `rillnet size` may change.
+    #[serde(default)]
+    pub size: Option<SizeSpec>,
 }
 
 /// A channel's section: the name of one in `sections:`, or a mapping given inline.
@@ -272,7 +283,21 @@ impl ChipFile {
                 b.channel_shear_limit(id, limit.0)?;
             }
         }
-        Ok(b.build()?)
+        let mut net = b.build()?;
+        let adjust: Vec<(String, &AdjustSpec)> = self
+            .nodes
+            .0
+            .iter()
+            .filter_map(|(n, s)| s.adjust.as_ref().map(|a| (n.clone(), a)))
+            .collect();
+        let sizes: Vec<(String, &SizeSpec)> = self
+            .channels
+            .0
+            .iter()
+            .filter_map(|(n, s)| s.size.as_ref().map(|z| (n.clone(), z)))
+            .collect();
+        net.design = design_spec::to_design(&net, &self.targets, &adjust, &sizes)?;
+        Ok(net)
     }
 }
 

@@ -4,11 +4,13 @@
 //! stable interface for scripts. Tables use the units designers read: mbar, µL/min, mm/s.
 
 mod csv;
+mod design;
 mod json;
 mod section;
 mod text;
 
 pub use csv::to_csv;
+pub use design::{sensitivity_report, size_report, tune_report};
 pub use json::to_json;
 pub use section::section_report;
 pub use text::{check_text, to_table};

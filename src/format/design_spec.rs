@@ -1,0 +1,208 @@
+//! `targets:`, `adjust:` on ports and `size:` on channels — the design problem in the chip
+//! file, converted into [`crate::analysis::design::Design`].
+
+use super::{at, Misplaced, Q};
+use crate::analysis::design::{Adjustable, Design, SizeDim, SizeVar, Target, TargetKind};
+use crate::network::{ChannelId, Network, NodeId, Port};
+use crate::units::{parse_si, Dimension, Length, Pressure, VolumeFlow};
+use serde::de::{self, Deserializer, Visitor};
+use serde::Deserialize;
+use std::fmt;
+
+/// A quantity whose dimension is known only after conversion (a port's bound is a pressure
+/// or a flow depending on the port).
+#[derive(Clone, Debug, PartialEq)]
+pub struct RawQuantity(pub String);
+
+impl<'de> Deserialize<'de> for RawQuantity {
+    fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
+        struct V;
+        impl Visitor<'_> for V {
+            type Value = RawQuantity;
+            fn expecting(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
+                f.write_str("a value with a unit, e.g. '200 mbar' or '5 uL/min'")
+            }
+            fn visit_str<E: de::Error>(self, v: &str) -> Result<RawQuantity, E> {
+                Ok(RawQuantity(v.to_string()))
+            }
+            fn visit_f64<E: de::Error>(self, v: f64) -> Result<RawQuantity, E> {
+                Ok(RawQuantity(format!("{v}")))
+            }
+            fn visit_i64<E: de::Error>(self, v: i64) -> Result<RawQuantity, E> {
+                Ok(RawQuantity(format!("{v}")))
+            }
+            fn visit_u64<E: de::Error>(self, v: u64) -> Result<RawQuantity, E> {
+                Ok(RawQuantity(format!("{v}")))
+            }
+        }
+        deserializer.deserialize_any(V)
+    }
+}
+
+/// `adjust: {min: ..., max: ...}` on a port.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct AdjustSpec {
+    pub min: RawQuantity,
+    pub max: RawQuantity,
+}
+
+/// One entry of `targets:`.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct TargetSpec {
+    #[serde(default)]
+    pub channel: Option<String>,
+    #[serde(default)]
+    pub flow: Option<Q<VolumeFlow>>,
+    #[serde(default)]
+    pub split: Option<Vec<String>>,
+    #[serde(default)]
+    pub ratio: Option<Vec<f64>>,
+    #[serde(default)]
+    pub node: Option<String>,
+    #[serde(default)]
+    pub pressure: Option<Q<Pressure>>,
+    #[serde(default)]
+    pub weight: Option<f64>,
+}
+
+/// Bounds of a sized dimension.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct BoundSpec {
+    pub min: Q<Length>,
+    pub max: Q<Length>,
+    #[serde(default)]
+    pub step: Option<Q<Length>>,
+}
+
+/// `size:` on a channel.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SizeSpec {
+    #[serde(default)]
+    pub length: Option<BoundSpec>,
+    #[serde(default)]
+    pub width: Option<BoundSpec>,
+}
+
+fn channel_id(net: &Network, name: &str, place: &[&str]) -> Result<ChannelId, Misplaced> {
+    net.channel_id(name)
+        .ok_or_else(|| at(place, format!("unknown channel '{name}'")))
+}
+
+/// Build the design problem once the network exists.
+pub(super) fn to_design(
+    net: &Network,
+    targets: &[TargetSpec],
+    adjust: &[(String, &AdjustSpec)],
+    sizes: &[(String, &SizeSpec)],
+) -> Result<Design, Misplaced> {
+    let mut design = Design::default();
+    for (i, t) in targets.iter().enumerate() {
+        let place = ["targets"];
+        let label = format!("targets[{i}]");
+        let weight = t.weight.unwrap_or(1.0);
+        if !(weight.is_finite() && weight > 0.0) {
+            return Err(at(
+                &place,
+                format!("{label}: weight must be positive, got {weight}"),
+            ));
+        }
+        let kind = match (&t.channel, t.flow, &t.split, &t.ratio, &t.node, t.pressure) {
+            (Some(c), Some(q), None, None, None, None) => TargetKind::ChannelFlow {
+                channel: channel_id(net, c, &place).map_err(|m| at(&place, format!("{label}: {}", m.message)))?,
+                flow: q.0.si(),
+            },
+            (None, None, Some(split), Some(ratio), None, None) => {
+                if split.len() < 2 || split.len() != ratio.len() {
+                    return Err(at(&place, format!(
+                        "{label}: a split names two or more channels and one ratio per channel, e.g. {{split: [c3, c4], ratio: [1, 2]}}"
+                    )));
+                }
+                if let Some(r) = ratio.iter().find(|r| !(r.is_finite() && **r > 0.0)) {
+                    return Err(at(&place, format!("{label}: ratios must be positive, got {r}")));
+                }
+                let channels = split
+                    .iter()
+                    .map(|c| channel_id(net, c, &place).map_err(|m| at(&place, format!("{label}: {}", m.message))))
+                    .collect::<Result<_, _>>()?;
+                TargetKind::Split { channels, ratio: ratio.clone() }
+            }
+            (None, None, None, None, Some(n), Some(p)) => TargetKind::NodePressure {
+                node: net
+                    .node_id(n)
+                    .ok_or_else(|| at(&place, format!("{label}: unknown node '{n}'")))?,
+                pressure: p.0.si(),
+            },
+            _ => {
+                return Err(at(&place, format!(
+                    "{label}: a target is one of {{channel: c3, flow: 2 uL/min}}, {{split: [c3, c4], ratio: [1, 2]}} \
+                     or {{node: n2, pressure: 40 mbar}} (each with an optional weight)"
+                )))
+            }
+        };
+        design.targets.push(Target { kind, weight });
+    }
+    for (name, a) in adjust {
+        let id: NodeId = net
+            .node_id(name)
+            .ok_or_else(|| at(&["nodes", name], "unknown node"))?;
+        let (dim, value) = match net.nodes[id.0].port {
+            Port::Pressure(p) => (Dimension::Pressure, p.si()),
+            Port::Flow(q) => (Dimension::VolumeFlow, q.si()),
+            Port::Junction => {
+                return Err(at(
+                    &["nodes", name, "adjust"],
+                    "only a port (with 'pressure' or 'flow') can be adjusted",
+                ))
+            }
+        };
+        let parse = |field: &str, raw: &RawQuantity| {
+            parse_si(&raw.0, dim).map_err(|e| at(&["nodes", name, "adjust", field], e.to_string()))
+        };
+        let (min, max) = (parse("min", &a.min)?, parse("max", &a.max)?);
+        if min > max {
+            return Err(at(
+                &["nodes", name, "adjust", "max"],
+                "max must not be below min",
+            ));
+        }
+        let _ = value;
+        design.adjustable.push(Adjustable { node: id, min, max });
+    }
+    for (name, s) in sizes {
+        let id = channel_id(net, name, &["channels", name])?;
+        for (dim, field, b) in [
+            (SizeDim::Length, "length", &s.length),
+            (SizeDim::Width, "width", &s.width),
+        ] {
+            let Some(b) = b else { continue };
+            let (min, max) = (b.min.0.si(), b.max.0.si());
+            if !(min > 0.0 && max >= min && max.is_finite()) {
+                return Err(at(
+                    &["channels", name, "size", field],
+                    "bounds must satisfy 0 < min ≤ max",
+                ));
+            }
+            let step = b.step.map(|s| s.0.si());
+            if let Some(st) = step {
+                if !(st > 0.0 && st.is_finite()) {
+                    return Err(at(
+                        &["channels", name, "size", field, "step"],
+                        "step must be positive",
+                    ));
+                }
+            }
+            design.sizes.push(SizeVar {
+                channel: id,
+                dim,
+                min,
+                max,
+                step,
+            });
+        }
+    }
+    Ok(design)
+}
