@@ -436,3 +436,125 @@ pub fn sensitivity_text(chip: &Path, json: bool) -> Result<String, Error> {
     })?;
     Ok(report::sensitivity_report(&net, &s, json))
 }
+
+/// What the `plot` command needs.
+#[derive(Clone, Debug)]
+pub struct PlotRequest<'a> {
+    pub chip: &'a Path,
+    /// "splits" or "pressure".
+    pub pressure_profile: bool,
+    pub colour: plots::ColourBy,
+    pub output: &'a Path,
+}
+
+/// Draw the chip's flow-split picture or its pressure profile.
+pub fn plot_command(req: &PlotRequest<'_>) -> Result<String, Error> {
+    let (network, state) = load_and_solve(req.chip)?;
+    if req.pressure_profile {
+        plots::save(
+            &plots::PressurePicture::new(&network, &state),
+            req.output,
+            &[req.chip],
+        )?;
+    } else {
+        plots::save(
+            &plots::ChipPicture::new(&network, &state, req.colour),
+            req.output,
+            &[req.chip],
+        )?;
+    }
+    Ok(format!("wrote {}\n", req.output.display()))
+}
+
+/// What the `report` command needs.
+#[derive(Clone, Debug)]
+pub struct ReportRequest<'a> {
+    pub chip: &'a Path,
+    pub folder: &'a Path,
+    /// Allow a folder that already has files (existing files are still never replaced).
+    pub into_existing: bool,
+}
+
+/// Write tables, pictures and a self-contained HTML page into a new folder.
+pub fn report_command(req: &ReportRequest<'_>) -> Result<String, Error> {
+    let folder_err = |reason: String| Error::Write {
+        path: req.folder.to_path_buf(),
+        reason,
+    };
+    if req.folder.exists() {
+        let non_empty = std::fs::read_dir(req.folder)
+            .map_err(|e| folder_err(e.to_string()))?
+            .next()
+            .is_some();
+        if non_empty && !req.into_existing {
+            return Err(folder_err(
+                "the folder is not empty; choose a new folder, or pass --into-existing (existing files are never replaced)"
+                    .into(),
+            ));
+        }
+    }
+    let (network, state) = load_and_solve(req.chip)?;
+    std::fs::create_dir_all(req.folder).map_err(|e| folder_err(e.to_string()))?;
+    let protected = [req.chip];
+    let mut written = Vec::new();
+    let mut put = |name: &str, bytes: &[u8]| -> Result<(), Error> {
+        let path = req.folder.join(name);
+        output::write_new_file(&path, bytes, &protected)?;
+        written.push(name.to_string());
+        Ok(())
+    };
+    put("summary.txt", report::to_table(&network, &state).as_bytes())?;
+    put("results.json", report::to_json(&network, &state).as_bytes())?;
+    put("results.csv", report::to_csv(&network, &state).as_bytes())?;
+    let render_err = |name: &str, reason: String| Error::Write {
+        path: req.folder.join(name),
+        reason,
+    };
+    let mut pictures: Vec<(String, String)> = Vec::new();
+    let mut picture = |name: &str,
+                       caption: &str,
+                       fig: &dyn Fn(plots::PictureFormat) -> Result<Vec<u8>, String>|
+     -> Result<(), Error> {
+        let svg = fig(plots::PictureFormat::Svg).map_err(|e| render_err(name, e))?;
+        let png = fig(plots::PictureFormat::Png).map_err(|e| render_err(name, e))?;
+        put(&format!("{name}.svg"), &svg)?;
+        put(&format!("{name}.png"), &png)?;
+        pictures.push((
+            caption.to_string(),
+            String::from_utf8_lossy(&svg).into_owned(),
+        ));
+        Ok(())
+    };
+    let colour = if state.channels.iter().any(|s| s.shear_limit.is_some()) {
+        plots::ColourBy::Margin
+    } else {
+        plots::ColourBy::Pressure
+    };
+    let chip = plots::ChipPicture::new(&network, &state, colour);
+    picture(
+        "splits",
+        "Flow split: line width ∝ |flow|, arrows show direction.",
+        &|f| plots::render(&chip, f),
+    )?;
+    let pressure = plots::PressurePicture::new(&network, &state);
+    picture(
+        "pressure",
+        "Pressure along the main flow path from each inlet.",
+        &|f| plots::render(&pressure, f),
+    )?;
+    if let Some(chart) = plots::MarginChart::new(&network, &state) {
+        picture(
+            "margins",
+            "Wall-shear margin per channel (limit / maximum wall shear).",
+            &|f| plots::render(&chart, f),
+        )?;
+    }
+    let page = report::html_page(&network, &state, &pictures);
+    put("index.html", page.as_bytes())?;
+    Ok(format!(
+        "wrote {} files into {}: {}\n",
+        written.len(),
+        req.folder.display(),
+        written.join(", ")
+    ))
+}

@@ -64,6 +64,31 @@ enum Command {
         #[arg(long, default_value = "400 um")]
         pitch: String,
     },
+    /// Draw the chip: flow splits (default) or pressure along the flow paths, to SVG or PNG.
+    Plot {
+        /// Chip file.
+        file: PathBuf,
+        /// Which picture.
+        #[arg(long, value_enum, default_value_t = Show::Splits)]
+        show: Show,
+        /// What the channel colours show (splits picture).
+        #[arg(long, value_enum, default_value_t = Colour::Pressure)]
+        colour: Colour,
+        /// New .svg or .png file to write.
+        #[arg(long, short)]
+        output: PathBuf,
+    },
+    /// Write tables (CSV, JSON, text), every picture and a self-contained HTML page into a new folder.
+    Report {
+        /// Chip file.
+        file: PathBuf,
+        /// Folder to create (or an empty one).
+        #[arg(long, short)]
+        output: PathBuf,
+        /// Also write into a folder that has files already (never replacing any).
+        #[arg(long)]
+        into_existing: bool,
+    },
     /// Check a chip against its limits (cells' wall-shear limit, chip pressure rating);
     /// exits 1 when any limit is exceeded.
     Check {
@@ -102,6 +127,19 @@ enum Command {
         #[arg(long)]
         plot: Option<PathBuf>,
     },
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+enum Show {
+    Splits,
+    Pressure,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+enum Colour {
+    Pressure,
+    Flow,
+    Margin,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -193,6 +231,32 @@ fn run(command: &Command) -> Result<(String, bool), rillnet::Error> {
             })
             .map(|text| (text, true))
         }
+        Command::Plot {
+            file,
+            show,
+            colour,
+            output,
+        } => rillnet::plot_command(&rillnet::PlotRequest {
+            chip: file,
+            pressure_profile: matches!(show, Show::Pressure),
+            colour: match colour {
+                Colour::Pressure => rillnet::plots::ColourBy::Pressure,
+                Colour::Flow => rillnet::plots::ColourBy::Flow,
+                Colour::Margin => rillnet::plots::ColourBy::Margin,
+            },
+            output,
+        })
+        .map(|t| (t, true)),
+        Command::Report {
+            file,
+            output,
+            into_existing,
+        } => rillnet::report_command(&rillnet::ReportRequest {
+            chip: file,
+            folder: output,
+            into_existing: *into_existing,
+        })
+        .map(|t| (t, true)),
         Command::Check { file, format, plot } => rillnet::check_command(&rillnet::CheckRequest {
             chip: file,
             format: (*format).into(),

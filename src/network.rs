@@ -69,6 +69,14 @@ pub struct Channel {
     pub shear_limit: Option<Pressure>,
 }
 
+/// Positions for drawing the chip [m]: per node an optional position, per channel the
+/// intermediate points of its path (empty when straight). Empty vectors mean "not given".
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct DrawnLayout {
+    pub node_at: Vec<Option<[f64; 2]>>,
+    pub channel_path: Vec<Vec<[f64; 2]>>,
+}
+
 /// A validated chip network.
 #[derive(Clone, Debug)]
 pub struct Network {
@@ -83,6 +91,8 @@ pub struct Network {
     pub warnings: Vec<String>,
     /// Targets, adjustable ports and free channel dimensions for the design commands.
     pub design: crate::analysis::design::Design,
+    /// Drawing positions given in the chip file (used by the pictures only).
+    pub layout: DrawnLayout,
     graph: UnGraph<NodeId, ChannelId>,
 }
 
@@ -494,6 +504,7 @@ impl NetworkBuilder {
             pressure_rating: self.pressure_rating,
             warnings: self.warnings,
             design: Default::default(),
+            layout: DrawnLayout::default(),
             graph,
         })
     }

@@ -208,3 +208,233 @@ fn section_picture_svg_and_png() {
         .unwrap();
     assert!(out.status.success());
 }
+
+fn examples() -> Vec<std::path::PathBuf> {
+    let mut v: Vec<_> = std::fs::read_dir("networks")
+        .unwrap()
+        .map(|e| e.unwrap().path())
+        .filter(|p| p.extension().is_some_and(|e| e == "yaml"))
+        .collect();
+    v.sort();
+    v
+}
+
+/// Polylines drawn as channels: stroke width ≥ 2 and not the vermillion halo colour.
+fn channel_lines(svg: &str) -> usize {
+    let doc = roxmltree::Document::parse(svg).expect("well-formed SVG");
+    doc.descendants()
+        .filter(|n| n.has_tag_name("polyline"))
+        .filter(|n| {
+            let w: f64 = n
+                .attribute("stroke-width")
+                .and_then(|w| w.parse().ok())
+                .unwrap_or(0.0);
+            let halo = n
+                .attribute("stroke")
+                .is_some_and(|s| s.eq_ignore_ascii_case("#D55E00"));
+            w >= 2.0 && !halo
+        })
+        .count()
+}
+
+#[test]
+fn chip_pictures_for_every_shipped_example() {
+    let dir = tempfile::tempdir().unwrap();
+    for chip in examples() {
+        let stem = chip.file_stem().unwrap().to_string_lossy().into_owned();
+        let svg_path = dir.path().join(format!("{stem}.svg"));
+        let out = rillnet()
+            .args(["plot"])
+            .arg(&chip)
+            .arg("--output")
+            .arg(&svg_path)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{stem}: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        let svg = std::fs::read_to_string(&svg_path).unwrap();
+        let text = String::from_utf8_lossy(
+            &Command::cargo_bin("rillnet")
+                .unwrap()
+                .args(["solve", "--format", "json"])
+                .arg(&chip)
+                .output()
+                .unwrap()
+                .stdout,
+        )
+        .into_owned();
+        let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        let n_channels = v["channels"].as_array().unwrap().len();
+        assert_eq!(
+            channel_lines(&svg),
+            n_channels,
+            "{stem}: one drawn path per channel"
+        );
+        let t = texts(&svg);
+        // One flow label per channel carrying flow, and every port named.
+        let flow_labels = t
+            .iter()
+            .filter(|x| x.contains("µL/min") && !x.contains("set"))
+            .count();
+        let flowing = v["channels"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .filter(|c| c["flow_m3_per_s"].as_f64().unwrap() != 0.0)
+            .count();
+        assert!(
+            flow_labels <= flowing && flow_labels * 10 >= flowing * 8,
+            "{stem}: {flow_labels} of {flowing} flow labels placed"
+        );
+        for port in v["ports"].as_array().unwrap() {
+            assert!(
+                t.iter().any(|x| x == port["name"].as_str().unwrap()),
+                "{stem}: port label"
+            );
+        }
+        assert!(t.iter().any(|x| x.contains("flow split")), "{stem}: title");
+        // Same file, same bytes (deterministic layout).
+        let again = dir.path().join(format!("{stem}-2.svg"));
+        rillnet()
+            .args(["plot"])
+            .arg(&chip)
+            .arg("--output")
+            .arg(&again)
+            .output()
+            .unwrap();
+        assert_eq!(
+            std::fs::read(&again).unwrap(),
+            svg.as_bytes(),
+            "{stem}: deterministic"
+        );
+        // PNG decodes; pressure picture parses.
+        let png_path = dir.path().join(format!("{stem}.png"));
+        assert!(rillnet()
+            .args(["plot", "--colour", "flow"])
+            .arg(&chip)
+            .arg("-o")
+            .arg(&png_path)
+            .output()
+            .unwrap()
+            .status
+            .success());
+        let decoder = png::Decoder::new(std::io::BufReader::new(
+            std::fs::File::open(&png_path).unwrap(),
+        ));
+        assert!(decoder.read_info().is_ok());
+        let p_path = dir.path().join(format!("{stem}-p.svg"));
+        assert!(rillnet()
+            .args(["plot", "--show", "pressure"])
+            .arg(&chip)
+            .arg("-o")
+            .arg(&p_path)
+            .output()
+            .unwrap()
+            .status
+            .success());
+        let p_svg = std::fs::read_to_string(&p_path).unwrap();
+        assert!(texts(&p_svg).iter().any(|x| x == "pressure [mbar]"));
+    }
+}
+
+#[test]
+fn large_chip_drops_channel_labels_gracefully() {
+    // A 600-channel ladder: pictures still render, without per-channel labels.
+    let mut chip = String::from("fluid: {viscosity: 1 mPa*s, density: 1000 kg/m^3}\nnodes:\n  in: {pressure: 10 mbar}\n  out: {pressure: 0 Pa}\n");
+    for i in 0..300 {
+        chip.push_str(&format!("  a{i}: {{}}\n  b{i}: {{}}\n"));
+    }
+    chip.push_str("channels:\n");
+    let mut k = 0;
+    let mut ch = |a: &str, b: &str, out: &mut String| {
+        out.push_str(&format!("  c{k}: {{from: {a}, to: {b}, section: {{shape: circle, diameter: 100 um}}, length: 1 mm}}\n"));
+        k += 1;
+    };
+    let mut body = String::new();
+    ch("in", "a0", &mut body);
+    for i in 0..299 {
+        ch(&format!("a{i}"), &format!("a{}", i + 1), &mut body);
+        ch(&format!("b{i}"), &format!("b{}", i + 1), &mut body);
+    }
+    ch("a299", "b0", &mut body);
+    ch("b299", "out", &mut body);
+    chip.push_str(&body);
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join("big.yaml");
+    std::fs::write(&p, chip).unwrap();
+    let out_path = dir.path().join("big.svg");
+    let out = rillnet()
+        .arg("plot")
+        .arg(&p)
+        .arg("-o")
+        .arg(&out_path)
+        .output()
+        .unwrap();
+    // One long chain in → a0 … a299 → b0 … b299 → out: every channel carries the flow.
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let svg = std::fs::read_to_string(&out_path).unwrap();
+    let t = texts(&svg);
+    assert!(t.iter().any(|x| x.contains("per-channel labels left out")));
+    assert!(!t
+        .iter()
+        .any(|x| x.ends_with("µL/min") && !x.contains("set") && !x.contains("in")));
+}
+
+#[test]
+fn report_folder_holds_tables_pictures_and_one_html_page() {
+    let dir = tempfile::tempdir().unwrap();
+    let folder = dir.path().join("rep");
+    let out = rillnet()
+        .args(["report", "networks/tcell_sorter.yaml", "-o"])
+        .arg(&folder)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    for f in [
+        "summary.txt",
+        "results.json",
+        "results.csv",
+        "splits.svg",
+        "splits.png",
+        "pressure.svg",
+        "margins.svg",
+        "index.html",
+    ] {
+        assert!(folder.join(f).exists(), "{f}");
+    }
+    let html = std::fs::read_to_string(folder.join("index.html")).unwrap();
+    assert_eq!(html.matches("<svg").count(), 3, "three inline pictures");
+    assert!(html.contains("pre_filter") && html.contains("OVER") && html.contains("Caution"));
+    assert!(!html.contains("src=\"http"), "self-contained");
+    // A non-empty folder is refused unless asked, and nothing is replaced even then.
+    let again = rillnet()
+        .args(["report", "networks/tcell_sorter.yaml", "-o"])
+        .arg(&folder)
+        .output()
+        .unwrap();
+    assert_eq!(again.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&again.stderr).contains("not empty"));
+    let forced = rillnet()
+        .args([
+            "report",
+            "networks/tcell_sorter.yaml",
+            "--into-existing",
+            "-o",
+        ])
+        .arg(&folder)
+        .output()
+        .unwrap();
+    assert_eq!(forced.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&forced.stderr).contains("exists"));
+}

@@ -146,6 +146,9 @@ pub struct NodeSpec {
     /// The port's setting may be changed by `rillnet tune` within these bounds.
     #[serde(default)]
     pub adjust: Option<AdjustSpec>,
+    /// Position on the chip drawing, `[x, y]` with units.
+    #[serde(default)]
+    pub at: Option<[Q<Length>; 2]>,
 }
 
 /// `channels.NAME:`.
@@ -162,6 +165,9 @@ pub struct ChannelSpec {
     /// Dimensions `rillnet size` may change.
     #[serde(default)]
     pub size: Option<SizeSpec>,
+    /// Intermediate points of the channel's drawn path (e.g. a serpentine), with units.
+    #[serde(default)]
+    pub path: Option<Vec<[Q<Length>; 2]>>,
 }
 
 /// A channel's section: the name of one in `sections:`, or a mapping given inline.
@@ -284,6 +290,23 @@ impl ChipFile {
             }
         }
         let mut net = b.build()?;
+        net.layout.node_at = self
+            .nodes
+            .0
+            .iter()
+            .map(|(_, n)| n.at.map(|p| [p[0].0.si(), p[1].0.si()]))
+            .collect();
+        net.layout.channel_path = self
+            .channels
+            .0
+            .iter()
+            .map(|(_, c)| {
+                c.path
+                    .as_ref()
+                    .map(|pts| pts.iter().map(|p| [p[0].0.si(), p[1].0.si()]).collect())
+                    .unwrap_or_default()
+            })
+            .collect();
         let adjust: Vec<(String, &AdjustSpec)> = self
             .nodes
             .0

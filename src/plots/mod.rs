@@ -8,10 +8,14 @@
 //! distinguishable for the common colour-vision deficiencies; the over-limit state is also
 //! marked by text, never by colour alone.
 
+mod chip;
 mod margins;
+mod pressure;
 mod section_field;
 
+pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT};
 pub use margins::MarginChart;
+pub use pressure::{PressurePath, PressurePicture};
 pub use section_field::SectionPicture;
 
 use crate::error::Error;

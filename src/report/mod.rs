@@ -5,12 +5,14 @@
 
 mod csv;
 mod design;
+mod html;
 mod json;
 mod section;
-mod text;
+pub mod text;
 
 pub use csv::to_csv;
 pub use design::{sensitivity_report, size_report, tune_report};
+pub use html::html_page;
 pub use json::to_json;
 pub use section::section_report;
 pub use text::{check_text, to_table};
