@@ -17,7 +17,7 @@
 //! dg/dL = −g/L, dg/dw = −g·(dR'/dw)/R' (central difference of the closed-form R').
 
 use super::boxqp;
-use super::kirchhoff::{conductances, drive_values, KirchhoffSystem, SolveError};
+use super::kirchhoff::{channel_flows, conductances, drive_values, KirchhoffSystem, SolveError};
 use crate::network::{ChannelId, Network, NodeId, Port};
 use crate::section::Shape;
 use crate::solver::{Parallelism, SymbolicCholesky};
@@ -130,12 +130,7 @@ fn solve_states(
         .map(|(k, d)| {
             let x = &rhs[k * n..(k + 1) * n];
             let pressures = sys.node_pressures_for(x, d);
-            let flows = network
-                .channels
-                .iter()
-                .zip(g)
-                .map(|(c, gk)| gk * (pressures[c.from.0] - pressures[c.to.0]))
-                .collect();
+            let flows = channel_flows(network, g, &pressures);
             State { pressures, flows }
         })
         .collect())
@@ -353,24 +348,17 @@ pub fn tune(network: &Network, design: &Design) -> Result<TuneResult, DesignErro
                 .max(1e-300)
         })
         .collect();
-    let lo: Vec<f64> = design
-        .adjustable
-        .iter()
-        .zip(&scale)
-        .map(|(a, s)| a.min / s)
-        .collect();
-    let hi: Vec<f64> = design
-        .adjustable
-        .iter()
-        .zip(&scale)
-        .map(|(a, s)| a.max / s)
-        .collect();
-    let x0: Vec<f64> = design
-        .adjustable
-        .iter()
-        .zip(&scale)
-        .map(|(a, s)| base[a.node.0].clamp(a.min, a.max) / s)
-        .collect();
+    let scaled = |f: &dyn Fn(&Adjustable) -> f64| -> Vec<f64> {
+        design
+            .adjustable
+            .iter()
+            .zip(&scale)
+            .map(|(a, s)| f(a) / s)
+            .collect()
+    };
+    let lo = scaled(&|a| a.min);
+    let hi = scaled(&|a| a.max);
+    let x0 = scaled(&|a| base[a.node.0].clamp(a.min, a.max));
     let combine = |y: &[f64]| -> (Vec<f64>, Vec<f64>) {
         let mut p = states[0].pressures.clone();
         let mut q = states[0].flows.clone();
@@ -486,12 +474,7 @@ fn measure_gradients(
     let mut x = sys.rhs_for(network, g, &drives);
     f.solve_in_place(&mut x)?;
     let p = sys.node_pressures_for(&x, &drives);
-    let flows: Vec<f64> = network
-        .channels
-        .iter()
-        .zip(g)
-        .map(|(c, gk)| gk * (p[c.from.0] - p[c.to.0]))
-        .collect();
+    let flows = channel_flows(network, g, &p);
     // Adjoint right-hand sides: ∂J/∂p on unknowns (flow q_k = g_k(P_a − P_b) contributes
     // ±g_k at its ends; a pressure measure contributes 1 at its node).
     let mut lam = vec![0.0; n * measures.len()];

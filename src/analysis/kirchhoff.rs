@@ -194,6 +194,16 @@ pub fn drive_values(network: &Network) -> Vec<f64> {
         .collect()
 }
 
+/// Channel flows Q_k = g_k·(p_from − p_to) [m³/s] for node pressures `p`.
+pub fn channel_flows(network: &Network, g: &[f64], p: &[f64]) -> Vec<f64> {
+    network
+        .channels
+        .iter()
+        .zip(g)
+        .map(|(c, gk)| gk * (p[c.from.0] - p[c.to.0]))
+        .collect()
+}
+
 /// Channel conductances g = 1/R [m³/(Pa·s)].
 pub fn conductances(network: &Network) -> Vec<f64> {
     (0..network.channels.len())
@@ -291,12 +301,7 @@ pub fn solve_with(
 
     let flows_of = |x: &[f64]| -> (Vec<f64>, Vec<f64>) {
         let p = system.node_pressures(network, x);
-        let q = network
-            .channels
-            .iter()
-            .zip(g)
-            .map(|(c, gk)| gk * (p[c.from.0] - p[c.to.0]))
-            .collect();
+        let q = channel_flows(network, g, &p);
         (p, q)
     };
     let (mut pressures, mut flows) = flows_of(&x);

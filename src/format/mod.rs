@@ -330,27 +330,11 @@ pub fn parse_section_spec(
     origin: &str,
     read: FileReader<'_>,
 ) -> Result<crate::section::Shape, InputError> {
-    if let Err(x) = yaml_guard::check(text) {
-        return Err(InputError {
-            origin: origin.to_string(),
-            line: Some(x.line),
-            column: Some(x.column),
-            field: None,
-            message: "YAML aliases here would expand enormously; refused".into(),
-        });
-    }
-    let spec: SectionSpec = serde_yaml::from_str(text).map_err(|e| {
-        let loc = e.location();
-        InputError {
-            origin: origin.to_string(),
-            line: loc.as_ref().map(|l| l.line()),
-            column: loc.as_ref().map(|l| l.column()),
-            field: None,
-            message: format!(
-                "{} (expected a mapping such as '{{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}}')",
-                strip_position(&e.to_string())
-            ),
-        }
+    let spec: SectionSpec = read_yaml(text, origin).map_err(|mut e| {
+        e.message.push_str(
+            " (expected a mapping such as '{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}')",
+        );
+        e
     })?;
     spec.to_shape(&[], read).map_err(|m| InputError {
         origin: origin.to_string(),
@@ -358,6 +342,33 @@ pub fn parse_section_spec(
         column: None,
         field: Some(m.path.join(".")).filter(|p| !p.is_empty()),
         message: m.message,
+    })
+}
+
+/// Deserialize YAML after the alias-expansion guard, with located errors.
+fn read_yaml<T: serde::de::DeserializeOwned>(text: &str, origin: &str) -> Result<T, InputError> {
+    if let Err(x) = yaml_guard::check(text) {
+        return Err(InputError {
+            origin: origin.to_string(),
+            line: Some(x.line),
+            column: Some(x.column),
+            field: None,
+            message: format!(
+                "YAML aliases here would expand to {} values from {} written ones; \
+                 refused to protect memory. Write the values out, or reference smaller anchors",
+                x.expanded_events, x.written_events
+            ),
+        });
+    }
+    serde_yaml::from_str(text).map_err(|e| {
+        let loc = e.location();
+        InputError {
+            origin: origin.to_string(),
+            line: loc.as_ref().map(|l| l.line()),
+            column: loc.as_ref().map(|l| l.column()),
+            field: None,
+            message: strip_position(&e.to_string()),
+        }
     })
 }
 
@@ -399,31 +410,7 @@ pub fn parse_chip_with(
         ));
     }
     let file: ChipFile = match syntax {
-        Syntax::Yaml => {
-            if let Err(x) = yaml_guard::check(text) {
-                return Err(InputError {
-                    origin: origin.to_string(),
-                    line: Some(x.line),
-                    column: Some(x.column),
-                    field: None,
-                    message: format!(
-                        "YAML aliases here would expand to {} values from {} written ones; \
-                         refused to protect memory. Write the values out, or reference smaller anchors",
-                        x.expanded_events, x.written_events
-                    ),
-                });
-            }
-            serde_yaml::from_str(text).map_err(|e| {
-                let loc = e.location();
-                InputError {
-                    origin: origin.to_string(),
-                    line: loc.as_ref().map(|l| l.line()),
-                    column: loc.as_ref().map(|l| l.column()),
-                    field: None,
-                    message: strip_position(&e.to_string()),
-                }
-            })?
-        }
+        Syntax::Yaml => read_yaml(text, origin)?,
         Syntax::Json => {
             // Fast path without path tracking; on error, parse again to learn the field path.
             serde_json::from_str::<ChipFile>(text).map_err(|plain| {

@@ -540,26 +540,7 @@ impl Figure for ChipPicture<'_> {
             20,
             (h as f64 * 0.45) as i32,
         );
-        for k in 0..bh {
-            let v = 1.0 - k as f64 / bh as f64;
-            area.draw(&Rectangle::new(
-                [(bx, by + k), (bx + bw, by + k + 1)],
-                ViridisRGB::get_color(v).filled(),
-            ))
-            .map_err(drawing)?;
-        }
-        area.draw(&Text::new(vlabel, (bx - 40, by - 22), text_style(12, INK)))
-            .map_err(drawing)?;
-        for k in 0..=4 {
-            let v = vlo + (vhi - vlo) * k as f64 / 4.0;
-            let y = by + bh - bh * k / 4;
-            area.draw(&Text::new(
-                fmt_sig(v, 3),
-                (bx + bw + 6, y - 7),
-                text_style(11, INK),
-            ))
-            .map_err(drawing)?;
-        }
+        super::colour_bar(area, (bx, by, bw, bh), (vlo, vhi), &vlabel)?;
         if self.colour == ColourBy::Margin {
             area.draw(&Text::new(
                 "grey: no limit",

@@ -134,6 +134,47 @@ pub(crate) fn text_style(size: u32, color: RGBColor) -> TextStyle<'static> {
     style
 }
 
+/// A vertical viridis colour bar at (x, y) of size w × h, framed, with five tick labels from
+/// `lo` (bottom) to `hi` (top) and a label above it.
+pub(crate) fn colour_bar<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    (x, y, w, h): (i32, i32, i32, i32),
+    (lo, hi): (f64, f64),
+    label: &str,
+) -> Result<(), String> {
+    use plotters::style::colors::colormaps::ViridisRGB;
+    for k in 0..h {
+        let v = 1.0 - k as f64 / h as f64;
+        area.draw(&Rectangle::new(
+            [(x, y + k), (x + w, y + k + 1)],
+            ViridisRGB::get_color(v).filled(),
+        ))
+        .map_err(drawing)?;
+    }
+    area.draw(&Rectangle::new(
+        [(x, y), (x + w, y + h)],
+        ShapeStyle::from(&INK).stroke_width(1),
+    ))
+    .map_err(drawing)?;
+    for k in 0..=4 {
+        let v = lo + (hi - lo) * k as f64 / 4.0;
+        let ty = y + h - h * k / 4;
+        area.draw(&Text::new(
+            crate::report::fmt_sig(v, 3),
+            (x + w + 6, ty - 7),
+            text_style(11, INK),
+        ))
+        .map_err(drawing)?;
+    }
+    area.draw(&Text::new(
+        label.to_string(),
+        (x - 40, y - 22),
+        text_style(12, INK),
+    ))
+    .map_err(drawing)?;
+    Ok(())
+}
+
 /// Map a drawing error to text.
 pub(crate) fn drawing<E: std::fmt::Display>(e: E) -> String {
     e.to_string()

@@ -118,36 +118,12 @@ impl SectionPicture<'_> {
         ))
         .map_err(drawing)?;
         // Colour bar.
-        let (bx, by, bw, bh) = ((W - 130) as i32, 60, 22, (FIELD_H - 140) as i32);
-        for k in 0..bh {
-            let v = 1.0 - k as f64 / bh as f64;
-            area.draw(&Rectangle::new(
-                [(bx, by + k), (bx + bw, by + k + 1)],
-                ViridisRGB::get_color(v).filled(),
-            ))
-            .map_err(drawing)?;
-        }
-        area.draw(&Rectangle::new(
-            [(bx, by), (bx + bw, by + bh)],
-            ShapeStyle::from(&INK).stroke_width(1),
-        ))
-        .map_err(drawing)?;
-        for k in 0..=4 {
-            let v = umax * k as f64 / 4.0;
-            let y = by + bh - (bh * k) / 4;
-            area.draw(&Text::new(
-                format!("{v:.2}"),
-                (bx + bw + 6, y - 7),
-                text_style(12, INK),
-            ))
-            .map_err(drawing)?;
-        }
-        area.draw(&Text::new(
+        super::colour_bar(
+            area,
+            ((W - 130) as i32, 60, 22, (FIELD_H - 140) as i32),
+            (0.0, umax),
             "u / U_mean",
-            (bx - 10, by - 22),
-            text_style(13, INK),
-        ))
-        .map_err(drawing)?;
+        )?;
         Ok(())
     }
 
