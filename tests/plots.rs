@@ -438,3 +438,54 @@ fn report_folder_holds_tables_pictures_and_one_html_page() {
     assert_eq!(forced.status.code(), Some(2));
     assert!(String::from_utf8_lossy(&forced.stderr).contains("exists"));
 }
+
+/// The textual parts of a picture (titles, labels, ticks), one per line, compared with a
+/// committed snapshot. Set RILLNET_UPDATE_SNAPSHOTS=1 to rewrite the snapshot after an
+/// intended change, and review the diff.
+fn check_text_snapshot(svg: &str, name: &str) {
+    let got = texts(svg).join("\n") + "\n";
+    let path = std::path::Path::new("tests/snapshots").join(name);
+    if std::env::var_os("RILLNET_UPDATE_SNAPSHOTS").is_some() {
+        std::fs::write(&path, &got).unwrap();
+    }
+    let want = std::fs::read_to_string(&path).unwrap_or_default();
+    assert_eq!(
+        got, want,
+        "text of {name} changed; review and update the snapshot"
+    );
+}
+
+#[test]
+fn picture_texts_match_their_snapshots() {
+    let dir = tempfile::tempdir().unwrap();
+    for (chip, args, snap) in [
+        (
+            "networks/reagent_mixer.yaml",
+            vec!["plot"],
+            "reagent_mixer_splits.txt",
+        ),
+        (
+            "networks/chamber_ladder.yaml",
+            vec!["plot", "--show", "pressure"],
+            "chamber_ladder_pressure.txt",
+        ),
+    ] {
+        let out = dir.path().join(format!("{snap}.svg"));
+        let res = rillnet()
+            .args(&args)
+            .arg(chip)
+            .arg("-o")
+            .arg(&out)
+            .output()
+            .unwrap();
+        assert!(res.status.success());
+        check_text_snapshot(&std::fs::read_to_string(&out).unwrap(), snap);
+    }
+    let out = dir.path().join("margins.svg");
+    rillnet()
+        .args(["check", "networks/tcell_sorter.yaml", "--plot"])
+        .arg(&out)
+        .output()
+        .unwrap();
+    check_text_snapshot(&std::fs::read_to_string(&out).unwrap(), "tcell_margins.txt");
+}

@@ -223,6 +223,9 @@ pub struct FlowSolution {
     pub node_net_inflow: Vec<f64>,
     /// Largest relative imbalance over the nodes whose balance is imposed.
     pub max_relative_residual: f64,
+    /// Relative balance residual of every node (None at pressure ports, whose flow is free);
+    /// see [`balance_residuals`].
+    pub node_residuals: Vec<Option<f64>>,
 }
 
 /// Net flow out of every node through its channels [m³/s].
@@ -331,6 +334,7 @@ pub fn solve_with(
         pressures,
         flows,
         max_relative_residual: worst_residual,
+        node_residuals: residuals,
     })
 }
 

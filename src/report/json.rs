@@ -44,6 +44,8 @@ struct JsonNode<'a> {
     name: &'a str,
     kind: &'static str,
     pressure_pa: f64,
+    /// Relative flow-balance residual (null at pressure ports, whose flow is free).
+    balance_residual: Option<f64>,
 }
 
 #[derive(Serialize)]
@@ -122,6 +124,7 @@ pub fn to_json(network: &Network, state: &SteadyState) -> String {
                 name: &n.name,
                 kind: role(n.port),
                 pressure_pa: sol.pressures[i],
+                balance_residual: sol.node_residuals[i],
             })
             .collect(),
         ports: network
