@@ -142,7 +142,7 @@ pub fn solve_command(req: &SolveRequest<'_>) -> Result<String, Error> {
     let mut text = report::render(&network, &state, req.format);
     if req.sensitivity {
         let json = req.format == report::Format::Json;
-        let sens = sensitivity_text(req.chip, json)?;
+        let sens = sensitivity_of(&network, req.chip, json)?;
         if json {
             // One JSON document: the solution and the sensitivities side by side.
             text = format!(
@@ -415,7 +415,10 @@ pub fn size_command(req: &DesignRequest<'_>) -> Result<String, Error> {
 
 /// Sensitivity table of a chip's target channels (or every channel if it has no flow targets).
 pub fn sensitivity_text(chip: &Path, json: bool) -> Result<String, Error> {
-    let net = load_chip(chip)?;
+    sensitivity_of(&load_chip(chip)?, chip, json)
+}
+
+fn sensitivity_of(net: &network::Network, chip: &Path, json: bool) -> Result<String, Error> {
     let mut targets: Vec<network::ChannelId> = Vec::new();
     for t in &net.design.targets {
         match &t.kind {
@@ -430,11 +433,11 @@ pub fn sensitivity_text(chip: &Path, json: bool) -> Result<String, Error> {
         targets = (0..net.channels.len()).map(network::ChannelId).collect();
     }
     targets.dedup();
-    let s = analysis::design::sensitivities(&net, &targets).map_err(|source| Error::Solve {
+    let s = analysis::design::sensitivities(net, &targets).map_err(|source| Error::Solve {
         origin: chip.display().to_string(),
         source,
     })?;
-    Ok(report::sensitivity_report(&net, &s, json))
+    Ok(report::sensitivity_report(net, &s, json))
 }
 
 /// What the `plot` command needs.

@@ -1,12 +1,10 @@
 //! The `rillnet` command as a user meets it: shipped examples, output formats, output files,
 //! and every kind of bad input (exit code 2, a message naming the problem and its place).
 
-use assert_cmd::Command;
-use std::path::{Path, PathBuf};
+mod common;
 
-fn rillnet() -> Command {
-    Command::cargo_bin("rillnet").unwrap()
-}
+use common::{json_of, rillnet};
+use std::path::{Path, PathBuf};
 
 fn examples() -> Vec<PathBuf> {
     let mut v: Vec<PathBuf> = std::fs::read_dir("networks")
@@ -55,20 +53,6 @@ fn solve_text(name: &str, text: &str) -> (i32, String) {
         out.status.code().unwrap_or(-1),
         String::from_utf8_lossy(&out.stderr).into_owned(),
     )
-}
-
-fn json_of(path: &Path) -> serde_json::Value {
-    let out = rillnet()
-        .args(["solve", "--format", "json"])
-        .arg(path)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    serde_json::from_slice(&out.stdout).unwrap()
 }
 
 #[test]

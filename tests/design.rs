@@ -3,7 +3,9 @@
 //! (Kirchhoff; e.g. Bruus, Theoretical Microfluidics 2008, ch. 4), and for equal sections the
 //! resistance is proportional to length (Hagen–Poiseuille / rectangle series).
 
-use assert_cmd::Command;
+mod common;
+
+use common::{channel_flow, json_of, rillnet};
 use rillnet::analysis::design::{self, Adjustable, Design, SizeDim, SizeVar, Target, TargetKind};
 use rillnet::prelude::*;
 use rillnet::units::Density;
@@ -360,8 +362,7 @@ fn adjoint_sensitivities_match_central_differences() {
 fn tuned_and_sized_files_solve_back_to_the_reported_flows() {
     let dir = tempfile::tempdir().unwrap();
     let tuned = dir.path().join("tuned.yaml");
-    let out = Command::cargo_bin("rillnet")
-        .unwrap()
+    let out = rillnet()
         .args([
             "tune",
             "networks/perfusion_tuning.yaml",
@@ -379,30 +380,13 @@ fn tuned_and_sized_files_solve_back_to_the_reported_flows() {
     );
     let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
     assert_eq!(report["feasible"], true);
-    let solved = Command::cargo_bin("rillnet")
-        .unwrap()
-        .args(["solve", "--format", "json"])
-        .arg(&tuned)
-        .output()
-        .unwrap();
-    assert!(solved.status.success());
-    let v: serde_json::Value = serde_json::from_slice(&solved.stdout).unwrap();
-    let flow = |name: &str| {
-        v["channels"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|c| c["name"] == name)
-            .unwrap()["flow_m3_per_s"]
-            .as_f64()
-            .unwrap()
-    };
+    let v = json_of(&tuned);
+    let flow = |name: &str| channel_flow(&v, name);
     assert!((flow("chamber_mid") / (20e-9 / 60.0) - 1.0).abs() < 1e-9);
     assert!((flow("chamber_left") / flow("chamber_right") - 1.0).abs() < 1e-9);
 
     let sized = dir.path().join("sized.yaml");
-    let out = Command::cargo_bin("rillnet")
-        .unwrap()
+    let out = rillnet()
         .args(["size", "networks/gradient_splitter_sizing.yaml", "--output"])
         .arg(&sized)
         .output()
@@ -412,28 +396,12 @@ fn tuned_and_sized_files_solve_back_to_the_reported_flows() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
-    let solved = Command::cargo_bin("rillnet")
-        .unwrap()
-        .args(["solve", "--format", "json"])
-        .arg(&sized)
-        .output()
-        .unwrap();
-    let v: serde_json::Value = serde_json::from_slice(&solved.stdout).unwrap();
-    let flow = |name: &str| {
-        v["channels"]
-            .as_array()
-            .unwrap()
-            .iter()
-            .find(|c| c["name"] == name)
-            .unwrap()["flow_m3_per_s"]
-            .as_f64()
-            .unwrap()
-    };
+    let v = json_of(&sized);
+    let flow = |name: &str| channel_flow(&v, name);
     assert!((flow("lane_2") / flow("lane_1") - 2.0).abs() < 1e-9);
     assert!((flow("lane_3") / flow("lane_1") - 2.0).abs() < 1e-9);
     // The original files are untouched, and a second run refuses to overwrite.
-    let again = Command::cargo_bin("rillnet")
-        .unwrap()
+    let again = rillnet()
         .args(["size", "networks/gradient_splitter_sizing.yaml", "--output"])
         .arg(&sized)
         .output()
@@ -461,19 +429,13 @@ fn design_input_errors_are_placed() {
         let p = dir.path().join("c.yaml");
         let _ = std::fs::remove_file(&p);
         std::fs::write(&p, base.replacen(from, to, 1)).unwrap();
-        let out = Command::cargo_bin("rillnet")
-            .unwrap()
-            .arg("tune")
-            .arg(&p)
-            .output()
-            .unwrap();
+        let out = rillnet().arg("tune").arg(&p).output().unwrap();
         let err = String::from_utf8_lossy(&out.stderr);
         assert_eq!(out.status.code(), Some(2), "{err}");
         assert!(err.contains(needle), "'{needle}' missing: {err}");
     }
     // A chip without targets cannot be tuned.
-    let out = Command::cargo_bin("rillnet")
-        .unwrap()
+    let out = rillnet()
         .args(["tune", "networks/reagent_mixer.yaml"])
         .output()
         .unwrap();

@@ -1,12 +1,10 @@
 //! Pictures: well-formed SVG (parsed) and PNG (decoded), the expected marks and labels,
 //! byte-identical output for the same input, and text drawn without system fonts.
 
-use assert_cmd::Command;
-use std::path::Path;
+mod common;
 
-fn rillnet() -> Command {
-    Command::cargo_bin("rillnet").unwrap()
-}
+use common::{json_of, rillnet};
+use std::path::Path;
 
 fn plot(args: &[&str], chip: &Path, out: &Path) -> std::process::Output {
     rillnet()
@@ -256,17 +254,7 @@ fn chip_pictures_for_every_shipped_example() {
             String::from_utf8_lossy(&out.stderr)
         );
         let svg = std::fs::read_to_string(&svg_path).unwrap();
-        let text = String::from_utf8_lossy(
-            &Command::cargo_bin("rillnet")
-                .unwrap()
-                .args(["solve", "--format", "json"])
-                .arg(&chip)
-                .output()
-                .unwrap()
-                .stdout,
-        )
-        .into_owned();
-        let v: serde_json::Value = serde_json::from_str(&text).unwrap();
+        let v = json_of(&chip);
         let n_channels = v["channels"].as_array().unwrap().len();
         assert_eq!(
             channel_lines(&svg),

@@ -748,14 +748,15 @@ pub fn size(network: &Network, design: &Design) -> Result<SizeResult, DesignErro
     let evaluate = |z: &[f64]| -> Result<Evaluation, DesignError> {
         let net = apply(network, vars, z)?;
         let g = conductances(&net);
-        // Rows need current flows for split scales: solve once without gradients first.
-        let s0 = solve_states(&net, &g, &[drive_values(&net)])?;
-        let rws = rows(&design.targets, &s0[0].flows);
+        // The measures' coefficients do not depend on the flows (only the split scale Q_ref
+        // does), so one solve gives both the gradients and the flows for the scales.
+        let unscaled = rows(&design.targets, &vec![1.0; net.channels.len()]);
         let Gradients {
             grads,
             pressures: p,
             flows: q,
-        } = measure_gradients(&net, &g, &rws)?;
+        } = measure_gradients(&net, &g, &unscaled)?;
+        let rws = rows(&design.targets, &q);
         let res: Vec<f64> = rws.iter().map(|r| r.residual(&p, &q)).collect();
         // Jacobian d(res)/dz.
         let jac: Vec<Vec<f64>> = rws
