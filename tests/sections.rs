@@ -166,6 +166,23 @@ fn numerical_solver_reproduces_the_closed_forms() {
         1e-4,
         None,
     );
+    // Circle as a fine polygon (1440 sides: its own area deficit is (2π/1440)²/6 ≈ 3e-6).
+    let r = 50e-6;
+    let polygon = Shape::Polygon {
+        points: (0..1440)
+            .map(|k| {
+                let t = 2.0 * PI * k as f64 / 1440.0;
+                [l(r * t.cos()), l(r * t.sin())]
+            })
+            .collect(),
+    };
+    let sol = polygon.solve_numeric(&NumericOptions::default()).unwrap();
+    let k = PI * r.powi(4) / 8.0; // Hagen–Poiseuille
+    assert!(
+        rel(sol.conductance_factor, k) < 1e-4,
+        "{:e}",
+        rel(sol.conductance_factor, k)
+    );
     // Annulus (two curved walls, a hole).
     numeric_vs_closed(
         Shape::Annulus {
