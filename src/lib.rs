@@ -303,6 +303,17 @@ fn rewrite_failed(chip: &Path, what: &str) -> Error {
     }
 }
 
+/// Write a copy of the chip file to the new file `out` with each (key path, value) replaced in
+/// place, keeping comments and layout.
+fn write_edited_copy(chip: &Path, out: &Path, edits: &[([&str; 3], String)]) -> Result<(), Error> {
+    let mut text = chip_text(chip)?;
+    for (path, value) in edits {
+        text = format::replace_value(&text, path, value)
+            .ok_or_else(|| rewrite_failed(chip, &path.join(".")))?;
+    }
+    output::write_new_file(out, text.as_bytes(), &[chip])
+}
+
 /// What `tune` and `size` need.
 #[derive(Clone, Debug)]
 pub struct DesignRequest<'a> {
@@ -324,27 +335,28 @@ pub fn tune_command(req: &DesignRequest<'_>) -> Result<String, Error> {
         source,
     })?;
     if let Some(out) = req.output {
-        let mut text = chip_text(req.chip)?;
-        for s in &r.settings {
-            let node = &net.nodes[s.node.0];
-            let (key, value) = match node.port {
-                network::Port::Flow(_) => (
-                    "flow",
-                    format!("{} uL/min", units::display::ul_per_min(s.after)),
-                ),
-                _ => (
-                    "pressure",
-                    format!("{} mbar", units::display::mbar(s.after)),
-                ),
-            };
-            text = format::replace_value(
-                &text,
-                &["nodes", &node.name, key],
-                &value_literal(req.chip, &value),
-            )
-            .ok_or_else(|| rewrite_failed(req.chip, &format!("nodes.{}.{key}", node.name)))?;
-        }
-        output::write_new_file(out, text.as_bytes(), &[req.chip])?;
+        let edits = r
+            .settings
+            .iter()
+            .map(|s| {
+                let node = &net.nodes[s.node.0];
+                let (key, value) = match node.port {
+                    network::Port::Flow(_) => (
+                        "flow",
+                        format!("{} uL/min", units::display::ul_per_min(s.after)),
+                    ),
+                    _ => (
+                        "pressure",
+                        format!("{} mbar", units::display::mbar(s.after)),
+                    ),
+                };
+                Ok((
+                    ["nodes", node.name.as_str(), key],
+                    value_literal(req.chip, &value),
+                ))
+            })
+            .collect::<Result<Vec<_>, Error>>()?;
+        write_edited_copy(req.chip, out, &edits)?;
     }
     Ok(report::tune_report(&net, &r, req.json))
 }
@@ -391,24 +403,26 @@ pub fn size_command(req: &DesignRequest<'_>) -> Result<String, Error> {
         source,
     })?;
     if let Some(out) = req.output {
-        let mut text = chip_text(req.chip)?;
-        for s in &r.sizes {
-            let ch = &r.network.channels[s.var.channel.0];
-            let (key, value) = match s.var.dim {
-                analysis::design::SizeDim::Length => (
-                    "length",
-                    value_literal(req.chip, &format!("{} mm", s.after * 1e3)),
-                ),
-                analysis::design::SizeDim::Width => (
-                    "section",
-                    section_literal(req.chip, &r.network.sections[ch.section.0].shape)
-                        .ok_or_else(|| rewrite_failed(req.chip, "a section"))?,
-                ),
-            };
-            text = format::replace_value(&text, &["channels", &ch.name, key], &value)
-                .ok_or_else(|| rewrite_failed(req.chip, &format!("channels.{}.{key}", ch.name)))?;
-        }
-        output::write_new_file(out, text.as_bytes(), &[req.chip])?;
+        let edits = r
+            .sizes
+            .iter()
+            .map(|s| {
+                let ch = &r.network.channels[s.var.channel.0];
+                let (key, value) = match s.var.dim {
+                    analysis::design::SizeDim::Length => (
+                        "length",
+                        value_literal(req.chip, &format!("{} mm", s.after * 1e3)),
+                    ),
+                    analysis::design::SizeDim::Width => (
+                        "section",
+                        section_literal(req.chip, &r.network.sections[ch.section.0].shape)
+                            .ok_or_else(|| rewrite_failed(req.chip, "a section"))?,
+                    ),
+                };
+                Ok((["channels", ch.name.as_str(), key], value))
+            })
+            .collect::<Result<Vec<_>, Error>>()?;
+        write_edited_copy(req.chip, out, &edits)?;
     }
     Ok(report::size_report(&net, &r, req.run, req.pitch, req.json))
 }

@@ -63,6 +63,26 @@ pub struct SteadyState {
 }
 
 impl SteadyState {
+    /// Channels carrying flow out of `node`: (channel index, node at the other end, |flow|),
+    /// in file order.
+    pub fn outflows(&self, network: &Network, node: usize) -> Vec<(usize, usize, f64)> {
+        network
+            .channels
+            .iter()
+            .enumerate()
+            .filter_map(|(k, c)| {
+                let q = self.channels[k].flow;
+                if c.from.0 == node && q > 0.0 {
+                    Some((k, c.to.0, q))
+                } else if c.to.0 == node && q < 0.0 {
+                    Some((k, c.from.0, -q))
+                } else {
+                    None
+                }
+            })
+            .collect()
+    }
+
     /// The operating point of node `i` if it is a port.
     pub fn port(&self, network: &Network, i: usize) -> Option<PortState> {
         match network.nodes[i].port {

@@ -88,6 +88,12 @@ impl FluidSpec {
         let refuse = |field: &str, why: &str| -> Result<(), Misplaced> {
             Err(at(&["fluid", field], why.to_string()))
         };
+        if self.glycerol_mass_fraction.is_some() && self.model != FluidModel::GlycerolWater {
+            refuse(
+                "glycerol_mass_fraction",
+                "only 'model: glycerol-water' takes a glycerol fraction",
+            )?;
+        }
         let (mu, rho) = match self.model {
             FluidModel::Constant => {
                 if self.temperature.is_some() {
@@ -95,12 +101,6 @@ impl FluidSpec {
                         "temperature",
                         "a constant fluid takes no temperature; use 'model: water' or \
                          'model: glycerol-water' to compute properties at a temperature",
-                    )?;
-                }
-                if self.glycerol_mass_fraction.is_some() {
-                    refuse(
-                        "glycerol_mass_fraction",
-                        "only 'model: glycerol-water' takes a glycerol fraction",
                     )?;
                 }
                 let mu = self.viscosity.ok_or_else(|| {
@@ -123,12 +123,6 @@ impl FluidSpec {
                     refuse(
                         "viscosity",
                         "model water computes the viscosity; remove 'viscosity' or the model",
-                    )?;
-                }
-                if self.glycerol_mass_fraction.is_some() {
-                    refuse(
-                        "glycerol_mass_fraction",
-                        "only 'model: glycerol-water' takes a glycerol fraction",
                     )?;
                 }
                 let t = need_temperature("water")?;

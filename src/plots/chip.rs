@@ -470,20 +470,10 @@ impl Figure for ChipPicture<'_> {
                 if !matches!(node.port, Port::Junction) {
                     continue;
                 }
-                let outgoing: Vec<(usize, f64)> = net
-                    .channels
-                    .iter()
-                    .enumerate()
-                    .filter_map(|(k, c)| {
-                        let q = st.channels[k].flow;
-                        if c.from.0 == i && q > 0.0 {
-                            Some((k, q))
-                        } else if c.to.0 == i && q < 0.0 {
-                            Some((k, -q))
-                        } else {
-                            None
-                        }
-                    })
+                let outgoing: Vec<(usize, f64)> = st
+                    .outflows(net, i)
+                    .into_iter()
+                    .map(|(k, _, q)| (k, q))
                     .collect();
                 if outgoing.len() < 2 {
                     continue;

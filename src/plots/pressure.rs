@@ -51,20 +51,9 @@ impl PressurePicture {
             seen[i] = true;
             loop {
                 // The outgoing channel with the largest flow.
-                let next = network
-                    .channels
-                    .iter()
-                    .enumerate()
-                    .filter_map(|(k, c)| {
-                        let q = state.channels[k].flow;
-                        if c.from.0 == cur && q > 0.0 {
-                            Some((k, c.to.0, q))
-                        } else if c.to.0 == cur && q < 0.0 {
-                            Some((k, c.from.0, -q))
-                        } else {
-                            None
-                        }
-                    })
+                let next = state
+                    .outflows(network, cur)
+                    .into_iter()
                     .filter(|(_, to, _)| !seen[*to])
                     .max_by(|a, b| a.2.total_cmp(&b.2).then(b.0.cmp(&a.0)));
                 let Some((k, to, _)) = next else { break };
