@@ -3,7 +3,7 @@
 
 mod common;
 
-use common::{json_of, rillnet};
+use common::{json_of, rillnet, run_json};
 use std::path::{Path, PathBuf};
 
 fn examples() -> Vec<PathBuf> {
@@ -609,21 +609,12 @@ fn fluid_models_in_the_chip_file() {
 #[test]
 fn section_command_reports_figures_in_json() {
     // Equilateral triangle: f·Re = 40/3 and τ_max/G = a√3/8 (closed forms, Shah & London 1978).
-    let out = rillnet()
-        .args([
-            "section",
-            "{shape: triangle, side: 100 um}",
-            "--format",
-            "json",
-        ])
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let v = run_json([
+        "section",
+        "{shape: triangle, side: 100 um}",
+        "--format",
+        "json",
+    ]);
     for key in [
         "area_m2",
         "perimeter_m",
@@ -643,21 +634,12 @@ fn section_command_reports_figures_in_json() {
     );
 
     // The KOH trapezoid of the issue: numerical, with an error estimate below 1e-4.
-    let out = rillnet()
-        .args([
-            "section",
-            "{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}",
-            "--format",
-            "json",
-        ])
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let v: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let v = run_json([
+        "section",
+        "{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}",
+        "--format",
+        "json",
+    ]);
     assert!(v["relative_error_estimate"].as_f64().unwrap() < 1e-4);
     // Bottom width 120 − 2·40/tan(54.74°) = 63.43 µm; area = (120 + 63.43)/2·40 µm².
     let bottom = 120.0 - 80.0 / 54.74f64.to_radians().tan();

@@ -238,16 +238,11 @@ fn flow_driven_port_needs_the_closed_form_pressure() {
     assert_relative_eq!(q[1] / q[2], r2 / r1, max_relative = 1e-12);
 }
 
-#[test]
-fn rectangle_network_uses_the_series_resistance() {
-    // One rectangular channel: R = μL/K with K from the exact series; checked against the
-    // worked value R = 1.40156e13 Pa·s/m³ for water (μ = 1.0016 mPa·s, IAPWS R12-08) in a
-    // 100 µm × 50 µm channel of 1 cm (computed from Bruus 2008, eq. 3.56).
-    let mut b = NetworkBuilder::new(Fluid::constant(
-        Viscosity::from_si(1.0016e-3),
-        rillnet::units::Density::from_si(998.2),
-    ));
-    b.add_node("in", Port::Flow(VolumeFlow::from_si(1e-9 / 60.0)))
+/// The worked example of both rectangle checks: water at 20 °C (μ = 1.0016 mPa·s, IAPWS
+/// R12-08) pumped at 1 µL/min through one 100 µm × 50 µm channel of 1 cm to an outlet.
+fn worked_example() -> Network {
+    let mut b = NetworkBuilder::new(Fluid::WATER_20C);
+    b.add_node("pump", Port::Flow(VolumeFlow::from_si(1e-9 / 60.0)))
         .unwrap();
     b.add_node("out", Port::Pressure(Pressure::from_si(0.0)))
         .unwrap();
@@ -260,9 +255,17 @@ fn rectangle_network_uses_the_series_resistance() {
             },
         )
         .unwrap();
-    b.add_channel("c", "in", "out", s, Length::from_si(0.01))
+    b.add_channel("c", "pump", "out", s, Length::from_si(0.01))
         .unwrap();
-    let net = b.build().unwrap();
+    b.build().unwrap()
+}
+
+#[test]
+fn rectangle_network_uses_the_series_resistance() {
+    // One rectangular channel: R = μL/K with K from the exact series; checked against the
+    // worked value R = 1.40156e13 Pa·s/m³ for water (μ = 1.0016 mPa·s, IAPWS R12-08) in a
+    // 100 µm × 50 µm channel of 1 cm (computed from Bruus 2008, eq. 3.56).
+    let net = worked_example();
     let sol = solve(&net).unwrap();
     // At 1 µL/min the drop is 233.59 Pa (same worked example).
     assert_relative_eq!(sol.pressures[0], 233.59, max_relative = 2e-5);
@@ -301,23 +304,7 @@ fn rectangle_wall_shear_mean_is_force_balance_and_max_is_series() {
     // Worked example (computed from the rectangle series, Bruus 2008 eq. 3.56, and its wall
     // derivative): water μ = 1.0016 mPa·s, 100 µm × 50 µm, L = 1 cm, Q = 1 µL/min:
     // ΔP = 233.59 Pa, mean wall shear 0.38932 Pa, maximum 0.54314 Pa.
-    let mut b = NetworkBuilder::new(Fluid::WATER_20C);
-    b.add_node("pump", Port::Flow(VolumeFlow::from_si(1e-9 / 60.0)))
-        .unwrap();
-    b.add_node("out", Port::Pressure(Pressure::from_si(0.0)))
-        .unwrap();
-    let s = b
-        .add_section(
-            "r",
-            Shape::Rectangle {
-                width: Length::from_si(100e-6),
-                height: Length::from_si(50e-6),
-            },
-        )
-        .unwrap();
-    b.add_channel("c", "pump", "out", s, Length::from_si(0.01))
-        .unwrap();
-    let net = b.build().unwrap();
+    let net = worked_example();
     let st = rillnet::analysis::steady_state(&net).unwrap();
     let c = &st.channels[0];
     // Force balance, exact for any shape: τ_mean = G·A/P.

@@ -5,7 +5,7 @@
 
 mod common;
 
-use common::{channel_flow, json_of, rillnet};
+use common::{channel_flow, json_of, rillnet, run_json};
 use rillnet::analysis::design::{self, Adjustable, Design, SizeDim, SizeVar, Target, TargetKind};
 use rillnet::prelude::*;
 use rillnet::units::Density;
@@ -141,11 +141,12 @@ fn symmetric_tree_is_equal_and_sizing_restores_equality() {
 }
 
 /// Two pressure controllers into a Y, with targets.
-fn y_chip(targets: Vec<Target>, bounds: (f64, f64)) -> Network {
+/// Two pressure ports p1, p2 into a Y that drains to an outlet.
+fn y_network(p1: f64, p2: f64) -> Network {
     let mut b = NetworkBuilder::new(fluid());
-    b.add_node("p1", Port::Pressure(Pressure::from_si(5000.0)))
+    b.add_node("p1", Port::Pressure(Pressure::from_si(p1)))
         .unwrap();
-    b.add_node("p2", Port::Pressure(Pressure::from_si(3000.0)))
+    b.add_node("p2", Port::Pressure(Pressure::from_si(p2)))
         .unwrap();
     b.add_node("j", Port::Junction).unwrap();
     b.add_node("out", Port::Pressure(Pressure::from_si(0.0)))
@@ -157,7 +158,11 @@ fn y_chip(targets: Vec<Target>, bounds: (f64, f64)) -> Network {
         .unwrap();
     b.add_channel("c3", "j", "out", s, Length::from_si(10e-3))
         .unwrap();
-    let mut net = b.build().unwrap();
+    b.build().unwrap()
+}
+
+fn y_chip(targets: Vec<Target>, bounds: (f64, f64)) -> Network {
+    let mut net = y_network(5000.0, 3000.0);
     net.design = Design {
         targets,
         adjustable: vec![
@@ -200,22 +205,7 @@ fn tuning_reaches_feasible_targets_to_1e9() {
     }
     assert!(r.settings.iter().all(|s| s.at_bound == 0));
     // Independently: solving the chip at the tuned settings gives the wanted flows.
-    let mut b = NetworkBuilder::new(fluid());
-    b.add_node("p1", Port::Pressure(Pressure::from_si(r.settings[0].after)))
-        .unwrap();
-    b.add_node("p2", Port::Pressure(Pressure::from_si(r.settings[1].after)))
-        .unwrap();
-    b.add_node("j", Port::Junction).unwrap();
-    b.add_node("out", Port::Pressure(Pressure::from_si(0.0)))
-        .unwrap();
-    let s = rect(&mut b, "s", 100e-6);
-    b.add_channel("c1", "p1", "j", s, Length::from_si(10e-3))
-        .unwrap();
-    b.add_channel("c2", "p2", "j", s, Length::from_si(10e-3))
-        .unwrap();
-    b.add_channel("c3", "j", "out", s, Length::from_si(10e-3))
-        .unwrap();
-    let sol = solve(&b.build().unwrap()).unwrap();
+    let sol = solve(&y_network(r.settings[0].after, r.settings[1].after)).unwrap();
     assert!((sol.flows[0] / (3e-9 / 60.0) - 1.0).abs() < 1e-9);
     assert!((sol.flows[1] / (1e-9 / 60.0) - 1.0).abs() < 1e-9);
 }
@@ -362,23 +352,14 @@ fn adjoint_sensitivities_match_central_differences() {
 fn tuned_and_sized_files_solve_back_to_the_reported_flows() {
     let dir = tempfile::tempdir().unwrap();
     let tuned = dir.path().join("tuned.yaml");
-    let out = rillnet()
-        .args([
-            "tune",
-            "networks/perfusion_tuning.yaml",
-            "--format",
-            "json",
-            "--output",
-        ])
-        .arg(&tuned)
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
-    let report: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let report = run_json([
+        std::ffi::OsStr::new("tune"),
+        "networks/perfusion_tuning.yaml".as_ref(),
+        "--format".as_ref(),
+        "json".as_ref(),
+        "--output".as_ref(),
+        tuned.as_os_str(),
+    ]);
     assert_eq!(report["feasible"], true);
     let v = json_of(&tuned);
     let flow = |name: &str| channel_flow(&v, name);

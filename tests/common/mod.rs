@@ -9,19 +9,30 @@ pub fn rillnet() -> Command {
     Command::cargo_bin("rillnet").unwrap()
 }
 
-/// `rillnet solve --format json FILE`, parsed; panics with stderr when it fails.
-pub fn json_of(path: &Path) -> serde_json::Value {
-    let out = rillnet()
-        .args(["solve", "--format", "json"])
-        .arg(path)
-        .output()
-        .unwrap();
+/// Run `rillnet` with `args` (which must ask for JSON); the parsed output. Panics with the
+/// error output when the command fails.
+pub fn run_json<I, S>(args: I) -> serde_json::Value
+where
+    I: IntoIterator<Item = S>,
+    S: AsRef<std::ffi::OsStr>,
+{
+    let out = rillnet().args(args).output().unwrap();
     assert!(
         out.status.success(),
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
     serde_json::from_slice(&out.stdout).unwrap()
+}
+
+/// `rillnet solve --format json FILE`, parsed.
+pub fn json_of(path: &Path) -> serde_json::Value {
+    run_json([
+        std::ffi::OsStr::new("solve"),
+        "--format".as_ref(),
+        "json".as_ref(),
+        path.as_os_str(),
+    ])
 }
 
 /// A channel's flow [m³/s] from a solve report.
