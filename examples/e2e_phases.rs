@@ -14,42 +14,49 @@ fn main() {
     );
     drop(parsed);
     let t = Instant::now();
-    let net = rillnet::load_chip(std::path::Path::new(&path)).unwrap_or_else(|e| {
+    let chip = rillnet::load_chip(std::path::Path::new(&path)).unwrap_or_else(|e| {
         eprintln!("{e}");
         std::process::exit(2)
     });
+    let net = &chip.network;
     println!(
         "load (read, parse, validate, graph): {:8.1} ms",
         t.elapsed().as_secs_f64() * 1e3
     );
     let t = Instant::now();
-    let sys = rillnet::analysis::kirchhoff::KirchhoffSystem::new(&net);
-    let g = rillnet::analysis::kirchhoff::conductances(&net);
+    let sys = rillnet::analysis::kirchhoff::KirchhoffSystem::new(net);
+    let g = rillnet::analysis::kirchhoff::conductances(net);
     println!("  assemble: {:8.1} ms", t.elapsed().as_secs_f64() * 1e3);
     let t = Instant::now();
     let sym = rillnet::solver::SymbolicCholesky::analyse(sys.pattern(), Default::default())
         .expect("analyse");
     println!("  analyse: {:8.1} ms", t.elapsed().as_secs_f64() * 1e3);
     let t = Instant::now();
-    let sol = rillnet::analysis::kirchhoff::solve_with(&net, &sys, &sym, &g).expect("solve");
+    let sol = rillnet::analysis::kirchhoff::solve_with(net, &sys, &sym, &g).expect("solve");
     println!(
         "  factor+solve+check: {:8.1} ms (residual {:e})",
         t.elapsed().as_secs_f64() * 1e3,
         sol.max_relative_residual
     );
     let t = Instant::now();
-    let state = rillnet::analysis::steady_state(&net).expect("solve");
+    let state = rillnet::analysis::steady_state(net).expect("solve");
     println!(
         "solve (assemble, factor, check):     {:8.1} ms",
         t.elapsed().as_secs_f64() * 1e3
     );
+    let outcome = rillnet::Outcome::Solved {
+        chip: Box::new(chip.clone()),
+        state,
+        sensitivities: None,
+    };
     for (name, f) in [
         ("json", rillnet::report::Format::Json),
         ("csv", rillnet::report::Format::Csv),
         ("table", rillnet::report::Format::Table),
     ] {
         let t = Instant::now();
-        let s = rillnet::report::render(&net, &state, f);
+        let mut s = Vec::new();
+        rillnet::report::render(&outcome, f, &mut s).expect("render");
         println!(
             "render {name:5} ({:6} kB):            {:8.1} ms",
             s.len() / 1024,

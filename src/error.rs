@@ -4,9 +4,8 @@ use crate::analysis::SolveError;
 use crate::format::InputError;
 use std::path::PathBuf;
 
-/// Everything a command can fail with. [`Error::exit_code`] maps each to the CLI contract:
-/// 2 for bad input or usage, 1 for a check that failed (including a solution whose flow
-/// balance misses its tolerance).
+/// Everything a command can fail with. [`Error::exit_code`] maps each to the CLI contract
+/// (see [`exit`]).
 #[derive(Debug, thiserror::Error)]
 pub enum Error {
     #[error("{0}")]
@@ -27,15 +26,30 @@ pub enum Error {
     },
 }
 
+/// The command line's exit codes.
+pub mod exit {
+    /// Done; every check passed.
+    pub const OK: u8 = 0;
+    /// Done, but a verdict is negative: a limit is exceeded (`check`).
+    pub const CHECK_FAILED: u8 = 1;
+    /// Bad input or usage: the chip file, an argument, or an output path that exists.
+    pub const BAD_INPUT: u8 = 2;
+    /// Results withheld: the solver could not produce a solution that meets its balance
+    /// check (or the matrix was not numerically positive definite).
+    pub const WITHHELD: u8 = 3;
+    /// The output could not be written (disk full, closed standard output, ...).
+    pub const OUTPUT_FAILED: u8 = 4;
+}
+
 impl Error {
     /// Process exit code for this error.
-    pub fn exit_code(&self) -> i32 {
+    pub fn exit_code(&self) -> u8 {
         match self {
-            Error::Input(_) | Error::Read { .. } | Error::Write { .. } => 2,
-            Error::Solve { .. } => 1,
+            Error::Input(_) | Error::Read { .. } | Error::Write { .. } => exit::BAD_INPUT,
+            Error::Solve { .. } => exit::WITHHELD,
             Error::Design { source, .. } => match source {
-                crate::analysis::design::DesignError::Solve(_) => 1,
-                _ => 2,
+                crate::analysis::design::DesignError::Solve(_) => exit::WITHHELD,
+                _ => exit::BAD_INPUT,
             },
         }
     }

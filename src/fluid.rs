@@ -61,7 +61,36 @@ impl Fluid {
 /// A model's result outside its published range: the value is still computed, but the
 /// designer is told.
 #[derive(Clone, Debug, PartialEq)]
-pub struct RangeWarning(pub String);
+pub struct RangeWarning {
+    /// The model used outside its range.
+    pub model: FluidModelName,
+    /// The parameter that is out of range.
+    pub parameter: RangeParameter,
+    /// Its value (SI: kelvin for a temperature, a plain fraction for a volume fraction).
+    pub value: f64,
+    /// The range within which the model is published or trusted (SI).
+    pub valid: [f64; 2],
+}
+
+/// The fluid models that can report a [`RangeWarning`].
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum FluidModelName {
+    /// IAPWS R12-08 water viscosity.
+    Water,
+    /// Cheng (2008) glycerol–water viscosity.
+    GlycerolWater,
+    /// Einstein's dilute-suspension law.
+    Einstein,
+    /// Krieger–Dougherty suspension viscosity.
+    KriegerDougherty,
+}
+
+/// Which parameter of a fluid model is out of range.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum RangeParameter {
+    Temperature,
+    VolumeFraction,
+}
 
 fn celsius(t: Temperature) -> f64 {
     t.si() - 273.15
@@ -137,10 +166,11 @@ pub fn water_viscosity(t: Temperature) -> (Viscosity, Option<RangeWarning>) {
     }
     let mu1 = (rb * s).exp();
     let tc = celsius(t);
-    let warning = (!(0.0..=100.0).contains(&tc)).then(|| {
-        RangeWarning(format!(
-            "water viscosity at {tc:.1} °C is outside the 0–100 °C liquid range this model is used for"
-        ))
+    let warning = (!(0.0..=100.0).contains(&tc)).then_some(RangeWarning {
+        model: FluidModelName::Water,
+        parameter: RangeParameter::Temperature,
+        value: t.si(),
+        valid: [273.15, 373.15],
     });
     (Viscosity::from_si(mu0 * mu1 * 1e-6), warning)
 }
@@ -165,10 +195,11 @@ pub fn glycerol_water_viscosity(
     let b = (4.9 + 0.036 * tc) * ac.powf(2.5);
     let a = 1.0 - c + ac * b * c * (1.0 - c) / (ac * c + b * (1.0 - c));
     let mu = mu_w.powf(a) * mu_g.powf(1.0 - a);
-    let warning = (!(0.0..=100.0).contains(&tc)).then(|| {
-        RangeWarning(format!(
-            "glycerol–water viscosity at {tc:.1} °C is outside the 0–100 °C range of Cheng's correlation"
-        ))
+    let warning = (!(0.0..=100.0).contains(&tc)).then_some(RangeWarning {
+        model: FluidModelName::GlycerolWater,
+        parameter: RangeParameter::Temperature,
+        value: t.si(),
+        valid: [273.15, 373.15],
     });
     (Viscosity::from_si(mu * 1e-3), warning)
 }
@@ -211,11 +242,11 @@ impl SuspensionModel {
         }
         match self {
             SuspensionModel::Einstein => {
-                let w = (phi > 0.05).then(|| {
-                    RangeWarning(format!(
-                        "volume fraction {phi} is beyond the dilute range of Einstein's law (φ ≲ 0.05); \
-                         use model: krieger-dougherty"
-                    ))
+                let w = (phi > 0.05).then_some(RangeWarning {
+                    model: FluidModelName::Einstein,
+                    parameter: RangeParameter::VolumeFraction,
+                    value: phi,
+                    valid: [0.0, 0.05],
                 });
                 Ok((1.0 + 2.5 * phi, w))
             }
@@ -238,11 +269,11 @@ impl SuspensionModel {
                 }
                 // Close to maximum packing the viscosity diverges and the fit is unreliable
                 // (common practice: beyond ~90 % of φ_m).
-                let w = (phi > 0.9 * max_packing).then(|| {
-                    RangeWarning(format!(
-                        "volume fraction {phi} is within 10 % of max_packing {max_packing}; \
-                         the Krieger–Dougherty viscosity diverges there and is unreliable"
-                    ))
+                let w = (phi > 0.9 * max_packing).then_some(RangeWarning {
+                    model: FluidModelName::KriegerDougherty,
+                    parameter: RangeParameter::VolumeFraction,
+                    value: phi,
+                    valid: [0.0, 0.9 * max_packing],
                 });
                 Ok((
                     (1.0 - phi / max_packing).powf(-intrinsic_viscosity * max_packing),

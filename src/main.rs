@@ -1,8 +1,13 @@
-//! The `rillnet` command: parse arguments, call the library, print, map errors to exit codes
-//! (0 ok, 1 a check failed, 2 bad input or usage).
+//! The `rillnet` command: parse arguments, call the library, write its outcome, map errors to
+//! exit codes (see `rillnet::error::exit`: 0 done, 1 a limit check failed, 2 bad input or
+//! usage, 3 results withheld by the solver, 4 output could not be written).
 
-use clap::{Parser, Subcommand, ValueEnum};
-use std::path::PathBuf;
+use clap::{CommandFactory, Parser, Subcommand, ValueEnum};
+use rillnet::commands::{self, ChipInput, Outcome, SensitivityChoice};
+use rillnet::error::exit;
+use rillnet::report::Format;
+use std::io::{IsTerminal, Read, Write};
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 #[derive(Parser)]
@@ -12,6 +17,16 @@ use std::process::ExitCode;
     about = "Laminar flow, pressure and wall shear in microfluidic channel networks"
 )]
 struct Cli {
+    /// Print nothing on standard error but errors (no status lines).
+    #[arg(long, short, global = true, conflicts_with = "verbose")]
+    quiet: bool,
+    /// Also print timings and solver figures on standard error.
+    #[arg(long, short, global = true)]
+    verbose: bool,
+    /// Syntax of a chip read from standard input ('-'); default: guessed from its first
+    /// character ('{' is JSON).
+    #[arg(long, value_enum, global = true)]
+    syntax: Option<SyntaxArg>,
     #[command(subcommand)]
     command: Command,
 }
@@ -20,7 +35,7 @@ struct Cli {
 enum Command {
     /// Solve a chip: every node pressure, channel flow, wall shear and port operating point.
     Solve {
-        /// Chip file (.yaml/.yml, or .json).
+        /// Chip file (.yaml/.yml, or .json); '-' reads standard input.
         file: PathBuf,
         /// Output format.
         #[arg(long, value_enum, default_value_t = OutFormat::Table)]
@@ -31,16 +46,19 @@ enum Command {
         /// Draw the wall-shear margin chart to this new .svg or .png file.
         #[arg(long)]
         plot: Option<PathBuf>,
-        /// Also print d(flow)/d(width, height, length) for the target channels (all channels
-        /// when the chip has no flow targets).
+        /// Also give d(flow)/d(width, height, length), absolute and relative, for the target
+        /// channels (or those named by --channels).
         #[arg(long)]
         sensitivity: bool,
+        /// Channels whose flows --sensitivity differentiates, comma-separated.
+        #[arg(long, value_delimiter = ',', requires = "sensitivity")]
+        channels: Vec<String>,
     },
     /// Tune the adjustable ports (pressure controllers, syringe pumps) to meet the chip's targets.
     Tune {
         /// Chip file with 'targets:' and ports marked 'adjust: {min: ..., max: ...}'.
         file: PathBuf,
-        /// Output format (table or json).
+        /// Output format.
         #[arg(long, value_enum, default_value_t = OutFormat::Table)]
         format: OutFormat,
         /// Write the tuned chip to this new file.
@@ -51,7 +69,7 @@ enum Command {
     Size {
         /// Chip file with 'targets:' and channels marked 'size: {length: {min: ..., max: ...}}'.
         file: PathBuf,
-        /// Output format (table or json).
+        /// Output format.
         #[arg(long, value_enum, default_value_t = OutFormat::Table)]
         format: OutFormat,
         /// Write the sized chip to this new file.
@@ -66,7 +84,7 @@ enum Command {
     },
     /// Draw the chip: flow splits (default) or pressure along the flow paths, to SVG or PNG.
     Plot {
-        /// Chip file.
+        /// Chip file; '-' reads standard input.
         file: PathBuf,
         /// Which picture.
         #[arg(long, value_enum, default_value_t = Show::Splits)]
@@ -80,7 +98,7 @@ enum Command {
     },
     /// Write tables (CSV, JSON, text), every picture and a self-contained HTML page into a new folder.
     Report {
-        /// Chip file.
+        /// Chip file; '-' reads standard input.
         file: PathBuf,
         /// Folder to create (or an empty one).
         #[arg(long, short)]
@@ -89,10 +107,10 @@ enum Command {
         #[arg(long)]
         into_existing: bool,
     },
-    /// Check a chip against its limits (cells' wall-shear limit, chip pressure rating);
-    /// exits 1 when any limit is exceeded.
+    /// Check a chip against its limits (cells' wall-shear limit, chip pressure rating,
+    /// vacuum); exits 1 when any limit is exceeded.
     Check {
-        /// Chip file (.yaml/.yml, or .json).
+        /// Chip file (.yaml/.yml, or .json); '-' reads standard input.
         file: PathBuf,
         /// Output format.
         #[arg(long, value_enum, default_value_t = OutFormat::Table)]
@@ -107,7 +125,7 @@ enum Command {
         /// The section as a mapping in chip-file syntax, e.g.
         /// '{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}'.
         spec: Option<String>,
-        /// Take the section from this chip file (with --name).
+        /// Take the section from this chip file (with --name); '-' reads standard input.
         #[arg(long, requires = "name")]
         file: Option<PathBuf>,
         /// Name of the section in the chip file (CHANNEL.section for an inline one).
@@ -120,13 +138,21 @@ enum Command {
         /// Relative error target for numerical shapes.
         #[arg(long)]
         tolerance: Option<f64>,
-        /// Output format (table or json).
+        /// Output format.
         #[arg(long, value_enum, default_value_t = OutFormat::Table)]
         format: OutFormat,
         /// Draw the velocity field and the wall shear to this new .svg or .png file.
         #[arg(long)]
         plot: Option<PathBuf>,
     },
+    /// Print a shell completion script for rillnet to standard output.
+    Completions {
+        /// The shell.
+        #[arg(value_enum)]
+        shell: clap_complete::Shell,
+    },
+    /// Print rillnet's manual page (roff) to standard output, e.g. `rillnet manual > rillnet.1`.
+    Manual,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -149,59 +175,161 @@ enum OutFormat {
     Csv,
 }
 
-impl From<OutFormat> for rillnet::report::Format {
+#[derive(Clone, Copy, ValueEnum)]
+enum SyntaxArg {
+    Yaml,
+    Json,
+}
+
+impl From<OutFormat> for Format {
     fn from(f: OutFormat) -> Self {
         match f {
-            OutFormat::Table => rillnet::report::Format::Table,
-            OutFormat::Json => rillnet::report::Format::Json,
-            OutFormat::Csv => rillnet::report::Format::Csv,
+            OutFormat::Table => Format::Table,
+            OutFormat::Json => Format::Json,
+            OutFormat::Csv => Format::Csv,
         }
     }
 }
 
-/// Run the command: the text to print and whether every check passed.
-fn run(command: &Command) -> Result<(String, bool), rillnet::Error> {
-    match command {
+fn input_error(flag: &str, message: String) -> rillnet::Error {
+    rillnet::Error::Input(rillnet::format::InputError::whole_file(flag, message))
+}
+
+/// A chip argument: a path, or the text of standard input for `-`.
+struct ChipArg {
+    path: PathBuf,
+    stdin: Option<(String, rillnet::format::Syntax)>,
+}
+
+impl ChipArg {
+    fn new(path: &Path, syntax: Option<SyntaxArg>) -> Result<ChipArg, rillnet::Error> {
+        if path != Path::new("-") {
+            return Ok(ChipArg {
+                path: path.to_path_buf(),
+                stdin: None,
+            });
+        }
+        let mut text = String::new();
+        std::io::stdin()
+            .take(rillnet::format::MAX_FILE_BYTES as u64 + 1)
+            .read_to_string(&mut text)
+            .map_err(|e| input_error("<stdin>", format!("cannot read a chip: {e}")))?;
+        let syntax = match syntax {
+            Some(SyntaxArg::Json) => rillnet::format::Syntax::Json,
+            Some(SyntaxArg::Yaml) => rillnet::format::Syntax::Yaml,
+            None => rillnet::format::Syntax::sniff(&text),
+        };
+        Ok(ChipArg {
+            path: path.to_path_buf(),
+            stdin: Some((text, syntax)),
+        })
+    }
+
+    fn input(&self) -> ChipInput<'_> {
+        match &self.stdin {
+            Some((text, syntax)) => ChipInput::Text {
+                text,
+                syntax: *syntax,
+            },
+            None => ChipInput::File(&self.path),
+        }
+    }
+}
+
+fn length_arg(flag: &str, text: &str) -> Result<f64, rillnet::Error> {
+    text.parse::<rillnet::units::Length>()
+        .map(|l| l.si())
+        .map_err(|e| input_error(flag, e.to_string()))
+}
+
+/// Refuse a picture path whose extension rillnet cannot draw, before any work.
+fn picture_arg(path: Option<&Path>) -> Result<(), rillnet::Error> {
+    match path {
+        Some(p) => rillnet::plots::PictureFormat::from_path(p).map(|_| ()),
+        None => Ok(()),
+    }
+}
+
+/// What to do with an outcome: print it in a format, or write it to a new file.
+struct Delivery<'a> {
+    format: Format,
+    output: Option<&'a Path>,
+}
+
+/// Run the command: its outcome and how to deliver it.
+fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), rillnet::Error> {
+    let chip = |file: &Path| ChipArg::new(file, cli.syntax);
+    let to_stdout = |format: OutFormat| Delivery {
+        format: format.into(),
+        output: None,
+    };
+    let (outcome, delivery, inputs): (Outcome, Delivery, Vec<PathBuf>) = match &cli.command {
         Command::Solve {
             file,
             format,
             output,
             plot,
             sensitivity,
-        } => rillnet::solve_command(&rillnet::SolveRequest {
-            chip: file,
-            format: (*format).into(),
-            output: output.as_deref(),
-            plot: plot.as_deref(),
-            sensitivity: *sensitivity,
-        })
-        .map(|text| (text, true)),
+            channels,
+        } => {
+            picture_arg(plot.as_deref())?;
+            let arg = chip(file)?;
+            let choice = match (sensitivity, channels.is_empty()) {
+                (false, _) => SensitivityChoice::None,
+                (true, true) => SensitivityChoice::Targets,
+                (true, false) => SensitivityChoice::Channels(channels.clone()),
+            };
+            let outcome = commands::solve(&commands::SolveRequest {
+                chip: arg.input(),
+                plot: plot.as_deref(),
+                sensitivity: choice,
+            })?;
+            let delivery = Delivery {
+                format: (*format).into(),
+                output: output.as_deref(),
+            };
+            (outcome, delivery, vec![arg.path])
+        }
+        Command::Check { file, format, plot } => {
+            picture_arg(plot.as_deref())?;
+            let arg = chip(file)?;
+            let outcome = commands::check(&commands::CheckRequest {
+                chip: arg.input(),
+                plot: plot.as_deref(),
+            })?;
+            (outcome, to_stdout(*format), vec![arg.path])
+        }
         Command::Tune {
             file,
             format,
             output,
-        } => rillnet::tune_command(&design_request(
-            file,
-            *format,
-            output.as_deref(),
-            "10 mm",
-            "400 um",
-        )?)
-        .map(|t| (t, true)),
+        } => {
+            let arg = chip(file)?;
+            let outcome = commands::tune(&commands::DesignRequest {
+                chip: arg.input(),
+                output: output.as_deref(),
+                run: 0.0,
+                pitch: 0.0,
+            })?;
+            (outcome, to_stdout(*format), vec![arg.path])
+        }
         Command::Size {
             file,
             format,
             output,
             run,
             pitch,
-        } => rillnet::size_command(&design_request(
-            file,
-            *format,
-            output.as_deref(),
-            run,
-            pitch,
-        )?)
-        .map(|t| (t, true)),
+        } => {
+            let (run, pitch) = (length_arg("--run", run)?, length_arg("--pitch", pitch)?);
+            let arg = chip(file)?;
+            let outcome = commands::size(&commands::DesignRequest {
+                chip: arg.input(),
+                output: output.as_deref(),
+                run,
+                pitch,
+            })?;
+            (outcome, to_stdout(*format), vec![arg.path])
+        }
         Command::Section {
             spec,
             file,
@@ -211,99 +339,148 @@ fn run(command: &Command) -> Result<(String, bool), rillnet::Error> {
             format,
             plot,
         } => {
+            picture_arg(plot.as_deref())?;
             let viscosity = match viscosity {
-                Some(v) => Some(v.parse::<rillnet::units::Viscosity>().map_err(|e| {
-                    rillnet::Error::Input(rillnet::format::InputError::whole_file(
-                        "--viscosity",
-                        e.to_string(),
-                    ))
-                })?),
+                Some(v) => Some(
+                    v.parse::<rillnet::units::Viscosity>()
+                        .map_err(|e| input_error("--viscosity", e.to_string()))?,
+                ),
                 None => None,
             };
-            rillnet::section_command(&rillnet::SectionRequest {
+            let arg = file.as_deref().map(chip).transpose()?;
+            let outcome = commands::section(&commands::SectionRequest {
                 spec: spec.as_deref(),
-                chip: file.as_deref(),
+                chip: arg.as_ref().map(ChipArg::input),
                 name: name.as_deref(),
                 viscosity,
                 tolerance: *tolerance,
-                json: matches!(format, OutFormat::Json),
                 plot: plot.as_deref(),
-            })
-            .map(|text| (text, true))
+            })?;
+            (
+                outcome,
+                to_stdout(*format),
+                arg.map(|a| a.path).into_iter().collect(),
+            )
         }
         Command::Plot {
             file,
             show,
             colour,
             output,
-        } => rillnet::plot_command(&rillnet::PlotRequest {
-            chip: file,
-            pressure_profile: matches!(show, Show::Pressure),
-            colour: match colour {
-                Colour::Pressure => rillnet::plots::ColourBy::Pressure,
-                Colour::Flow => rillnet::plots::ColourBy::Flow,
-                Colour::Margin => rillnet::plots::ColourBy::Margin,
-            },
-            output,
-        })
-        .map(|t| (t, true)),
+        } => {
+            picture_arg(Some(output))?;
+            let arg = chip(file)?;
+            let outcome = commands::plot(&commands::PlotRequest {
+                chip: arg.input(),
+                pressure_profile: matches!(show, Show::Pressure),
+                colour: match colour {
+                    Colour::Pressure => rillnet::plots::ColourBy::Pressure,
+                    Colour::Flow => rillnet::plots::ColourBy::Flow,
+                    Colour::Margin => rillnet::plots::ColourBy::Margin,
+                },
+                output,
+            })?;
+            (outcome, to_stdout(OutFormat::Table), vec![arg.path])
+        }
         Command::Report {
             file,
             output,
             into_existing,
-        } => rillnet::report_command(&rillnet::ReportRequest {
-            chip: file,
-            folder: output,
-            into_existing: *into_existing,
-        })
-        .map(|t| (t, true)),
-        Command::Check { file, format, plot } => rillnet::check_command(&rillnet::CheckRequest {
-            chip: file,
-            format: (*format).into(),
-            plot: plot.as_deref(),
-        })
-        .map(|o| (o.text, o.passed)),
+        } => {
+            let arg = chip(file)?;
+            let outcome = commands::report(&commands::ReportRequest {
+                chip: arg.input(),
+                folder: output,
+                into_existing: *into_existing,
+            })?;
+            (outcome, to_stdout(OutFormat::Table), vec![arg.path])
+        }
+        Command::Completions { .. } | Command::Manual => unreachable!("handled before run"),
+    };
+    Ok((
+        outcome,
+        delivery.format,
+        delivery.output.map(Path::to_path_buf),
+        inputs,
+    ))
+}
+
+/// Write to standard error, ignoring failure (nowhere left to report it).
+fn say(text: &str) {
+    let _ = writeln!(std::io::stderr(), "{text}");
+}
+
+/// Print the completion script or manual page.
+fn generated(command: &Command) -> Option<std::io::Result<()>> {
+    let mut out = std::io::stdout().lock();
+    match command {
+        Command::Completions { shell } => {
+            clap_complete::generate(*shell, &mut Cli::command(), "rillnet", &mut out);
+            Some(out.flush())
+        }
+        Command::Manual => Some(clap_mangen::Man::new(Cli::command()).render(&mut out)),
+        _ => None,
     }
 }
 
-fn length_arg(flag: &str, text: &str) -> Result<f64, rillnet::Error> {
-    text.parse::<rillnet::units::Length>()
-        .map(|l| l.si())
-        .map_err(|e| {
-            rillnet::Error::Input(rillnet::format::InputError::whole_file(flag, e.to_string()))
-        })
-}
-
-fn design_request<'a>(
-    file: &'a std::path::Path,
-    format: OutFormat,
-    output: Option<&'a std::path::Path>,
-    run: &str,
-    pitch: &str,
-) -> Result<rillnet::DesignRequest<'a>, rillnet::Error> {
-    Ok(rillnet::DesignRequest {
-        chip: file,
-        json: matches!(format, OutFormat::Json),
-        output,
-        run: length_arg("--run", run)?,
-        pitch: length_arg("--pitch", pitch)?,
-    })
+/// The exit code for a failed write to standard output: quiet success for a closed pipe.
+fn stdout_failure(e: &std::io::Error) -> ExitCode {
+    if e.kind() == std::io::ErrorKind::BrokenPipe {
+        return ExitCode::from(exit::OK);
+    }
+    say(&format!("error: cannot write to standard output: {e}"));
+    ExitCode::from(exit::OUTPUT_FAILED)
 }
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
-    match run(&cli.command) {
-        Ok((text, passed)) => {
-            print!("{text}");
-            if passed {
-                ExitCode::SUCCESS
-            } else {
-                ExitCode::from(1)
+    if let Some(result) = generated(&cli.command) {
+        return result.map_or_else(|e| stdout_failure(&e), |_| ExitCode::from(exit::OK));
+    }
+    let started = std::time::Instant::now();
+    let (outcome, format, output, inputs) = match run(&cli) {
+        Ok(done) => done,
+        Err(e) => {
+            say(&format!("error: {e}"));
+            return ExitCode::from(e.exit_code());
+        }
+    };
+    if cli.verbose {
+        say(&format!(
+            "rillnet: finished the work in {:.3} s",
+            started.elapsed().as_secs_f64()
+        ));
+    }
+    let code = if outcome.passed() {
+        exit::OK
+    } else {
+        exit::CHECK_FAILED
+    };
+    if let Outcome::Wrote(files) = &outcome {
+        if !cli.quiet {
+            for f in files {
+                say(&format!("wrote {}", f.display()));
             }
         }
-        Err(e) => {
-            eprintln!("error: {e}");
-            ExitCode::from(e.exit_code() as u8)
+        return ExitCode::from(code);
+    }
+    if let Some(path) = output {
+        let protected: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
+        if let Err(e) = commands::write_outcome(&outcome, format, &path, &protected) {
+            say(&format!("error: {e}"));
+            return ExitCode::from(e.exit_code());
         }
+        if !cli.quiet {
+            say(&format!("wrote {}", path.display()));
+        }
+        return ExitCode::from(code);
+    }
+    let stdout = std::io::stdout();
+    if cli.verbose && stdout.is_terminal() {
+        say("rillnet: writing the results");
+    }
+    match rillnet::emit(&outcome, format, &mut stdout.lock()) {
+        Ok(()) => ExitCode::from(code),
+        Err(e) => stdout_failure(&e),
     }
 }

@@ -49,10 +49,15 @@ pub struct Node {
     pub port: Port,
 }
 
-/// A named cross-section with its precomputed laminar figures.
+/// A cross-section with its precomputed laminar figures.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Section {
+    /// The name given in the file; for an inline section, `CHANNEL.section` of the first
+    /// channel that uses it.
     pub name: String,
+    /// Declared under `sections:` (true), or given inline on channels (false). Inline
+    /// sections of identical geometry share one entry; named sections never merge.
+    pub named: bool,
     pub shape: Shape,
     pub figures: SectionFigures,
 }
@@ -69,30 +74,15 @@ pub struct Channel {
     pub shear_limit: Option<Pressure>,
 }
 
-/// Positions for drawing the chip [m]: per node an optional position, per channel the
-/// intermediate points of its path (empty when straight). Empty vectors mean "not given".
-#[derive(Clone, Debug, Default, PartialEq)]
-pub struct DrawnLayout {
-    pub node_at: Vec<Option<[f64; 2]>>,
-    pub channel_path: Vec<Vec<[f64; 2]>>,
-}
-
 /// A validated chip network.
 #[derive(Clone, Debug)]
 pub struct Network {
-    pub name: Option<String>,
     pub fluid: Fluid,
     pub nodes: Vec<Node>,
     pub sections: Vec<Section>,
     pub channels: Vec<Channel>,
     /// Highest gauge pressure the chip is rated for, if given.
     pub pressure_rating: Option<Pressure>,
-    /// Notes from the models (e.g. a fluid correlation used outside its range).
-    pub warnings: Vec<String>,
-    /// Targets, adjustable ports and free channel dimensions for the design commands.
-    pub design: crate::analysis::design::Design,
-    /// Drawing positions given in the chip file (used by the pictures only).
-    pub layout: DrawnLayout,
     graph: UnGraph<NodeId, ChannelId>,
 }
 
@@ -223,35 +213,34 @@ fn edit_distance(a: &str, b: &str) -> usize {
 /// Builds a [`Network`] by name, checking as it goes.
 #[derive(Debug)]
 pub struct NetworkBuilder {
-    name: Option<String>,
     fluid: Fluid,
     nodes: Vec<Node>,
     node_index: HashMap<String, NodeId>,
     sections: Vec<Section>,
     section_index: HashMap<String, SectionId>,
-    /// Identical shapes share one section, so each geometry is solved once.
-    shape_cache: HashMap<GeometryKey, SectionId>,
+    /// Figures per geometry, so each geometry is solved once.
+    figure_cache: HashMap<GeometryKey, SectionFigures>,
+    /// Inline sections of identical geometry share one section.
+    inline_cache: HashMap<GeometryKey, SectionId>,
     channels: Vec<Channel>,
     channel_names: HashMap<String, ChannelId>,
     pressure_rating: Option<Pressure>,
-    warnings: Vec<String>,
     numeric: NumericOptions,
 }
 
 impl NetworkBuilder {
     pub fn new(fluid: Fluid) -> Self {
         NetworkBuilder {
-            name: None,
             fluid,
             nodes: Vec::new(),
             node_index: HashMap::default(),
             sections: Vec::new(),
             section_index: HashMap::default(),
-            shape_cache: HashMap::default(),
+            figure_cache: HashMap::default(),
+            inline_cache: HashMap::default(),
             channels: Vec::new(),
             channel_names: HashMap::default(),
             pressure_rating: None,
-            warnings: Vec::new(),
             numeric: NumericOptions::default(),
         }
     }
@@ -265,20 +254,9 @@ impl NetworkBuilder {
         self
     }
 
-    pub fn name(&mut self, name: impl Into<String>) -> &mut Self {
-        self.name = Some(name.into());
-        self
-    }
-
     /// Accuracy of numerically solved sections added after this call.
     pub fn numeric_options(&mut self, opts: NumericOptions) -> &mut Self {
         self.numeric = opts;
-        self
-    }
-
-    /// Record a model note to show with the results.
-    pub fn warn(&mut self, text: impl Into<String>) -> &mut Self {
-        self.warnings.push(text.into());
         self
     }
 
@@ -334,51 +312,71 @@ impl NetworkBuilder {
         Ok(id)
     }
 
-    /// Add a named section. Its shape is checked and its figures computed once.
+    /// Add a named section. Its shape is checked and its figures computed (once per
+    /// geometry: a second section of the same shape reuses them but keeps its own name).
     pub fn add_section(&mut self, name: &str, shape: Shape) -> Result<SectionId, NetworkError> {
         if self.section_index.contains_key(name) {
             return Err(NetworkError::DuplicateSection {
                 name: name.to_string(),
             });
         }
-        let id = self.intern_shape(name, shape)?;
+        let figures = self.figures(name, &shape)?;
+        let id = self.push_section(name, shape, figures, true);
         self.section_index.insert(name.to_string(), id);
         Ok(id)
     }
 
-    /// A section given inline on a channel: shared with any identical shape seen before.
+    /// A section given inline on a channel: shared with any identical inline shape seen
+    /// before.
     pub fn inline_section(
         &mut self,
         channel: &str,
         shape: Shape,
     ) -> Result<SectionId, NetworkError> {
-        self.intern_shape(&format!("{channel}.section"), shape)
-    }
-
-    fn intern_shape(&mut self, name: &str, shape: Shape) -> Result<SectionId, NetworkError> {
-        shape.check().map_err(|e| NetworkError::BadSection {
-            section: name.to_string(),
-            problem: e.to_string(),
-        })?;
+        let name = format!("{channel}.section");
+        let figures = self.figures(&name, &shape)?;
         let key = shape.geometry_key();
-        if let Some(&id) = self.shape_cache.get(&key) {
+        if let Some(&id) = self.inline_cache.get(&key) {
             return Ok(id);
         }
-        let (figures, _) =
-            shape
-                .figures_with(&self.numeric)
-                .map_err(|e| NetworkError::BadSection {
-                    section: name.to_string(),
-                    problem: e.to_string(),
-                })?;
+        let id = self.push_section(&name, shape, figures, false);
+        self.inline_cache.insert(key, id);
+        Ok(id)
+    }
+
+    fn push_section(
+        &mut self,
+        name: &str,
+        shape: Shape,
+        figures: SectionFigures,
+        named: bool,
+    ) -> SectionId {
         let id = SectionId(self.sections.len());
         self.sections.push(Section {
             name: name.to_string(),
+            named,
             shape,
             figures,
         });
-        self.shape_cache.insert(key, id);
-        Ok(id)
+        id
+    }
+
+    /// Check a shape and compute its figures, reusing those of an identical geometry.
+    fn figures(&mut self, name: &str, shape: &Shape) -> Result<SectionFigures, NetworkError> {
+        let bad = |problem: String| NetworkError::BadSection {
+            section: name.to_string(),
+            problem,
+        };
+        shape.check().map_err(|e| bad(e.to_string()))?;
+        let key = shape.geometry_key();
+        if let Some(f) = self.figure_cache.get(&key) {
+            return Ok(*f);
+        }
+        let (figures, _) = shape
+            .figures_with(&self.numeric)
+            .map_err(|e| bad(e.to_string()))?;
+        self.figure_cache.insert(key, figures);
+        Ok(figures)
     }
 
     /// Look up a named section.
@@ -496,15 +494,11 @@ impl NetworkBuilder {
             });
         }
         Ok(Network {
-            name: self.name,
             fluid: self.fluid,
             nodes: self.nodes,
             sections: self.sections,
             channels: self.channels,
             pressure_rating: self.pressure_rating,
-            warnings: self.warnings,
-            design: Default::default(),
-            layout: DrawnLayout::default(),
             graph,
         })
     }
@@ -515,6 +509,50 @@ impl Network {
     /// [`ChannelId`]s; indices coincide).
     pub fn graph(&self) -> &UnGraph<NodeId, ChannelId> {
         &self.graph
+    }
+
+    /// The channels meeting at `node`, each with the node at its other end, in O(degree).
+    pub fn incident(&self, node: NodeId) -> impl Iterator<Item = (ChannelId, NodeId)> + '_ {
+        self.graph
+            .edges(petgraph::graph::NodeIndex::new(node.0))
+            .map(move |e| {
+                let c = *e.weight();
+                let ch = &self.channels[c.0];
+                (c, if ch.from == node { ch.to } else { ch.from })
+            })
+    }
+
+    /// Number of channels meeting at `node`.
+    pub fn degree(&self, node: NodeId) -> usize {
+        self.graph
+            .edges(petgraph::graph::NodeIndex::new(node.0))
+            .count()
+    }
+
+    /// Channels that can carry no flow in any steady state: those of dead-end branches,
+    /// found by peeling junctions (no port) joined to the rest by a single channel, again
+    /// and again, in O(nodes + channels). Their computed flows are rounding noise.
+    pub fn dead_end_channels(&self) -> Vec<bool> {
+        let mut dead = vec![false; self.channels.len()];
+        let mut degree: Vec<usize> = (0..self.nodes.len())
+            .map(|i| self.degree(NodeId(i)))
+            .collect();
+        let mut stack: Vec<NodeId> = (0..self.nodes.len())
+            .map(NodeId)
+            .filter(|&i| degree[i.0] == 1 && self.nodes[i.0].port == Port::Junction)
+            .collect();
+        while let Some(leaf) = stack.pop() {
+            let Some((c, other)) = self.incident(leaf).find(|(c, _)| !dead[c.0]) else {
+                continue;
+            };
+            dead[c.0] = true;
+            degree[leaf.0] -= 1;
+            degree[other.0] -= 1;
+            if degree[other.0] == 1 && self.nodes[other.0].port == Port::Junction {
+                stack.push(other);
+            }
+        }
+        dead
     }
 
     /// Hydraulic resistance of a channel, R = μ·L/K [Pa·s/m³].
@@ -600,10 +638,14 @@ mod tests {
     }
 
     #[test]
-    fn identical_shapes_share_a_section() {
+    fn identical_named_shapes_keep_their_names() {
         let mut b = NetworkBuilder::new(Fluid::WATER_20C);
         let a = b.add_section("a", tube()).unwrap();
-        let c = b.inline_section("c1", tube()).unwrap();
-        assert_eq!(a, c);
+        let twin = b.add_section("twin", tube()).unwrap();
+        assert_ne!(a, twin);
+        let c1 = b.inline_section("c1", tube()).unwrap();
+        let c2 = b.inline_section("c2", tube()).unwrap();
+        assert_eq!(c1, c2, "identical inline shapes share one section");
+        assert_ne!(a, c1);
     }
 }

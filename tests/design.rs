@@ -54,8 +54,8 @@ fn two_branches_split_inversely_and_sizing_finds_the_closed_form_length() {
     assert!((s2.flows[1] / s2.flows[2] - 8.0 / 12.0).abs() < 1e-12);
 
     // Size branch a for a 1:2 split (a:b) with b = 10 mm: closed form R_a = 2R_b ⇒ L_a = 20 mm.
-    let mut net = two_branches(10e-3, 10e-3);
-    net.design = Design {
+    let net = two_branches(10e-3, 10e-3);
+    let problem = Design {
         targets: vec![Target {
             kind: TargetKind::Split {
                 channels: vec![ChannelId(1), ChannelId(2)],
@@ -72,7 +72,7 @@ fn two_branches_split_inversely_and_sizing_finds_the_closed_form_length() {
             step: None,
         }],
     };
-    let r = design::size(&net, &net.design).unwrap();
+    let r = design::size(&net, &problem).unwrap();
     assert!(r.feasible);
     assert!(
         (r.sizes[0].after - 20e-3).abs() < 1e-9 * 20e-3,
@@ -110,10 +110,10 @@ fn symmetric_tree_is_equal_and_sizing_restores_equality() {
     for k in 4..7 {
         assert!((sol.flows[k] / sol.flows[3] - 1.0).abs() < 1e-12);
     }
-    let mut net = tree(0.3);
+    let net = tree(0.3);
     let before = solve(&net).unwrap();
     assert!((before.flows[3] / before.flows[4] - 1.0).abs() > 0.1);
-    net.design = Design {
+    let problem = Design {
         targets: vec![Target {
             kind: TargetKind::Split {
                 channels: vec![ChannelId(3), ChannelId(4), ChannelId(5), ChannelId(6)],
@@ -130,7 +130,7 @@ fn symmetric_tree_is_equal_and_sizing_restores_equality() {
             step: None,
         }],
     };
-    let r = design::size(&net, &net.design).unwrap();
+    let r = design::size(&net, &problem).unwrap();
     assert!(r.feasible, "{:?}", r.targets);
     // Equality is restored by returning the perturbed leaf to the others' 8 mm.
     assert!(
@@ -161,9 +161,9 @@ fn y_network(p1: f64, p2: f64) -> Network {
     b.build().unwrap()
 }
 
-fn y_chip(targets: Vec<Target>, bounds: (f64, f64)) -> Network {
-    let mut net = y_network(5000.0, 3000.0);
-    net.design = Design {
+fn y_chip(targets: Vec<Target>, bounds: (f64, f64)) -> (Network, Design) {
+    let net = y_network(5000.0, 3000.0);
+    let problem = Design {
         targets,
         adjustable: vec![
             Adjustable {
@@ -179,7 +179,7 @@ fn y_chip(targets: Vec<Target>, bounds: (f64, f64)) -> Network {
         ],
         sizes: vec![],
     };
-    net
+    (net, problem)
 }
 
 fn flow_target(channel: usize, ul_min: f64) -> Target {
@@ -194,11 +194,11 @@ fn flow_target(channel: usize, ul_min: f64) -> Target {
 
 #[test]
 fn tuning_reaches_feasible_targets_to_1e9() {
-    let net = y_chip(
+    let (net, problem) = y_chip(
         vec![flow_target(0, 3.0), flow_target(1, 1.0)],
         (0.0, 50_000.0),
     );
-    let r = design::tune(&net, &net.design).unwrap();
+    let r = design::tune(&net, &problem).unwrap();
     assert!(r.feasible, "{:?}", r.targets);
     for t in &r.targets {
         assert!(((t.reached - t.wanted) / t.wanted).abs() < 1e-9, "{t:?}");
@@ -215,11 +215,11 @@ fn contradictory_targets_give_the_compromise_and_say_so() {
     // The same channel wanted at 2 and at 4 µL/min, equal weights: the least-squares answer in
     // relative residuals minimises ((q−2)/2)² + ((q−4)/4)²; the derivative vanishes where
     // (q−2)/2 + (q−4)/8 = 0, i.e. q = 12/5 = 2.4 µL/min.
-    let net = y_chip(
+    let (net, problem) = y_chip(
         vec![flow_target(2, 2.0), flow_target(2, 4.0)],
         (0.0, 50_000.0),
     );
-    let r = design::tune(&net, &net.design).unwrap();
+    let r = design::tune(&net, &problem).unwrap();
     assert!(!r.feasible);
     let q = r.targets[0].reached / (1e-9 / 60.0);
     assert!((q - 2.4).abs() < 1e-6, "{q}");
@@ -228,8 +228,8 @@ fn contradictory_targets_give_the_compromise_and_say_so() {
 #[test]
 fn bounds_are_respected_and_reported() {
     // 10 µL/min in c1 needs more than the 2000 Pa allowed: p1 sits at its maximum.
-    let net = y_chip(vec![flow_target(0, 10.0)], (0.0, 2000.0));
-    let r = design::tune(&net, &net.design).unwrap();
+    let (net, problem) = y_chip(vec![flow_target(0, 10.0)], (0.0, 2000.0));
+    let r = design::tune(&net, &problem).unwrap();
     assert!(!r.feasible);
     assert_eq!(r.settings[0].at_bound, 1);
     assert!((r.settings[0].after - 2000.0).abs() < 1e-9);

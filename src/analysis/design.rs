@@ -18,68 +18,11 @@
 
 use super::boxqp;
 use super::kirchhoff::{channel_flows, conductances, drive_values, KirchhoffSystem, SolveError};
+pub use crate::chip::design::{Adjustable, Design, SizeDim, SizeVar, Target, TargetKind};
 use crate::network::{ChannelId, Network, NodeId, Port};
 use crate::section::Shape;
 use crate::solver::{Parallelism, SymbolicCholesky};
 use crate::units::Length;
-
-/// What a target asks for (SI).
-#[derive(Clone, Debug, PartialEq)]
-pub enum TargetKind {
-    ChannelFlow {
-        channel: ChannelId,
-        flow: f64,
-    },
-    Split {
-        channels: Vec<ChannelId>,
-        ratio: Vec<f64>,
-    },
-    NodePressure {
-        node: NodeId,
-        pressure: f64,
-    },
-}
-
-/// A design target with its weight.
-#[derive(Clone, Debug, PartialEq)]
-pub struct Target {
-    pub kind: TargetKind,
-    pub weight: f64,
-}
-
-/// A port whose setting tuning may change, within bounds (Pa or m³/s).
-#[derive(Clone, Debug, PartialEq)]
-pub struct Adjustable {
-    pub node: NodeId,
-    pub min: f64,
-    pub max: f64,
-}
-
-/// Which dimension of a channel sizing may change.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum SizeDim {
-    Length,
-    /// The section's width (a circle's diameter).
-    Width,
-}
-
-/// A channel dimension sizing may change, within bounds, optionally in fabrication steps [m].
-#[derive(Clone, Debug, PartialEq)]
-pub struct SizeVar {
-    pub channel: ChannelId,
-    pub dim: SizeDim,
-    pub min: f64,
-    pub max: f64,
-    pub step: Option<f64>,
-}
-
-/// The design problem carried by a chip file.
-#[derive(Clone, Debug, Default, PartialEq)]
-pub struct Design {
-    pub targets: Vec<Target>,
-    pub adjustable: Vec<Adjustable>,
-    pub sizes: Vec<SizeVar>,
-}
 
 /// Why a design question could not be answered.
 #[derive(Clone, Debug, PartialEq, thiserror::Error)]
@@ -611,7 +554,9 @@ pub fn dlog_resistance(shape: &Shape, dim: &str) -> Option<f64> {
     Some((rp - rm) / (2.0 * h) / r0)
 }
 
-/// Sensitivity of target flows to each channel's width, height and length [m³/s per m].
+/// Sensitivity of a target channel's flow to one channel's width, height and length:
+/// absolute [m³/s per m] and relative (d ln Q / d ln x, i.e. % change of the flow per % change
+/// of the dimension; `None` where the target carries no flow).
 #[derive(Clone, Debug, PartialEq)]
 pub struct Sensitivity {
     pub target_channel: ChannelId,
@@ -619,6 +564,9 @@ pub struct Sensitivity {
     pub d_width: Option<f64>,
     pub d_height: Option<f64>,
     pub d_length: f64,
+    pub rel_width: Option<f64>,
+    pub rel_height: Option<f64>,
+    pub rel_length: Option<f64>,
 }
 
 /// d(flow of each `targets` channel)/d(width, height, length of every channel).
@@ -626,21 +574,44 @@ pub fn sensitivities(
     network: &Network,
     targets: &[ChannelId],
 ) -> Result<Vec<Sensitivity>, SolveError> {
-    let dq_dg = flow_conductance_gradients(network, targets)?;
     let g = conductances(network);
-    let mut out = Vec::new();
+    let measures: Vec<Row> = targets
+        .iter()
+        .enumerate()
+        .map(|(t, c)| Row {
+            flow_coeffs: vec![(c.0, 1.0)],
+            pressure_coeffs: vec![],
+            wanted: 0.0,
+            scale: 1.0,
+            weight: 1.0,
+            target: t,
+        })
+        .collect();
+    let grads = measure_gradients(network, &g, &measures)?;
+    let mut out = Vec::with_capacity(targets.len() * network.channels.len());
     for (t, tc) in targets.iter().enumerate() {
+        let q = grads.flows[tc.0];
+        let rel = |d: f64, x: f64| (q != 0.0).then(|| d * x / q);
         for (m, ch) in network.channels.iter().enumerate() {
             let shape = &network.sections[ch.section.0].shape;
+            let dq_dg = grads.grads[t][m];
             // g = K/(μL): dg/dL = −g/L; dg/dw = −g·d ln R'/dw.
-            let dgdl = -g[m] / ch.length.si();
-            let d = |dim: &str| dlog_resistance(shape, dim).map(|dl| dq_dg[t][m] * (-g[m] * dl));
+            let length = ch.length.si();
+            let d_length = dq_dg * (-g[m] / length);
+            let d = |dim: &str| dlog_resistance(shape, dim).map(|dl| dq_dg * (-g[m] * dl));
+            let (d_width, d_height) = (d("width"), d("height"));
+            let relative = |dv: Option<f64>, dim: &str| {
+                dv.zip(dimension(shape, dim)).and_then(|(dv, x)| rel(dv, x))
+            };
             out.push(Sensitivity {
                 target_channel: *tc,
                 channel: ChannelId(m),
-                d_width: d("width"),
-                d_height: d("height"),
-                d_length: dq_dg[t][m] * dgdl,
+                rel_width: relative(d_width, "width"),
+                rel_height: relative(d_height, "height"),
+                rel_length: rel(d_length, length),
+                d_width,
+                d_height,
+                d_length,
             });
         }
     }
@@ -704,6 +675,7 @@ fn apply(network: &Network, vars: &[SizeVar], z: &[f64]) -> Result<Network, Desi
                 let id = net.sections.len();
                 net.sections.push(crate::network::Section {
                     name: format!("{}.section", ch.name),
+                    named: false,
                     shape: new,
                     figures,
                 });

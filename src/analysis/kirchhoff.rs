@@ -329,6 +329,12 @@ pub fn solve_with(
             limit: RESIDUAL_LIMIT,
         });
     }
+    // Dead-end branches carry no flow; what the solve left there is rounding.
+    for (q, dead) in flows.iter_mut().zip(network.dead_end_channels()) {
+        if dead {
+            *q = 0.0;
+        }
+    }
     Ok(FlowSolution {
         node_net_inflow: node_outflows(network, &flows),
         pressures,

@@ -1,8 +1,11 @@
 //! Design limits and model-validity notes: wall shear over the cells' limit, pressure over
-//! the chip's rating, and places where the linear laminar model is stretched.
+//! the chip's rating or below vacuum, and places where the linear laminar model is stretched.
+//!
+//! Findings are data (kind, place, value and limit in SI); words and units are added by the
+//! report layer only.
 
 use super::SteadyState;
-use crate::network::Network;
+use crate::network::{ChannelId, Network, NodeId};
 
 /// Reynolds number above which inertia (separation at junctions, Dean vortices in bends)
 /// makes the linear resistance model noticeably optimistic (common practice: microfluidic
@@ -17,6 +20,11 @@ pub const ENTRANCE_LENGTHS: f64 = 5.0;
 /// practice: keep a margin of at least 20 % to a bonded chip's tested burst pressure).
 pub const RATING_NOTE_FRACTION: f64 = 0.8;
 
+/// Standard atmosphere [Pa] (ISO 2533 / CGPM 1954): a gauge pressure below −1 atm would be
+/// an absolute pressure below zero, which a liquid cannot sustain (it cavitates or outgasses
+/// first).
+pub const STANDARD_ATMOSPHERE: f64 = 101_325.0;
+
 /// How serious a finding is.
 #[derive(Clone, Copy, Debug, PartialEq, Eq, PartialOrd, Ord)]
 pub enum Severity {
@@ -26,72 +34,167 @@ pub enum Severity {
     Exceeded,
 }
 
+/// What was found, where, with the value and the limit it was compared with (SI).
+#[derive(Clone, Debug, PartialEq)]
+pub enum FindingKind {
+    /// Maximum wall shear [Pa] above the limit [Pa] that applies to the channel.
+    ShearOverLimit {
+        channel: ChannelId,
+        value: f64,
+        limit: f64,
+    },
+    /// |gauge pressure| [Pa] above the chip's rating [Pa].
+    PressureOverRating {
+        node: NodeId,
+        value: f64,
+        limit: f64,
+    },
+    /// |gauge pressure| [Pa] above [`RATING_NOTE_FRACTION`] of the rating `limit` [Pa].
+    PressureNearRating {
+        node: NodeId,
+        value: f64,
+        limit: f64,
+    },
+    /// Gauge pressure [Pa] below −1 standard atmosphere (`limit`, negative): an absolute
+    /// pressure below zero, not physical for a liquid.
+    BelowVacuum {
+        node: NodeId,
+        value: f64,
+        limit: f64,
+    },
+    /// Reynolds number above [`REYNOLDS_NOTE`].
+    Inertia {
+        channel: ChannelId,
+        value: f64,
+        limit: f64,
+    },
+    /// Channel length [m] (`value`) under [`ENTRANCE_LENGTHS`] entrance lengths (`limit`, m).
+    ShortForEntrance {
+        channel: ChannelId,
+        value: f64,
+        limit: f64,
+    },
+}
+
+impl FindingKind {
+    /// A stable machine name of the kind (used as the JSON/CSV `kind`).
+    pub fn code(&self) -> &'static str {
+        match self {
+            FindingKind::ShearOverLimit { .. } => "shear_over_limit",
+            FindingKind::PressureOverRating { .. } => "pressure_over_rating",
+            FindingKind::PressureNearRating { .. } => "pressure_near_rating",
+            FindingKind::BelowVacuum { .. } => "below_vacuum",
+            FindingKind::Inertia { .. } => "inertia",
+            FindingKind::ShortForEntrance { .. } => "short_for_entrance",
+        }
+    }
+
+    /// (value, limit) in SI.
+    pub fn value_and_limit(&self) -> (f64, f64) {
+        match *self {
+            FindingKind::ShearOverLimit { value, limit, .. }
+            | FindingKind::PressureOverRating { value, limit, .. }
+            | FindingKind::PressureNearRating { value, limit, .. }
+            | FindingKind::BelowVacuum { value, limit, .. }
+            | FindingKind::Inertia { value, limit, .. }
+            | FindingKind::ShortForEntrance { value, limit, .. } => (value, limit),
+        }
+    }
+
+    /// The channel or node the finding is about.
+    pub fn place(&self) -> Place {
+        match *self {
+            FindingKind::ShearOverLimit { channel, .. }
+            | FindingKind::Inertia { channel, .. }
+            | FindingKind::ShortForEntrance { channel, .. } => Place::Channel(channel),
+            FindingKind::PressureOverRating { node, .. }
+            | FindingKind::PressureNearRating { node, .. }
+            | FindingKind::BelowVacuum { node, .. } => Place::Node(node),
+        }
+    }
+}
+
+/// Where a finding belongs.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Place {
+    Node(NodeId),
+    Channel(ChannelId),
+}
+
 /// One finding about a solved chip.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Finding {
     pub severity: Severity,
-    pub message: String,
+    pub kind: FindingKind,
 }
 
-fn note(message: String) -> Finding {
+fn note(kind: FindingKind) -> Finding {
     Finding {
         severity: Severity::Note,
-        message,
+        kind,
     }
 }
 
-/// Every limit exceeded and every model note, most serious first.
+fn exceeded(kind: FindingKind) -> Finding {
+    Finding {
+        severity: Severity::Exceeded,
+        kind,
+    }
+}
+
+/// Every limit exceeded and every model note of the solved state, most serious first (file
+/// order within a severity).
 pub fn findings(network: &Network, state: &SteadyState) -> Vec<Finding> {
-    let mut out: Vec<Finding> = network.warnings.iter().cloned().map(note).collect();
-    for (c, s) in network.channels.iter().zip(&state.channels) {
+    let mut out = Vec::new();
+    for (k, (c, s)) in network.channels.iter().zip(&state.channels).enumerate() {
+        let channel = ChannelId(k);
         if let (Some(limit), Some(margin)) = (s.shear_limit, s.shear_margin) {
             if margin < 1.0 {
-                out.push(Finding {
-                    severity: Severity::Exceeded,
-                    message: format!(
-                        "channel '{}': maximum wall shear {:.3} Pa exceeds the limit {:.3} Pa (margin {:.2})",
-                        c.name, s.wall_shear_max, limit, margin
-                    ),
-                });
+                out.push(exceeded(FindingKind::ShearOverLimit {
+                    channel,
+                    value: s.wall_shear_max,
+                    limit,
+                }));
             }
         }
         if s.reynolds > REYNOLDS_NOTE {
-            out.push(note(format!(
-                "channel '{}': Re = {:.0} > {REYNOLDS_NOTE}; inertia at junctions and bends makes the linear model optimistic",
-                c.name, s.reynolds
-            )));
+            out.push(note(FindingKind::Inertia {
+                channel,
+                value: s.reynolds,
+                limit: REYNOLDS_NOTE,
+            }));
         }
-        if c.length.si() < ENTRANCE_LENGTHS * s.entrance_length {
-            out.push(note(format!(
-                "channel '{}': length {:.0} um is under {ENTRANCE_LENGTHS} entrance lengths ({:.0} um each); \
-                 the flow there is not fully developed and its resistance and shear are underestimated",
-                c.name,
-                c.length.si() * 1e6,
-                s.entrance_length * 1e6
-            )));
+        let needed = ENTRANCE_LENGTHS * s.entrance_length;
+        if c.length.si() < needed {
+            out.push(note(FindingKind::ShortForEntrance {
+                channel,
+                value: c.length.si(),
+                limit: needed,
+            }));
         }
     }
-    if let Some(rating) = network.pressure_rating {
-        let rating = rating.si();
-        for (n, p) in network.nodes.iter().zip(&state.solution.pressures) {
+    for (i, &p) in state.solution.pressures.iter().enumerate() {
+        let node = NodeId(i);
+        if p < -STANDARD_ATMOSPHERE {
+            out.push(exceeded(FindingKind::BelowVacuum {
+                node,
+                value: p,
+                limit: -STANDARD_ATMOSPHERE,
+            }));
+        }
+        if let Some(rating) = network.pressure_rating.map(|r| r.si()) {
             if p.abs() > rating {
-                out.push(Finding {
-                    severity: Severity::Exceeded,
-                    message: format!(
-                        "node '{}': pressure {:.1} mbar exceeds the chip's rating {:.1} mbar",
-                        n.name,
-                        p / 100.0,
-                        rating / 100.0
-                    ),
-                });
+                out.push(exceeded(FindingKind::PressureOverRating {
+                    node,
+                    value: p,
+                    limit: rating,
+                }));
             } else if p.abs() > RATING_NOTE_FRACTION * rating {
-                out.push(note(format!(
-                    "node '{}': pressure {:.1} mbar is above {:.0} % of the chip's rating {:.1} mbar",
-                    n.name,
-                    p / 100.0,
-                    RATING_NOTE_FRACTION * 100.0,
-                    rating / 100.0
-                )));
+                out.push(note(FindingKind::PressureNearRating {
+                    node,
+                    value: p,
+                    limit: rating,
+                }));
             }
         }
     }

@@ -10,9 +10,9 @@ pub mod kirchhoff;
 pub mod limits;
 
 pub use kirchhoff::{solve, FlowSolution, SolveError, RESIDUAL_LIMIT};
-pub use limits::{findings, Finding, Severity};
+pub use limits::{findings, Finding, FindingKind, Place, Severity};
 
-use crate::network::{ChannelId, Network, Port};
+use crate::network::{ChannelId, Network, NodeId, Port};
 
 /// Figures of one channel in the steady state (SI).
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -64,23 +64,22 @@ pub struct SteadyState {
 
 impl SteadyState {
     /// Channels carrying flow out of `node`: (channel index, node at the other end, |flow|),
-    /// in file order.
+    /// in O(degree) through the network's graph, ordered by channel (file order).
     pub fn outflows(&self, network: &Network, node: usize) -> Vec<(usize, usize, f64)> {
-        network
-            .channels
-            .iter()
-            .enumerate()
-            .filter_map(|(k, c)| {
-                let q = self.channels[k].flow;
-                if c.from.0 == node && q > 0.0 {
-                    Some((k, c.to.0, q))
-                } else if c.to.0 == node && q < 0.0 {
-                    Some((k, c.from.0, -q))
-                } else {
-                    None
+        let mut out: Vec<(usize, usize, f64)> = network
+            .incident(NodeId(node))
+            .filter_map(|(c, other)| {
+                let q = self.channels[c.0].flow;
+                let forward = network.channels[c.0].from.0 == node;
+                match (forward, q) {
+                    (true, q) if q > 0.0 => Some((c.0, other.0, q)),
+                    (false, q) if q < 0.0 => Some((c.0, other.0, -q)),
+                    _ => None,
                 }
             })
-            .collect()
+            .collect();
+        out.sort_unstable_by_key(|o| o.0);
+        out
     }
 
     /// The operating point of node `i` if it is a port.
@@ -115,10 +114,14 @@ pub fn derive(network: &Network, solution: FlowSolution) -> SteadyState {
         .iter()
         .enumerate()
         .map(|(k, c)| {
-            let q = solution.flows[k];
+            let q = solution.flows[k] + 0.0; // never −0
             let fig = &network.sections[c.section.0].figures;
             let u = q / fig.area;
-            let dp = solution.pressures[c.from.0] - solution.pressures[c.to.0];
+            let dp = if q == 0.0 {
+                0.0
+            } else {
+                solution.pressures[c.from.0] - solution.pressures[c.to.0]
+            };
             let length = c.length.si();
             let gradient = dp.abs() / length;
             let dh = fig.hydraulic_diameter();

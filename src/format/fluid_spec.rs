@@ -70,11 +70,11 @@ pub struct CellsSpec {
 
 impl FluidSpec {
     /// The domain fluid and any model-range warnings.
-    pub(super) fn to_fluid(&self) -> Result<(Fluid, Vec<String>), Misplaced> {
+    pub(super) fn to_fluid(&self) -> Result<(Fluid, Vec<RangeWarning>), Misplaced> {
         let mut warnings = Vec::new();
         let mut note = |w: Option<RangeWarning>| {
-            if let Some(RangeWarning(text)) = w {
-                warnings.push(text);
+            if let Some(w) = w {
+                warnings.push(w);
             }
         };
         let need_temperature = |model: &str| {

@@ -1,4 +1,4 @@
-//! The chip file (YAML or JSON): serde types at the edge, converted into a [`Network`].
+//! The chip file (YAML or JSON): serde types at the edge, converted into a [`Chip`].
 //!
 //! Parsing is split from I/O: [`parse_chip`] takes text and an origin name and never touches
 //! the file system. Every error carries the file, the line and column where known, and the
@@ -35,7 +35,8 @@ pub use named::Named;
 pub use quantity::Q;
 pub use section_spec::{parse_profile_csv, FileReader, SectionSpec, ShapeKind};
 
-use crate::network::{Network, NetworkBuilder, NetworkError, Port, SectionId};
+use crate::chip::{Chip, DrawnLayout, Source};
+use crate::network::{NetworkBuilder, NetworkError, Port, SectionId};
 use crate::units::{Length, Pressure, VolumeFlow};
 use serde::de::{self, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
@@ -53,6 +54,20 @@ impl Syntax {
     pub fn from_path(path: &std::path::Path) -> Syntax {
         match path.extension().and_then(|e| e.to_str()) {
             Some(e) if e.eq_ignore_ascii_case("json") => Syntax::Json,
+            _ => Syntax::Yaml,
+        }
+    }
+
+    /// Guess the syntax of text without a file name: JSON when the first non-blank
+    /// character opens an object, else YAML (which also reads most JSON).
+    pub fn sniff(text: &str) -> Syntax {
+        match text
+            .trim_start_matches('\u{feff}')
+            .trim_start()
+            .chars()
+            .next()
+        {
+            Some('{') => Syntax::Json,
             _ => Syntax::Yaml,
         }
     }
@@ -229,13 +244,10 @@ impl From<NetworkError> for Misplaced {
 }
 
 impl ChipFile {
-    fn into_network(self, read: FileReader<'_>) -> Result<Network, Misplaced> {
-        let (fluid, warnings) = self.fluid.to_fluid()?;
+    fn into_chip(self, read: FileReader<'_>, source: Source) -> Result<Chip, Misplaced> {
+        let (fluid, notes) = self.fluid.to_fluid()?;
         let mut b =
             NetworkBuilder::new(fluid).with_capacity(self.nodes.0.len(), self.channels.0.len());
-        for w in warnings {
-            b.warn(w);
-        }
         if let Some(rating) = self.pressure_rating {
             b.pressure_rating(rating.0)?;
         }
@@ -251,9 +263,6 @@ impl ChipFile {
                 shear_tolerance: (10.0 * tol).min(0.05),
                 ..Default::default()
             });
-        }
-        if let Some(name) = &self.name {
-            b.name(name.clone());
         }
         for (name, spec) in &self.sections.0 {
             let shape = spec.to_shape(&["sections", name], read)?;
@@ -289,14 +298,14 @@ impl ChipFile {
                 b.channel_shear_limit(id, limit.0)?;
             }
         }
-        let mut net = b.build()?;
-        net.layout.node_at = self
+        let network = b.build()?;
+        let node_at = self
             .nodes
             .0
             .iter()
             .map(|(_, n)| n.at.map(|p| [p[0].0.si(), p[1].0.si()]))
             .collect();
-        net.layout.channel_path = self
+        let channel_path = self
             .channels
             .0
             .iter()
@@ -319,8 +328,19 @@ impl ChipFile {
             .iter()
             .filter_map(|(n, s)| s.size.as_ref().map(|z| (n.clone(), z)))
             .collect();
-        net.design = design_spec::to_design(&net, &self.targets, &adjust, &sizes)?;
-        Ok(net)
+        let design = design_spec::to_design(&network, &self.targets, &adjust, &sizes)?;
+        Ok(Chip {
+            name: self.name,
+            description: self.description,
+            source,
+            network,
+            design,
+            layout: DrawnLayout {
+                node_at,
+                channel_path,
+            },
+            notes,
+        })
     }
 }
 
@@ -385,7 +405,7 @@ fn strip_position(message: &str) -> String {
 
 /// Parse chip-file text into a validated network. `origin` names the file in errors.
 /// Files named inside the chip (measured profiles) are refused; see [`parse_chip_with`].
-pub fn parse_chip(text: &str, origin: &str, syntax: Syntax) -> Result<Network, InputError> {
+pub fn parse_chip(text: &str, origin: &str, syntax: Syntax) -> Result<Chip, InputError> {
     parse_chip_with(text, origin, syntax, &|name: &str| {
         Err(format!(
             "'{name}': this chip was not read from a file, so files it names cannot be found"
@@ -399,7 +419,7 @@ pub fn parse_chip_with(
     origin: &str,
     syntax: Syntax,
     read: FileReader<'_>,
-) -> Result<Network, InputError> {
+) -> Result<Chip, InputError> {
     if text.len() > MAX_FILE_BYTES {
         return Err(InputError::whole_file(
             origin,
@@ -429,7 +449,12 @@ pub fn parse_chip_with(
             })?
         }
     };
-    file.into_network(read).map_err(|m| {
+    let source = Source {
+        origin: origin.to_string(),
+        text: text.to_string(),
+        syntax,
+    };
+    file.into_chip(read, source).map_err(|m| {
         let mut parts: Vec<&str> = m.path.iter().map(String::as_str).collect();
         if m.repeated {
             if let Some(last) = parts.last().copied() {

@@ -10,6 +10,7 @@
 
 use super::{drawing, text_style, Figure, ALERT_VERMILLION, GRID_GREY, INK};
 use crate::analysis::SteadyState;
+use crate::chip::Chip;
 use crate::network::{Network, Port};
 use crate::report::fmt_sig;
 use crate::units::display;
@@ -38,9 +39,10 @@ pub struct Layout {
 }
 
 /// Compute the layout (see the module doc).
-pub fn layout(network: &Network, state: &SteadyState) -> Layout {
+pub fn layout(chip: &Chip, state: &SteadyState) -> Layout {
+    let network = &chip.network;
     let n = network.nodes.len();
-    let given = &network.layout;
+    let given = &chip.layout;
     if given.node_at.len() == n && given.node_at.iter().all(Option::is_some) {
         let nodes: Vec<[f64; 2]> = given
             .node_at
@@ -151,6 +153,7 @@ pub fn layout(network: &Network, state: &SteadyState) -> Layout {
 
 /// The chip picture.
 pub struct ChipPicture<'a> {
+    pub chip: &'a Chip,
     pub network: &'a Network,
     pub state: &'a SteadyState,
     pub colour: ColourBy,
@@ -158,12 +161,13 @@ pub struct ChipPicture<'a> {
 }
 
 impl<'a> ChipPicture<'a> {
-    pub fn new(network: &'a Network, state: &'a SteadyState, colour: ColourBy) -> Self {
+    pub fn new(chip: &'a Chip, state: &'a SteadyState, colour: ColourBy) -> Self {
         ChipPicture {
-            network,
+            chip,
+            network: &chip.network,
             state,
             colour,
-            layout: layout(network, state),
+            layout: layout(chip, state),
         }
     }
 
@@ -311,7 +315,7 @@ impl Figure for ChipPicture<'_> {
         let st = self.state;
         let title = format!(
             "{} — flow split, colour: {}",
-            net.name.as_deref().unwrap_or("chip"),
+            self.chip.title(),
             match self.colour {
                 ColourBy::Pressure => "pressure",
                 ColourBy::Flow => "flow",

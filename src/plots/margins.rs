@@ -3,7 +3,7 @@
 
 use super::{drawing, Figure, ALERT_VERMILLION, GRID_GREY, INK, OK_BLUE};
 use crate::analysis::SteadyState;
-use crate::network::Network;
+use crate::chip::Chip;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 
@@ -35,7 +35,8 @@ const WIDTH: u32 = 960;
 
 impl MarginChart {
     /// Collect the bars from a solved chip; `None` when no channel has a shear limit.
-    pub fn new(network: &Network, state: &SteadyState) -> Option<MarginChart> {
+    pub fn new(chip: &Chip, state: &SteadyState) -> Option<MarginChart> {
+        let network = &chip.network;
         let mut bars: Vec<MarginBar> = network
             .channels
             .iter()
@@ -55,10 +56,7 @@ impl MarginChart {
         bars.sort_by(|a, b| a.margin.total_cmp(&b.margin));
         let unlimited = network.channels.len() - bars.len();
         Some(MarginChart {
-            title: format!(
-                "Wall-shear margin per channel — {}",
-                network.name.as_deref().unwrap_or("chip")
-            ),
+            title: format!("Wall-shear margin per channel — {}", chip.title()),
             bars,
             unlimited,
         })

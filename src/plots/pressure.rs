@@ -4,7 +4,8 @@
 
 use super::{drawing, Figure, GRID_GREY, INK};
 use crate::analysis::SteadyState;
-use crate::network::{Network, Port};
+use crate::chip::Chip;
+use crate::network::Port;
 use crate::units::display;
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -36,7 +37,8 @@ const LINE_COLOURS: [RGBColor; 8] = [
 
 impl PressurePicture {
     /// Trace every inlet (a port delivering flow into the chip) downstream to an outlet.
-    pub fn new(network: &Network, state: &SteadyState) -> PressurePicture {
+    pub fn new(chip: &Chip, state: &SteadyState) -> PressurePicture {
+        let network = &chip.network;
         let p = &state.solution.pressures;
         let mut paths = Vec::new();
         for (i, node) in network.nodes.iter().enumerate() {
@@ -75,7 +77,7 @@ impl PressurePicture {
         PressurePicture {
             title: format!(
                 "{} — pressure along the main flow path from each inlet",
-                network.name.as_deref().unwrap_or("chip")
+                chip.title()
             ),
             paths,
         }

@@ -1,10 +1,15 @@
 //! Reports of the design commands: tuned settings, sized channels, sensitivities.
 
+use super::csv::{n, num, Tables};
 use super::fmt_sig;
-use crate::analysis::design::{Sensitivity, SizeDim, SizeResult, TargetOutcome, TuneResult};
+use super::json::SCHEMA_VERSION;
+use crate::analysis::design::{SizeDim, SizeResult, TargetOutcome, TuneResult};
+use crate::chip::Chip;
+use crate::commands::SensitivityTable;
 use crate::network::{Network, Port};
 use crate::units::display;
 use serde::Serialize;
+use std::io;
 
 fn value_text(network: &Network, node: usize, v: f64) -> String {
     match network.nodes[node].port {
@@ -80,6 +85,7 @@ struct JsonSetting<'a> {
 
 #[derive(Serialize)]
 struct JsonTune<'a> {
+    schema_version: u32,
     feasible: bool,
     residual_norm: f64,
     settings: Vec<JsonSetting<'a>>,
@@ -94,33 +100,38 @@ fn bound_name(b: i8) -> Option<&'static str> {
     }
 }
 
-/// Tuning report.
-pub fn tune_report(network: &Network, r: &TuneResult, json: bool) -> String {
-    if json {
-        let j = JsonTune {
-            feasible: r.feasible,
-            residual_norm: r.residual_norm,
-            settings: r
-                .settings
-                .iter()
-                .map(|s| JsonSetting {
-                    node: &network.nodes[s.node.0].name,
-                    kind: if matches!(network.nodes[s.node.0].port, Port::Flow(_)) {
-                        "flow"
-                    } else {
-                        "pressure"
-                    },
-                    before_si: s.before,
-                    after_si: s.after,
-                    min_si: s.min,
-                    max_si: s.max,
-                    at_bound: bound_name(s.at_bound),
-                })
-                .collect(),
-            targets: json_targets(&r.targets),
-        };
-        return serde_json::to_string_pretty(&j).unwrap_or_default() + "\n";
-    }
+/// Tuning report as JSON.
+pub(crate) fn tune_json(chip: &Chip, r: &TuneResult, w: &mut dyn io::Write) -> io::Result<()> {
+    let network = &chip.network;
+    let j = JsonTune {
+        schema_version: SCHEMA_VERSION,
+        feasible: r.feasible,
+        residual_norm: r.residual_norm,
+        settings: r
+            .settings
+            .iter()
+            .map(|s| JsonSetting {
+                node: &network.nodes[s.node.0].name,
+                kind: if matches!(network.nodes[s.node.0].port, Port::Flow(_)) {
+                    "flow"
+                } else {
+                    "pressure"
+                },
+                before_si: s.before,
+                after_si: s.after,
+                min_si: s.min,
+                max_si: s.max,
+                at_bound: bound_name(s.at_bound),
+            })
+            .collect(),
+        targets: json_targets(&r.targets),
+    };
+    super::json::write_json(&j, w)
+}
+
+/// Tuning report as a table.
+pub fn tune_report(chip: &Chip, r: &TuneResult) -> String {
+    let network = &chip.network;
     let mut out = String::from("Drive settings (tuned within their bounds)\n");
     for s in &r.settings {
         out.push_str(&format!(
@@ -169,6 +180,7 @@ struct JsonSize<'a> {
 
 #[derive(Serialize)]
 struct JsonSizing<'a> {
+    schema_version: u32,
     feasible: bool,
     residual_norm: f64,
     iterations: usize,
@@ -176,40 +188,57 @@ struct JsonSizing<'a> {
     targets: Vec<JsonTarget<'a>>,
 }
 
-/// Sizing report; lengths longer than `run` get a serpentine layout with centre-line `pitch`.
-pub fn size_report(network: &Network, r: &SizeResult, run: f64, pitch: f64, json: bool) -> String {
-    let serp = |s: &crate::analysis::design::SizedDim| {
-        (s.var.dim == SizeDim::Length && s.after > run)
-            .then(|| crate::analysis::design::serpentine(s.after, run, pitch))
+fn serp(
+    s: &crate::analysis::design::SizedDim,
+    run: f64,
+    pitch: f64,
+) -> Option<crate::analysis::design::Serpentine> {
+    (s.var.dim == SizeDim::Length && s.after > run)
+        .then(|| crate::analysis::design::serpentine(s.after, run, pitch))
+}
+
+/// Sizing report as JSON.
+pub(crate) fn size_json(
+    chip: &Chip,
+    r: &SizeResult,
+    run: f64,
+    pitch: f64,
+    w: &mut dyn io::Write,
+) -> io::Result<()> {
+    let network = &chip.network;
+    let j = JsonSizing {
+        schema_version: SCHEMA_VERSION,
+        feasible: r.feasible,
+        residual_norm: r.residual_norm,
+        iterations: r.iterations,
+        sizes: r
+            .sizes
+            .iter()
+            .map(|s| JsonSize {
+                channel: &network.channels[s.var.channel.0].name,
+                dimension: if s.var.dim == SizeDim::Length {
+                    "length"
+                } else {
+                    "width"
+                },
+                before_m: s.before,
+                after_m: s.after,
+                min_m: s.var.min,
+                max_m: s.var.max,
+                step_m: s.var.step,
+                at_bound: bound_name(s.at_bound),
+                serpentine_runs: serp(s, run, pitch).map(|x| x.runs),
+            })
+            .collect(),
+        targets: json_targets(&r.targets),
     };
-    if json {
-        let j = JsonSizing {
-            feasible: r.feasible,
-            residual_norm: r.residual_norm,
-            iterations: r.iterations,
-            sizes: r
-                .sizes
-                .iter()
-                .map(|s| JsonSize {
-                    channel: &network.channels[s.var.channel.0].name,
-                    dimension: if s.var.dim == SizeDim::Length {
-                        "length"
-                    } else {
-                        "width"
-                    },
-                    before_m: s.before,
-                    after_m: s.after,
-                    min_m: s.var.min,
-                    max_m: s.var.max,
-                    step_m: s.var.step,
-                    at_bound: bound_name(s.at_bound),
-                    serpentine_runs: serp(s).map(|x| x.runs),
-                })
-                .collect(),
-            targets: json_targets(&r.targets),
-        };
-        return serde_json::to_string_pretty(&j).unwrap_or_default() + "\n";
-    }
+    super::json::write_json(&j, w)
+}
+
+/// Sizing report as a table; lengths longer than `run` get a serpentine layout with
+/// centre-line `pitch`.
+pub fn size_report(chip: &Chip, r: &SizeResult, run: f64, pitch: f64) -> String {
+    let network = &chip.network;
     let mut out = format!("Channel sizes ({} Gauss–Newton iterations)\n", r.iterations);
     for s in &r.sizes {
         let (dim, unit, k) = match s.var.dim {
@@ -230,7 +259,7 @@ pub fn size_report(network: &Network, r: &SizeResult, run: f64, pitch: f64, json
                 _ => "",
             }
         ));
-        if let Some(x) = serp(s) {
+        if let Some(x) = serp(s, run, pitch) {
             out.push_str(&format!(
                 "      serpentine: {} straight runs of {} mm with {} U-turns at {} µm pitch, footprint {} × {} mm\n",
                 x.runs,
@@ -263,12 +292,29 @@ struct JsonSens<'a> {
     d_flow_d_width_m3_per_s_per_m: Option<f64>,
     d_flow_d_height_m3_per_s_per_m: Option<f64>,
     d_flow_d_length_m3_per_s_per_m: f64,
+    /// d ln Q / d ln x: % change of the target flow per % change of the dimension.
+    relative_width: Option<f64>,
+    relative_height: Option<f64>,
+    relative_length: Option<f64>,
 }
 
-/// Sensitivity table (µL/min per µm, per mm) or JSON (SI).
-pub fn sensitivity_report(network: &Network, s: &[Sensitivity], json: bool) -> String {
-    if json {
-        let j: Vec<JsonSens> = s
+/// The `sensitivities` key of `solve --sensitivity --format json`.
+#[derive(Serialize)]
+pub(crate) struct JsonSensitivities<'a> {
+    /// Rows kept per target channel when the full table was too large (largest relative
+    /// length sensitivity first); null when every row is given.
+    kept_per_target: Option<usize>,
+    rows: Vec<JsonSens<'a>>,
+}
+
+pub(crate) fn sensitivity_json<'a>(
+    network: &'a Network,
+    t: &'a SensitivityTable,
+) -> JsonSensitivities<'a> {
+    JsonSensitivities {
+        kept_per_target: t.kept_per_target,
+        rows: t
+            .rows
             .iter()
             .map(|x| JsonSens {
                 target_channel: &network.channels[x.target_channel.0].name,
@@ -276,31 +322,192 @@ pub fn sensitivity_report(network: &Network, s: &[Sensitivity], json: bool) -> S
                 d_flow_d_width_m3_per_s_per_m: x.d_width,
                 d_flow_d_height_m3_per_s_per_m: x.d_height,
                 d_flow_d_length_m3_per_s_per_m: x.d_length,
+                relative_width: x.rel_width,
+                relative_height: x.rel_height,
+                relative_length: x.rel_length,
             })
-            .collect();
-        return serde_json::to_string_pretty(&j).unwrap_or_default() + "\n";
+            .collect(),
     }
+}
+
+/// Sensitivities as a CSV table.
+pub(crate) fn sensitivity_csv(
+    network: &Network,
+    t: &SensitivityTable,
+    tables: &mut Tables<'_>,
+) -> io::Result<()> {
+    tables.table(
+        &[
+            "record",
+            "target_channel",
+            "channel",
+            "d_flow_d_width_m3_per_s_per_m",
+            "d_flow_d_height_m3_per_s_per_m",
+            "d_flow_d_length_m3_per_s_per_m",
+            "relative_width",
+            "relative_height",
+            "relative_length",
+        ],
+        t.rows.iter().map(|x| {
+            vec![
+                "sensitivity".into(),
+                network.channels[x.target_channel.0].name.clone(),
+                network.channels[x.channel.0].name.clone(),
+                num(x.d_width),
+                num(x.d_height),
+                n(x.d_length),
+                num(x.rel_width),
+                num(x.rel_height),
+                num(x.rel_length),
+            ]
+        }),
+    )
+}
+
+/// Sensitivity table: µL/min per µm or mm, and relative (%/%).
+pub fn sensitivity_report(network: &Network, t: &SensitivityTable) -> String {
     let mut out = String::from(
         "\nSensitivities: change of each target channel's flow per change of a channel dimension\n\
-           (µL/min per µm of width or height, per mm of length; — where the section has no such closed-form dimension)\n",
+           (µL/min per µm of width or height, per mm of length, and relative: % of the flow per % of the dimension;\n\
+           — where the section has no such closed-form dimension)\n",
     );
+    if let Some(k) = t.kept_per_target {
+        out.push_str(&format!(
+            "  (summary: the {k} largest per target channel by relative length sensitivity; \
+             name fewer channels with --channels for the full table)\n"
+        ));
+    }
     let per_um = |v: Option<f64>| {
-        v.map(|d| fmt_sig(d * 6.0e10 * 1e-6, 4))
+        v.map(|d| fmt_sig(display::ul_per_min(d) * 1e-6, 4))
             .unwrap_or_else(|| "—".into())
     };
+    let rel = |v: Option<f64>| v.map(|d| fmt_sig(d, 3)).unwrap_or_else(|| "—".into());
     out.push_str(&format!(
-        "  {:<14} {:<14} {:>14} {:>14} {:>14}\n",
-        "flow in", "dimension of", "d/d width", "d/d height", "d/d length"
+        "  {:<14} {:<14} {:>12} {:>12} {:>12} {:>9} {:>9} {:>9}\n",
+        "flow in",
+        "dimension of",
+        "d/d width",
+        "d/d height",
+        "d/d length",
+        "rel w",
+        "rel h",
+        "rel L"
     ));
-    for x in s {
+    for x in &t.rows {
         out.push_str(&format!(
-            "  {:<14} {:<14} {:>14} {:>14} {:>14}\n",
+            "  {:<14} {:<14} {:>12} {:>12} {:>12} {:>9} {:>9} {:>9}\n",
             network.channels[x.target_channel.0].name,
             network.channels[x.channel.0].name,
             per_um(x.d_width),
             per_um(x.d_height),
-            fmt_sig(x.d_length * 6.0e10 * 1e-3, 4)
+            fmt_sig(display::ul_per_min(x.d_length) * 1e-3, 4),
+            rel(x.rel_width),
+            rel(x.rel_height),
+            rel(x.rel_length),
         ));
     }
     out
+}
+
+fn bound_text(b: i8) -> String {
+    bound_name(b).unwrap_or("").to_string()
+}
+
+/// Tuning as CSV: a `setting` table and a `target` table.
+pub(crate) fn tune_csv(chip: &Chip, r: &TuneResult, tables: &mut Tables<'_>) -> io::Result<()> {
+    let network = &chip.network;
+    tables.table(
+        &[
+            "record",
+            "node",
+            "kind",
+            "before_si",
+            "after_si",
+            "min_si",
+            "max_si",
+            "at_bound",
+        ],
+        r.settings.iter().map(|s| {
+            let node = &network.nodes[s.node.0];
+            vec![
+                "setting".into(),
+                node.name.clone(),
+                super::role(node.port).into(),
+                n(s.before),
+                n(s.after),
+                n(s.min),
+                n(s.max),
+                bound_text(s.at_bound),
+            ]
+        }),
+    )?;
+    targets_csv(&r.targets, tables)
+}
+
+/// Sizing as CSV: a `size` table and a `target` table.
+pub(crate) fn size_csv(
+    chip: &Chip,
+    r: &SizeResult,
+    run: f64,
+    pitch: f64,
+    tables: &mut Tables<'_>,
+) -> io::Result<()> {
+    let network = &chip.network;
+    tables.table(
+        &[
+            "record",
+            "channel",
+            "dimension",
+            "before_m",
+            "after_m",
+            "min_m",
+            "max_m",
+            "step_m",
+            "at_bound",
+            "serpentine_runs",
+        ],
+        r.sizes.iter().map(|s| {
+            vec![
+                "size".into(),
+                network.channels[s.var.channel.0].name.clone(),
+                match s.var.dim {
+                    SizeDim::Length => "length".into(),
+                    SizeDim::Width => "width".into(),
+                },
+                n(s.before),
+                n(s.after),
+                n(s.var.min),
+                n(s.var.max),
+                num(s.var.step),
+                bound_text(s.at_bound),
+                serp(s, run, pitch)
+                    .map(|x| x.runs.to_string())
+                    .unwrap_or_default(),
+            ]
+        }),
+    )?;
+    targets_csv(&r.targets, tables)
+}
+
+fn targets_csv(targets: &[TargetOutcome], tables: &mut Tables<'_>) -> io::Result<()> {
+    tables.table(
+        &[
+            "record",
+            "what",
+            "wanted",
+            "reached",
+            "relative_miss",
+            "met",
+        ],
+        targets.iter().map(|t| {
+            vec![
+                "target".into(),
+                t.what.clone(),
+                n(t.wanted),
+                n(t.reached),
+                n(t.miss),
+                (t.miss <= crate::analysis::design::MET).to_string(),
+            ]
+        }),
+    )
 }

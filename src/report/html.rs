@@ -2,8 +2,9 @@
 //! (inline SVG) and the tables, for sending to a lab.
 
 use super::fmt_sig;
-use crate::analysis::{findings, Severity, SteadyState};
-use crate::network::{Network, Port};
+use crate::analysis::{findings, SteadyState};
+use crate::chip::Chip;
+use crate::network::Port;
 use crate::units::display;
 
 fn esc(s: &str) -> String {
@@ -31,8 +32,9 @@ fn table(header: &[&str], rows: &[Vec<String>]) -> String {
 }
 
 /// Build the page. `pictures` are (caption, SVG text) pairs embedded inline.
-pub fn html_page(network: &Network, state: &SteadyState, pictures: &[(String, String)]) -> String {
-    let name = network.name.as_deref().unwrap_or("chip");
+pub fn html_page(chip: &Chip, state: &SteadyState, pictures: &[(String, String)]) -> String {
+    let network = &chip.network;
+    let name = chip.title();
     let mut h = format!(
         "<!DOCTYPE html>\n<html lang=\"en\"><head><meta charset=\"utf-8\">\n<title>{} — rillnet report</title>\n\
          <style>body{{font-family:sans-serif;max-width:1200px;margin:2em auto;color:#1e1e1e}}\
@@ -51,11 +53,11 @@ pub fn html_page(network: &Network, state: &SteadyState, pictures: &[(String, St
         network.channels.len(),
         state.solution.max_relative_residual
     ));
-    let found = findings(network, state);
+    let found = super::findings::records(chip, &findings(network, state));
     if !found.is_empty() {
         h.push_str("<h2>Findings</h2>\n<ul>\n");
         for f in &found {
-            let class = if f.severity == Severity::Exceeded {
+            let class = if f.severity == "exceeded" {
                 " class=\"over\""
             } else {
                 ""

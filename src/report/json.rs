@@ -1,16 +1,21 @@
 //! The solve report as JSON (SI units in every key; names are a stable interface).
 
+use super::findings::JsonFinding;
 use super::role;
 use crate::analysis::SteadyState;
-use crate::network::Network;
+use crate::chip::Chip;
 use serde::Serialize;
+
+/// Version of the JSON documents' layout; raised whenever a key changes meaning or moves.
+pub const SCHEMA_VERSION: u32 = 2;
 
 // ---------------------------------------------------------------------------------------
 // JSON
 // ---------------------------------------------------------------------------------------
 
 #[derive(Serialize)]
-struct JsonReport<'a> {
+pub(crate) struct JsonReport<'a> {
+    schema_version: u32,
     chip: Option<&'a str>,
     units: &'static str,
     fluid: JsonFluid,
@@ -23,6 +28,12 @@ struct JsonReport<'a> {
     ports: Vec<JsonPort<'a>>,
     channels: Vec<JsonChannel<'a>>,
     sections: Vec<JsonSection<'a>>,
+    /// `check` only: "pass" or "fail".
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub(crate) verdict: Option<&'static str>,
+    /// `solve --sensitivity` only.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub(crate) sensitivities: Option<super::design::JsonSensitivities<'a>>,
 }
 
 #[derive(Serialize)]
@@ -30,13 +41,6 @@ struct JsonFluid {
     viscosity_pa_s: f64,
     density_kg_per_m3: f64,
     shear_limit_pa: Option<f64>,
-}
-
-#[derive(Serialize)]
-struct JsonFinding {
-    /// "exceeded" (a limit is broken) or "note".
-    severity: &'static str,
-    message: String,
 }
 
 #[derive(Serialize)]
@@ -63,7 +67,7 @@ struct JsonChannel<'a> {
     name: &'a str,
     from: &'a str,
     to: &'a str,
-    section: &'a str,
+    section: String,
     length_m: f64,
     flow_m3_per_s: f64,
     pressure_drop_pa: f64,
@@ -93,11 +97,14 @@ struct JsonSection<'a> {
     fre_fanning: f64,
 }
 
-/// The solve report as pretty JSON (SI).
-pub fn to_json(network: &Network, state: &SteadyState) -> String {
+/// The solve report (SI), ready to serialise; `verdict` and `sensitivities` are added by
+/// `check` and `solve --sensitivity`.
+pub(crate) fn solve_report<'a>(chip: &'a Chip, state: &'a SteadyState) -> JsonReport<'a> {
+    let network = &chip.network;
     let sol = &state.solution;
-    let report = JsonReport {
-        chip: network.name.as_deref(),
+    JsonReport {
+        schema_version: SCHEMA_VERSION,
+        chip: chip.name.as_deref(),
         units: "SI",
         fluid: JsonFluid {
             viscosity_pa_s: network.fluid.viscosity.si(),
@@ -106,16 +113,7 @@ pub fn to_json(network: &Network, state: &SteadyState) -> String {
         },
         max_relative_residual: sol.max_relative_residual,
         pressure_rating_pa: network.pressure_rating.map(|p| p.si()),
-        findings: crate::analysis::findings(network, state)
-            .into_iter()
-            .map(|f| JsonFinding {
-                severity: match f.severity {
-                    crate::analysis::Severity::Exceeded => "exceeded",
-                    crate::analysis::Severity::Note => "note",
-                },
-                message: f.message,
-            })
-            .collect(),
+        findings: super::findings::records(chip, &crate::analysis::findings(network, state)),
         nodes: network
             .nodes
             .iter()
@@ -144,11 +142,12 @@ pub fn to_json(network: &Network, state: &SteadyState) -> String {
             .channels
             .iter()
             .zip(&state.channels)
-            .map(|(c, s)| JsonChannel {
+            .enumerate()
+            .map(|(k, (c, s))| JsonChannel {
                 name: &c.name,
                 from: &network.nodes[c.from.0].name,
                 to: &network.nodes[c.to.0].name,
-                section: &network.sections[c.section.0].name,
+                section: chip.section_label(crate::network::ChannelId(k)),
                 length_m: c.length.si(),
                 flow_m3_per_s: s.flow,
                 pressure_drop_pa: s.pressure_drop,
@@ -179,11 +178,24 @@ pub fn to_json(network: &Network, state: &SteadyState) -> String {
                 fre_fanning: s.figures.f_re(),
             })
             .collect(),
-    };
-    // Serialising plain structs of strings and finite floats cannot fail; non-finite floats
-    // become null.
-    let mut out =
-        serde_json::to_string_pretty(&report).unwrap_or_else(|e| format!("{{\"error\": \"{e}\"}}"));
-    out.push('\n');
-    out
+        verdict: None,
+        sensitivities: None,
+    }
+}
+
+/// Write a serialisable document as pretty JSON and a final newline.
+pub(crate) fn write_json<T: Serialize>(
+    value: &T,
+    w: &mut dyn std::io::Write,
+) -> std::io::Result<()> {
+    serde_json::to_writer_pretty(&mut *w, value).map_err(std::io::Error::from)?;
+    w.write_all(b"\n")
+}
+
+/// The solve report as pretty JSON (SI).
+pub fn to_json(chip: &Chip, state: &SteadyState) -> String {
+    let mut out = Vec::new();
+    // Writing into memory cannot fail; non-finite floats become null.
+    let _ = write_json(&solve_report(chip, state), &mut out);
+    String::from_utf8_lossy(&out).into_owned()
 }

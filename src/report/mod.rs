@@ -5,6 +5,8 @@
 
 mod csv;
 mod design;
+pub mod findings;
+pub mod folder;
 mod html;
 mod json;
 mod section;
@@ -12,20 +14,32 @@ pub mod text;
 
 pub use csv::to_csv;
 pub use design::{sensitivity_report, size_report, tune_report};
+pub use findings::{finding_text, note_text};
 pub use html::html_page;
-pub use json::to_json;
+pub use json::{to_json, SCHEMA_VERSION};
 pub use section::section_report;
 pub use text::{check_text, to_table};
 
-use crate::analysis::SteadyState;
-use crate::network::{Network, Port};
+use crate::commands::Outcome;
+use crate::network::Port;
+use std::io::{self, Write};
 
-/// Output formats of the solve report.
+/// Output formats.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
 pub enum Format {
     Table,
     Json,
     Csv,
+}
+
+impl Format {
+    pub fn name(self) -> &'static str {
+        match self {
+            Format::Table => "table",
+            Format::Json => "json",
+            Format::Csv => "csv",
+        }
+    }
 }
 
 /// The caution printed with every human-readable result.
@@ -59,12 +73,107 @@ pub(crate) fn role(port: Port) -> &'static str {
     }
 }
 
-/// Render in the chosen format.
-pub fn render(network: &Network, state: &SteadyState, format: Format) -> String {
-    match format {
-        Format::Table => to_table(network, state),
-        Format::Json => to_json(network, state),
-        Format::Csv => to_csv(network, state),
+/// Render a command's outcome in `format` to `w`. An outcome that has nothing to print
+/// (files written) writes nothing; a format the outcome cannot take is an
+/// `InvalidInput` error (callers check [`Outcome::formats`] first).
+pub fn render(outcome: &Outcome, format: Format, w: &mut dyn Write) -> io::Result<()> {
+    if !outcome.formats().contains(&format) {
+        return Err(io::Error::new(
+            io::ErrorKind::InvalidInput,
+            format!("this command cannot write --format {}", format.name()),
+        ));
+    }
+    match (outcome, format) {
+        (Outcome::Wrote(_), _) => Ok(()),
+        (
+            Outcome::Solved {
+                chip,
+                state,
+                sensitivities,
+            },
+            Format::Table,
+        ) => {
+            w.write_all(to_table(chip, state).as_bytes())?;
+            match sensitivities {
+                Some(t) => w.write_all(sensitivity_report(&chip.network, t).as_bytes()),
+                None => Ok(()),
+            }
+        }
+        (
+            Outcome::Solved {
+                chip,
+                state,
+                sensitivities,
+            },
+            Format::Json,
+        ) => {
+            let mut doc = json::solve_report(chip, state);
+            doc.sensitivities = sensitivities
+                .as_ref()
+                .map(|t| design::sensitivity_json(&chip.network, t));
+            json::write_json(&doc, w)
+        }
+        (
+            Outcome::Solved {
+                chip,
+                state,
+                sensitivities,
+            },
+            Format::Csv,
+        ) => {
+            let mut tables = csv::Tables::new(w);
+            csv::solve_table(chip, state, &mut tables)?;
+            match sensitivities {
+                Some(t) => design::sensitivity_csv(&chip.network, t, &mut tables),
+                None => Ok(()),
+            }
+        }
+        (
+            Outcome::Checked {
+                chip,
+                state,
+                passed,
+            },
+            Format::Table,
+        ) => w.write_all(check_text(chip, state, *passed).as_bytes()),
+        (
+            Outcome::Checked {
+                chip,
+                state,
+                passed,
+            },
+            Format::Json,
+        ) => {
+            let mut doc = json::solve_report(chip, state);
+            doc.verdict = Some(if *passed { "pass" } else { "fail" });
+            json::write_json(&doc, w)
+        }
+        (Outcome::Checked { chip, state, .. }, Format::Csv) => {
+            csv::solve_table(chip, state, &mut csv::Tables::new(w))
+        }
+        (Outcome::Tuned { chip, result }, Format::Table) => {
+            w.write_all(tune_report(chip, result).as_bytes())
+        }
+        (Outcome::Tuned { chip, result }, Format::Json) => design::tune_json(chip, result, w),
+        (Outcome::Tuned { chip, result }, Format::Csv) => {
+            design::tune_csv(chip, result, &mut csv::Tables::new(w))
+        }
+        (
+            Outcome::Sized {
+                chip,
+                result,
+                run,
+                pitch,
+            },
+            f,
+        ) => match f {
+            Format::Table => w.write_all(size_report(chip, result, *run, *pitch).as_bytes()),
+            Format::Json => design::size_json(chip, result, *run, *pitch, w),
+            Format::Csv => design::size_csv(chip, result, *run, *pitch, &mut csv::Tables::new(w)),
+        },
+        (Outcome::Section(o), Format::Table) => w.write_all(section_report(o).as_bytes()),
+        (Outcome::Section(o), Format::Json) => section::section_json(o, w),
+        (Outcome::Section(o), Format::Csv) => section::section_csv(o, &mut csv::Tables::new(w)),
     }
 }
 
@@ -82,8 +191,15 @@ mod tests {
     }
 
     #[test]
-    fn csv_quotes_when_needed() {
-        assert_eq!(csv::csv_field("a,b"), "\"a,b\"");
-        assert_eq!(csv::csv_field("plain"), "plain");
+    fn csv_tables_quote_and_separate() {
+        let mut out = Vec::new();
+        let mut t = csv::Tables::new(&mut out);
+        t.table(&["record", "name"], [vec!["a".into(), "x,y".into()]])
+            .unwrap();
+        t.table(&["record"], [vec!["b".into()]]).unwrap();
+        assert_eq!(
+            String::from_utf8(out).unwrap(),
+            "record,name\na,\"x,y\"\n\nrecord\nb\n"
+        );
     }
 }

@@ -1,12 +1,14 @@
 //! The `section` command's report: one cross-section's figures.
 
+use super::csv::{n, num, Tables};
 use super::fmt_sig;
-use crate::section::numeric::NumericSection;
-use crate::section::{SectionFigures, Shape};
+use crate::commands::SectionOutcome;
 use serde::Serialize;
+use std::io;
 
 #[derive(Serialize)]
 struct JsonSection {
+    schema_version: u32,
     shape: &'static str,
     method: &'static str,
     viscosity_pa_s: f64,
@@ -25,44 +27,97 @@ struct JsonSection {
     seconds: f64,
 }
 
-/// Render one section's figures as a table or JSON.
-pub fn section_report(
-    shape: &Shape,
-    f: &SectionFigures,
-    numeric: Option<&NumericSection>,
-    viscosity: f64,
-    seconds: f64,
-    json: bool,
-) -> String {
-    if json {
-        let j = JsonSection {
-            shape: shape.kind(),
-            method: if numeric.is_some() {
-                "numerical (P2 finite elements)"
-            } else {
-                "closed form"
-            },
-            viscosity_pa_s: viscosity,
-            area_m2: f.area,
-            perimeter_m: f.perimeter,
-            hydraulic_diameter_m: f.hydraulic_diameter(),
-            conductance_factor_m4: f.conductance_factor,
-            resistance_per_length_pa_s_per_m4: f.resistance_per_length(viscosity),
-            fre_fanning: f.f_re(),
-            max_wall_shear_per_gradient_m: f.max_wall_shear_per_gradient,
-            max_wall_shear_at_m: numeric.map(|n| n.max_shear_at),
-            mean_wall_shear_per_gradient_m: f.mean_wall_shear_per_gradient(),
-            relative_error_estimate: f.relative_error_estimate,
-            shear_error_estimate: numeric
-                .map(|n| n.shear_error_estimate)
-                .filter(|e| e.is_finite()),
-            mesh_nodes: numeric.map(|n| n.field.nodes.len()),
-            seconds,
-        };
-        let mut s = serde_json::to_string_pretty(&j).unwrap_or_default();
-        s.push('\n');
-        return s;
+fn json_section(o: &SectionOutcome) -> JsonSection {
+    let (shape, f, numeric, viscosity) = (&o.shape, &o.figures, o.numeric.as_ref(), o.viscosity);
+    JsonSection {
+        schema_version: super::json::SCHEMA_VERSION,
+        shape: shape.kind(),
+        method: if numeric.is_some() {
+            "numerical (P2 finite elements)"
+        } else {
+            "closed form"
+        },
+        viscosity_pa_s: viscosity,
+        area_m2: f.area,
+        perimeter_m: f.perimeter,
+        hydraulic_diameter_m: f.hydraulic_diameter(),
+        conductance_factor_m4: f.conductance_factor,
+        resistance_per_length_pa_s_per_m4: f.resistance_per_length(viscosity),
+        fre_fanning: f.f_re(),
+        max_wall_shear_per_gradient_m: f.max_wall_shear_per_gradient,
+        max_wall_shear_at_m: numeric.map(|n| n.max_shear_at),
+        mean_wall_shear_per_gradient_m: f.mean_wall_shear_per_gradient(),
+        relative_error_estimate: f.relative_error_estimate,
+        shear_error_estimate: numeric
+            .map(|n| n.shear_error_estimate)
+            .filter(|e| e.is_finite()),
+        mesh_nodes: numeric.map(|n| n.field.nodes.len()),
+        seconds: o.seconds,
     }
+}
+
+/// One section's figures as JSON.
+pub(crate) fn section_json(o: &SectionOutcome, w: &mut dyn io::Write) -> io::Result<()> {
+    super::json::write_json(&json_section(o), w)
+}
+
+/// One section's figures as a one-row CSV table (the JSON keys as columns).
+pub(crate) fn section_csv(o: &SectionOutcome, tables: &mut Tables<'_>) -> io::Result<()> {
+    let j = json_section(o);
+    let at = |i: usize| j.max_wall_shear_at_m.map(|p| p[i]);
+    tables.table(
+        &[
+            "record",
+            "shape",
+            "method",
+            "viscosity_pa_s",
+            "area_m2",
+            "perimeter_m",
+            "hydraulic_diameter_m",
+            "conductance_factor_m4",
+            "resistance_per_length_pa_s_per_m4",
+            "fre_fanning",
+            "max_wall_shear_per_gradient_m",
+            "max_wall_shear_at_x_m",
+            "max_wall_shear_at_y_m",
+            "mean_wall_shear_per_gradient_m",
+            "relative_error_estimate",
+            "shear_error_estimate",
+            "mesh_nodes",
+            "seconds",
+        ],
+        [vec![
+            "section".into(),
+            j.shape.into(),
+            j.method.into(),
+            n(j.viscosity_pa_s),
+            n(j.area_m2),
+            n(j.perimeter_m),
+            n(j.hydraulic_diameter_m),
+            n(j.conductance_factor_m4),
+            n(j.resistance_per_length_pa_s_per_m4),
+            n(j.fre_fanning),
+            n(j.max_wall_shear_per_gradient_m),
+            num(at(0)),
+            num(at(1)),
+            n(j.mean_wall_shear_per_gradient_m),
+            n(j.relative_error_estimate),
+            num(j.shear_error_estimate),
+            j.mesh_nodes.map(|m| m.to_string()).unwrap_or_default(),
+            n(j.seconds),
+        ]],
+    )
+}
+
+/// One section's figures as a table.
+pub fn section_report(o: &SectionOutcome) -> String {
+    let (shape, f, numeric, viscosity, seconds) = (
+        &o.shape,
+        &o.figures,
+        o.numeric.as_ref(),
+        o.viscosity,
+        o.seconds,
+    );
     let um = |m: f64| fmt_sig(m * 1e6, 5);
     let mut out = String::new();
     out.push_str(&format!(

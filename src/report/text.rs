@@ -2,6 +2,7 @@
 
 use super::{fmt_sig, CAUTION};
 use crate::analysis::SteadyState;
+use crate::chip::Chip;
 use crate::network::{Network, Port};
 use crate::units::display;
 
@@ -71,10 +72,11 @@ impl TextTable {
 }
 
 /// Human-readable report: ports, nodes, channels, residual, caution.
-pub fn to_table(network: &Network, state: &SteadyState) -> String {
+pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
+    let network = &chip.network;
     let sol = &state.solution;
     let mut out = String::new();
-    if let Some(name) = &network.name {
+    if let Some(name) = &chip.name {
         out.push_str(&format!("Chip: {name}\n"));
     }
     out.push_str(&format!(
@@ -170,7 +172,7 @@ pub fn to_table(network: &Network, state: &SteadyState) -> String {
         network.nodes.len(),
         network.channels.len()
     ));
-    findings_section(network, state, &mut out);
+    findings_section(chip, state, &mut out);
     out
 }
 
@@ -247,14 +249,15 @@ pub fn shear_section(network: &Network, state: &SteadyState, out: &mut String) {
 }
 
 /// Limits exceeded, notes, and the cautions that apply.
-pub fn findings_section(network: &Network, state: &SteadyState, out: &mut String) {
-    let found = crate::analysis::findings(network, state);
+pub fn findings_section(chip: &Chip, state: &SteadyState, out: &mut String) {
+    let network = &chip.network;
+    let found = super::findings::records(chip, &crate::analysis::findings(network, state));
     if !found.is_empty() {
         out.push_str("\nFindings\n");
         for f in &found {
             let tag = match f.severity {
-                crate::analysis::Severity::Exceeded => "LIMIT EXCEEDED",
-                crate::analysis::Severity::Note => "note",
+                "exceeded" => "LIMIT EXCEEDED",
+                _ => "note",
             };
             out.push_str(&format!("  [{tag}] {}\n", f.message));
         }
@@ -286,9 +289,10 @@ pub const PRESSURE_CAUTION: &str = "Pressure rating: bonded chips, ports and fit
 and follow your lab's rules for pressurised equipment.";
 
 /// The `check` report: verdict, shear margins, pressures against the rating, findings.
-pub fn check_text(network: &Network, state: &SteadyState, passed: bool) -> String {
+pub fn check_text(chip: &Chip, state: &SteadyState, passed: bool) -> String {
+    let network = &chip.network;
     let mut out = String::new();
-    if let Some(name) = &network.name {
+    if let Some(name) = &chip.name {
         out.push_str(&format!("Chip: {name}\n"));
     }
     let limited = state
@@ -327,6 +331,6 @@ pub fn check_text(network: &Network, state: &SteadyState, passed: bool) -> Strin
             network.nodes[i].name
         ));
     }
-    findings_section(network, state, &mut out);
+    findings_section(chip, state, &mut out);
     out
 }

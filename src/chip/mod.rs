@@ -1,0 +1,99 @@
+//! The chip as the user declared it: the solvable [`Network`] plus everything around it that
+//! the solver must not see — the file it came from, the named sections as written, the design
+//! problem, drawing positions and model notes.
+//!
+//! The split keeps the dependency arrows one way: `analysis` works on a [`Network`] (and, for
+//! the design commands, on a [`design::Design`] passed beside it); `report` and `plots` read a
+//! [`Chip`] together with analysis results. Nothing in `network` or `analysis` imports
+//! [`Chip`]; `analysis::design` reads only the data types of [`design`].
+
+pub mod design;
+
+use crate::fluid::RangeWarning;
+use crate::network::{ChannelId, Network, SectionId};
+
+/// Where a chip's text came from.
+#[derive(Clone, Debug, PartialEq)]
+pub struct Source {
+    /// File path, or `-` for standard input, as shown in messages.
+    pub origin: String,
+    /// The text as read (kept so edited copies can be written from it).
+    pub text: String,
+    pub syntax: crate::format::Syntax,
+}
+
+/// Positions for drawing the chip [m]: per node an optional position, per channel the
+/// intermediate points of its path (empty when straight). Empty vectors mean "not given".
+#[derive(Clone, Debug, Default, PartialEq)]
+pub struct DrawnLayout {
+    pub node_at: Vec<Option<[f64; 2]>>,
+    pub channel_path: Vec<Vec<[f64; 2]>>,
+}
+
+/// A declared chip.
+#[derive(Clone, Debug)]
+pub struct Chip {
+    pub name: Option<String>,
+    pub description: Option<String>,
+    pub source: Source,
+    /// What gets solved: topology and physics.
+    pub network: Network,
+    /// Targets, adjustable ports and free channel dimensions for the design commands.
+    pub design: design::Design,
+    /// Drawing positions given in the chip file (used by the pictures only).
+    pub layout: DrawnLayout,
+    /// Models used outside their published range (e.g. a fluid correlation).
+    pub notes: Vec<RangeWarning>,
+}
+
+impl Chip {
+    /// The name to print in titles.
+    pub fn title(&self) -> &str {
+        self.name.as_deref().unwrap_or("chip")
+    }
+
+    /// The section a user means by `name`: a `sections:` entry, or `CHANNEL.section` for a
+    /// channel's inline section.
+    pub fn section_named(&self, name: &str) -> Option<SectionId> {
+        if let Some(i) = self
+            .network
+            .sections
+            .iter()
+            .position(|s| s.named && s.name == name)
+        {
+            return Some(SectionId(i));
+        }
+        let channel = name.strip_suffix(".section")?;
+        let id = self.network.channel_id(channel)?;
+        Some(self.network.channels[id.0].section)
+    }
+
+    /// The name a channel's section is known by in the file.
+    pub fn section_label(&self, channel: ChannelId) -> String {
+        let c = &self.network.channels[channel.0];
+        let s = &self.network.sections[c.section.0];
+        if s.named {
+            s.name.clone()
+        } else {
+            format!("{}.section", c.name)
+        }
+    }
+
+    /// Every name `section --name` accepts, for error messages.
+    pub fn section_names(&self) -> Vec<String> {
+        let net = &self.network;
+        let mut names: Vec<String> = net
+            .sections
+            .iter()
+            .filter(|s| s.named)
+            .map(|s| s.name.clone())
+            .collect();
+        names.extend(
+            net.channels
+                .iter()
+                .filter(|c| !net.sections[c.section.0].named)
+                .map(|c| format!("{}.section", c.name)),
+        );
+        names
+    }
+}

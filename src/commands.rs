@@ -1,0 +1,518 @@
+//! One function per command. Each loads what it needs, runs the analysis and returns an
+//! [`Outcome`]: data, not text. Rendering (table, JSON, CSV) is [`crate::report::render`]'s
+//! job, and writing it is the caller's (see [`crate::emit`]).
+
+use crate::analysis::{self, design, SteadyState};
+use crate::chip::Chip;
+use crate::error::Error;
+use crate::network::ChannelId;
+use crate::report::Format;
+use crate::section::numeric::{NumericOptions, NumericSection};
+use crate::section::{SectionFigures, Shape};
+use crate::{fluid, format, output, plots, units};
+use std::path::{Path, PathBuf};
+
+/// Where a chip comes from: a file, or standard input (`-`) already read into text.
+#[derive(Clone, Copy, Debug)]
+pub enum ChipInput<'a> {
+    File(&'a Path),
+    /// Text read from standard input, with the syntax to parse it as.
+    Text {
+        text: &'a str,
+        syntax: format::Syntax,
+    },
+}
+
+impl ChipInput<'_> {
+    /// The input file, if any (never to be overwritten by outputs of the same run).
+    pub fn path(&self) -> Option<&Path> {
+        match self {
+            ChipInput::File(p) => Some(p),
+            ChipInput::Text { .. } => None,
+        }
+    }
+
+    /// Read and validate the chip.
+    pub fn load(&self) -> Result<Chip, Error> {
+        match *self {
+            ChipInput::File(path) => crate::load_chip(path),
+            ChipInput::Text { text, syntax } => {
+                let cwd = |name: &str| std::fs::read_to_string(name).map_err(|e| e.to_string());
+                Ok(format::parse_chip_with(text, "<stdin>", syntax, &cwd)?)
+            }
+        }
+    }
+
+    fn protected(&self) -> Vec<&Path> {
+        self.path().into_iter().collect()
+    }
+}
+
+/// What a command produced.
+#[derive(Debug)]
+pub enum Outcome {
+    /// `solve`: the steady state, and sensitivities when asked for.
+    Solved {
+        chip: Box<Chip>,
+        state: SteadyState,
+        sensitivities: Option<SensitivityTable>,
+    },
+    /// `check`: the steady state and whether every limit holds.
+    Checked {
+        chip: Box<Chip>,
+        state: SteadyState,
+        passed: bool,
+    },
+    /// `tune`: new drive settings.
+    Tuned {
+        chip: Box<Chip>,
+        result: design::TuneResult,
+    },
+    /// `size`: new channel dimensions.
+    Sized {
+        chip: Box<Chip>,
+        result: Box<design::SizeResult>,
+        run: f64,
+        pitch: f64,
+    },
+    /// `section`: one cross-section's figures.
+    Section(Box<SectionOutcome>),
+    /// `plot`, `report`: files written (a status line for standard error).
+    Wrote(Vec<PathBuf>),
+}
+
+impl Outcome {
+    /// Whether the command's verdict is a pass (exit 0) — a check with no limit exceeded;
+    /// every other finished command passes.
+    pub fn passed(&self) -> bool {
+        match self {
+            Outcome::Checked { passed, .. } => *passed,
+            _ => true,
+        }
+    }
+
+    /// Formats this outcome can be rendered in.
+    pub fn formats(&self) -> &'static [Format] {
+        match self {
+            Outcome::Wrote(_) => &[Format::Table],
+            _ => &[Format::Table, Format::Json, Format::Csv],
+        }
+    }
+}
+
+/// Sensitivities of chosen channels' flows, possibly cut to the largest per target.
+#[derive(Clone, Debug)]
+pub struct SensitivityTable {
+    pub rows: Vec<design::Sensitivity>,
+    /// Rows kept per target channel when the full table would exceed
+    /// [`SENSITIVITY_ROW_LIMIT`] (the largest by relative length sensitivity); `None` when
+    /// every row is shown.
+    pub kept_per_target: Option<usize>,
+}
+
+/// Largest number of sensitivity rows printed in full (targets × channels); above it each
+/// target keeps its [`SENSITIVITY_TOP`] largest rows.
+pub const SENSITIVITY_ROW_LIMIT: usize = 100_000;
+/// Rows kept per target channel in the summary form.
+pub const SENSITIVITY_TOP: usize = 25;
+/// Without targets or `--channels`, sensitivities of every channel are given only up to this
+/// many channels.
+pub const SENSITIVITY_ALL_CHANNELS: usize = 50;
+
+/// Which channels' flows `solve --sensitivity` differentiates.
+#[derive(Clone, Debug, Default)]
+pub enum SensitivityChoice {
+    /// No sensitivities.
+    #[default]
+    None,
+    /// The chip's target channels (every channel of a small chip without targets).
+    Targets,
+    /// These channels, by name.
+    Channels(Vec<String>),
+}
+
+/// What the `solve` command needs.
+#[derive(Clone, Debug)]
+pub struct SolveRequest<'a> {
+    pub chip: ChipInput<'a>,
+    /// Draw the shear-margin chart to this new .svg/.png file.
+    pub plot: Option<&'a Path>,
+    pub sensitivity: SensitivityChoice,
+}
+
+/// Load a chip and solve it, mapping a failed solve to [`Error::Solve`].
+fn load_and_solve(input: &ChipInput<'_>) -> Result<(Chip, SteadyState), Error> {
+    let chip = input.load()?;
+    let state = analysis::steady_state(&chip.network).map_err(|source| Error::Solve {
+        origin: chip.source.origin.clone(),
+        source,
+    })?;
+    Ok((chip, state))
+}
+
+/// Draw the shear-margin chart of a solved chip into a new picture file.
+fn margin_plot(
+    chip: &Chip,
+    state: &SteadyState,
+    path: &Path,
+    input: &ChipInput<'_>,
+) -> Result<(), Error> {
+    let chart = plots::MarginChart::new(chip, state).ok_or_else(|| Error::Write {
+        path: path.to_path_buf(),
+        reason: "no channel has a wall-shear limit, so there is no margin to chart; add \
+                 'shear_limit' under fluid.cells or on a channel"
+            .into(),
+    })?;
+    plots::save(&chart, path, &input.protected())
+}
+
+/// Load and solve a chip (and its sensitivities when asked).
+pub fn solve(req: &SolveRequest<'_>) -> Result<Outcome, Error> {
+    let (chip, state) = load_and_solve(&req.chip)?;
+    if let Some(path) = req.plot {
+        margin_plot(&chip, &state, path, &req.chip)?;
+    }
+    let sensitivities = match &req.sensitivity {
+        SensitivityChoice::None => None,
+        choice => Some(sensitivity_table(&chip, choice)?),
+    };
+    Ok(Outcome::Solved {
+        chip: Box::new(chip),
+        state,
+        sensitivities,
+    })
+}
+
+/// The channels whose flows are differentiated.
+fn sensitivity_channels(chip: &Chip, choice: &SensitivityChoice) -> Result<Vec<ChannelId>, Error> {
+    let net = &chip.network;
+    let refuse = |msg: String| Error::Input(format::InputError::whole_file("--channels", msg));
+    let mut ids: Vec<ChannelId> = match choice {
+        SensitivityChoice::Channels(names) => names
+            .iter()
+            .map(|n| {
+                net.channel_id(n)
+                    .ok_or_else(|| refuse(format!("the chip has no channel '{n}'")))
+            })
+            .collect::<Result<_, _>>()?,
+        _ => chip.design.target_channels(),
+    };
+    if ids.is_empty() {
+        if net.channels.len() > SENSITIVITY_ALL_CHANNELS {
+            return Err(refuse(format!(
+                "the chip has no flow or split targets and {} channels; name the channels whose \
+                 flows you want differentiated, e.g. --channels {}",
+                net.channels.len(),
+                net.channels
+                    .iter()
+                    .take(2)
+                    .map(|c| c.name.as_str())
+                    .collect::<Vec<_>>()
+                    .join(",")
+            )));
+        }
+        ids = (0..net.channels.len()).map(ChannelId).collect();
+    }
+    let mut seen = vec![false; net.channels.len()];
+    ids.retain(|c| !std::mem::replace(&mut seen[c.0], true));
+    Ok(ids)
+}
+
+fn sensitivity_table(chip: &Chip, choice: &SensitivityChoice) -> Result<SensitivityTable, Error> {
+    let targets = sensitivity_channels(chip, choice)?;
+    let mut rows =
+        design::sensitivities(&chip.network, &targets).map_err(|source| Error::Solve {
+            origin: chip.source.origin.clone(),
+            source,
+        })?;
+    let n = chip.network.channels.len();
+    let mut kept_per_target = None;
+    if rows.len() > SENSITIVITY_ROW_LIMIT {
+        let keep = SENSITIVITY_TOP.min(n);
+        let size = |s: &design::Sensitivity| s.rel_length.map_or(0.0, f64::abs);
+        let mut cut = Vec::with_capacity(keep * targets.len());
+        for block in rows.chunks_mut(n) {
+            block.sort_by(|a, b| size(b).total_cmp(&size(a)));
+            cut.extend_from_slice(&block[..keep]);
+        }
+        rows = cut;
+        kept_per_target = Some(keep);
+    }
+    Ok(SensitivityTable {
+        rows,
+        kept_per_target,
+    })
+}
+
+/// What the `check` command needs.
+#[derive(Clone, Debug)]
+pub struct CheckRequest<'a> {
+    pub chip: ChipInput<'a>,
+    /// Draw the shear-margin chart to this new .svg/.png file.
+    pub plot: Option<&'a Path>,
+}
+
+/// Solve a chip and check it against its shear limits, pressure rating and vacuum.
+pub fn check(req: &CheckRequest<'_>) -> Result<Outcome, Error> {
+    let (chip, state) = load_and_solve(&req.chip)?;
+    if let Some(path) = req.plot {
+        margin_plot(&chip, &state, path, &req.chip)?;
+    }
+    let passed = !analysis::findings(&chip.network, &state)
+        .iter()
+        .any(|f| f.severity == analysis::Severity::Exceeded);
+    Ok(Outcome::Checked {
+        chip: Box::new(chip),
+        state,
+        passed,
+    })
+}
+
+/// One section's figures, as the `section` command reports them.
+#[derive(Clone, Debug)]
+pub struct SectionOutcome {
+    pub shape: Shape,
+    pub figures: SectionFigures,
+    pub numeric: Option<NumericSection>,
+    /// Viscosity used for the resistance [Pa·s].
+    pub viscosity: f64,
+    /// Wall-clock time of the section solve [s].
+    pub seconds: f64,
+    /// "inline section" or "section 'x' of chip.yaml".
+    pub label: String,
+}
+
+/// What the `section` command needs: a shape given inline, or a named section of a chip.
+#[derive(Clone, Debug, Default)]
+pub struct SectionRequest<'a> {
+    /// Inline mapping in the chip-file syntax.
+    pub spec: Option<&'a str>,
+    /// Chip file and section name (a `sections:` entry, or `CHANNEL.section` for an inline one).
+    pub chip: Option<ChipInput<'a>>,
+    pub name: Option<&'a str>,
+    /// Viscosity for the resistance (default: the chip's fluid, else water at 20 °C).
+    pub viscosity: Option<units::Viscosity>,
+    /// Relative error target for numerical shapes (default 1e-4).
+    pub tolerance: Option<f64>,
+    pub plot: Option<&'a Path>,
+}
+
+fn usage(msg: &str) -> Error {
+    Error::Input(format::InputError::whole_file("section", msg))
+}
+
+/// The shape, the chip's viscosity and a label for the section asked for.
+fn section_shape(req: &SectionRequest<'_>) -> Result<(Shape, Option<f64>, String), Error> {
+    match (req.spec, &req.chip, req.name) {
+        (Some(spec), None, None) => {
+            let read = |name: &str| std::fs::read_to_string(name).map_err(|e| e.to_string());
+            Ok((
+                format::parse_section_spec(spec, "section spec", &read)?,
+                None,
+                "inline section".to_string(),
+            ))
+        }
+        (None, Some(input), Some(name)) => {
+            let chip = input.load()?;
+            let id = chip.section_named(name).ok_or_else(|| {
+                Error::Input(format::InputError::whole_file(
+                    &chip.source.origin,
+                    format!(
+                        "no section named '{name}'; the chip has: {}",
+                        chip.section_names().join(", ")
+                    ),
+                ))
+            })?;
+            Ok((
+                chip.network.sections[id.0].shape.clone(),
+                Some(chip.network.fluid.viscosity.si()),
+                format!("section '{name}' of {}", chip.source.origin),
+            ))
+        }
+        _ => Err(usage(
+            "give either a section mapping, e.g. '{shape: circle, diameter: 100 um}', or --file CHIP --name SECTION",
+        )),
+    }
+}
+
+/// Compute one cross-section's figures (and draw its picture when asked).
+pub fn section(req: &SectionRequest<'_>) -> Result<Outcome, Error> {
+    let mut opts = NumericOptions::default();
+    if let Some(t) = req.tolerance {
+        if !(t.is_finite() && t > 0.0 && t < 0.1) {
+            return Err(usage(
+                "--tolerance must be a relative error between 0 and 0.1",
+            ));
+        }
+        opts.tolerance = t;
+        opts.shear_tolerance = (10.0 * t).min(0.05);
+    }
+    let (shape, chip_viscosity, label) = section_shape(req)?;
+    let viscosity = req
+        .viscosity
+        .map(|v| v.si())
+        .or(chip_viscosity)
+        .unwrap_or(fluid::Fluid::WATER_20C.viscosity.si());
+    let started = std::time::Instant::now();
+    let (figures, numeric) = shape
+        .figures_with(&opts)
+        .map_err(|e| usage(&format!("{}: {e}", shape.kind())))?;
+    let seconds = started.elapsed().as_secs_f64();
+    if let Some(path) = req.plot {
+        let sol = match &numeric {
+            Some(sol) => sol.clone(),
+            None => shape
+                .solve_numeric(&opts)
+                .map_err(|e| usage(&format!("{}: {e}", shape.kind())))?,
+        };
+        let picture = plots::SectionPicture {
+            title: format!("{} — {}", shape.kind(), label),
+            solution: &sol,
+        };
+        let protected: Vec<&Path> = req.chip.iter().filter_map(|c| c.path()).collect();
+        plots::save(&picture, path, &protected)?;
+    }
+    Ok(Outcome::Section(Box::new(SectionOutcome {
+        shape,
+        figures,
+        numeric,
+        viscosity,
+        seconds,
+        label,
+    })))
+}
+
+/// What `tune` and `size` need.
+#[derive(Clone, Debug)]
+pub struct DesignRequest<'a> {
+    pub chip: ChipInput<'a>,
+    /// Write the tuned/sized chip to this new file.
+    pub output: Option<&'a Path>,
+    /// Serpentine straight run and centre-line pitch for long sized lengths [m].
+    pub run: f64,
+    pub pitch: f64,
+}
+
+fn design_error(chip: &Chip) -> impl Fn(design::DesignError) -> Error + '_ {
+    move |source| Error::Design {
+        origin: chip.source.origin.clone(),
+        source,
+    }
+}
+
+/// Tune the adjustable ports of a chip to its targets (and write the tuned copy).
+pub fn tune(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
+    let chip = req.chip.load()?;
+    let result = design::tune(&chip.network, &chip.design).map_err(design_error(&chip))?;
+    if let Some(out) = req.output {
+        let edits = crate::copies::tuned_edits(&chip, &result);
+        crate::copies::write_edited_copy(&chip, out, &edits, &req.chip.protected())?;
+    }
+    Ok(Outcome::Tuned {
+        chip: Box::new(chip),
+        result,
+    })
+}
+
+/// Size the free channel dimensions of a chip to its targets (and write the sized copy).
+pub fn size(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
+    let chip = req.chip.load()?;
+    let result = design::size(&chip.network, &chip.design).map_err(design_error(&chip))?;
+    if let Some(out) = req.output {
+        let edits = crate::copies::sized_edits(&chip, &result)?;
+        crate::copies::write_edited_copy(&chip, out, &edits, &req.chip.protected())?;
+    }
+    Ok(Outcome::Sized {
+        chip: Box::new(chip),
+        result: Box::new(result),
+        run: req.run,
+        pitch: req.pitch,
+    })
+}
+
+/// What the `plot` command needs.
+#[derive(Clone, Debug)]
+pub struct PlotRequest<'a> {
+    pub chip: ChipInput<'a>,
+    /// The pressure-along-path picture instead of the flow splits.
+    pub pressure_profile: bool,
+    pub colour: plots::ColourBy,
+    pub output: &'a Path,
+}
+
+/// Draw the chip's flow-split picture or its pressure profile.
+pub fn plot(req: &PlotRequest<'_>) -> Result<Outcome, Error> {
+    let (chip, state) = load_and_solve(&req.chip)?;
+    let protected = req.chip.protected();
+    if req.pressure_profile {
+        plots::save(
+            &plots::PressurePicture::new(&chip, &state),
+            req.output,
+            &protected,
+        )?;
+    } else {
+        plots::save(
+            &plots::ChipPicture::new(&chip, &state, req.colour),
+            req.output,
+            &protected,
+        )?;
+    }
+    Ok(Outcome::Wrote(vec![req.output.to_path_buf()]))
+}
+
+/// What the `report` command needs.
+#[derive(Clone, Debug)]
+pub struct ReportRequest<'a> {
+    pub chip: ChipInput<'a>,
+    pub folder: &'a Path,
+    /// Allow a folder that already has files (existing files are still never replaced).
+    pub into_existing: bool,
+}
+
+fn check_report_folder(req: &ReportRequest<'_>) -> Result<(), Error> {
+    let folder_err = |reason: String| Error::Write {
+        path: req.folder.to_path_buf(),
+        reason,
+    };
+    if req.folder.exists() {
+        let non_empty = std::fs::read_dir(req.folder)
+            .map_err(|e| folder_err(e.to_string()))?
+            .next()
+            .is_some();
+        if non_empty && !req.into_existing {
+            return Err(folder_err(
+                "the folder is not empty; choose a new folder, or pass --into-existing (existing files are never replaced)"
+                    .into(),
+            ));
+        }
+    }
+    Ok(())
+}
+
+/// Write tables, pictures and a self-contained HTML page into a new folder.
+pub fn report(req: &ReportRequest<'_>) -> Result<Outcome, Error> {
+    check_report_folder(req)?;
+    let (chip, state) = load_and_solve(&req.chip)?;
+    std::fs::create_dir_all(req.folder).map_err(|e| Error::Write {
+        path: req.folder.to_path_buf(),
+        reason: e.to_string(),
+    })?;
+    let files = crate::report::folder::write(&chip, &state, req.folder, &req.chip.protected())?;
+    Ok(Outcome::Wrote(files))
+}
+
+/// Write an outcome rendered in `format` to the new file `path` (atomically, never
+/// replacing a file).
+pub fn write_outcome(
+    outcome: &Outcome,
+    format: Format,
+    path: &Path,
+    protected: &[&Path],
+) -> Result<(), Error> {
+    let mut bytes = Vec::new();
+    crate::report::render(outcome, format, &mut bytes).map_err(|e| Error::Write {
+        path: path.to_path_buf(),
+        reason: e.to_string(),
+    })?;
+    output::write_new_file(path, &bytes, protected)
+}

@@ -1,0 +1,160 @@
+//! Findings and model notes in words, and as JSON/CSV records.
+
+use crate::analysis::limits::{ENTRANCE_LENGTHS, REYNOLDS_NOTE};
+use crate::analysis::{Finding, FindingKind, Place, Severity};
+use crate::chip::Chip;
+use crate::fluid::{FluidModelName, RangeParameter, RangeWarning};
+use crate::units::display;
+use serde::Serialize;
+
+/// The place of a finding by name: ("node" | "channel", name).
+pub(crate) fn place_name(chip: &Chip, place: Place) -> (&'static str, &str) {
+    match place {
+        Place::Node(n) => ("node", chip.network.nodes[n.0].name.as_str()),
+        Place::Channel(c) => ("channel", chip.network.channels[c.0].name.as_str()),
+    }
+}
+
+fn mbar(p: f64) -> String {
+    format!("{:.1} mbar", display::mbar(p))
+}
+
+/// One finding as a sentence.
+pub fn finding_text(chip: &Chip, f: &Finding) -> String {
+    let (kind, name) = place_name(chip, f.kind.place());
+    let at = format!("{kind} '{name}'");
+    match f.kind {
+        FindingKind::ShearOverLimit { value, limit, .. } => format!(
+            "{at}: maximum wall shear {value:.3} Pa exceeds the limit {limit:.3} Pa (margin {:.2})",
+            limit / value
+        ),
+        FindingKind::PressureOverRating { value, limit, .. } => format!(
+            "{at}: pressure {} exceeds the chip's rating {}",
+            mbar(value),
+            mbar(limit)
+        ),
+        FindingKind::PressureNearRating { value, limit, .. } => format!(
+            "{at}: pressure {} is above {:.0} % of the chip's rating {}",
+            mbar(value),
+            crate::analysis::limits::RATING_NOTE_FRACTION * 100.0,
+            mbar(limit)
+        ),
+        FindingKind::BelowVacuum { value, .. } => format!(
+            "{at}: gauge pressure {} is below −1 atm, an absolute pressure below zero: the liquid \
+             would cavitate or outgas long before; lower the suction or raise the outlet pressure",
+            mbar(value)
+        ),
+        FindingKind::Inertia { value, .. } => format!(
+            "{at}: Re = {value:.0} > {REYNOLDS_NOTE}; inertia at junctions and bends makes the \
+             linear model optimistic"
+        ),
+        FindingKind::ShortForEntrance { value, limit, .. } => format!(
+            "{at}: length {:.0} um is under {ENTRANCE_LENGTHS} entrance lengths ({:.0} um each); \
+             the flow there is not fully developed and its resistance and shear are underestimated",
+            value * 1e6,
+            limit / ENTRANCE_LENGTHS * 1e6
+        ),
+    }
+}
+
+fn model_name(m: FluidModelName) -> &'static str {
+    match m {
+        FluidModelName::Water => "water (IAPWS R12-08)",
+        FluidModelName::GlycerolWater => "glycerol–water (Cheng 2008)",
+        FluidModelName::Einstein => "Einstein suspension",
+        FluidModelName::KriegerDougherty => "Krieger–Dougherty suspension",
+    }
+}
+
+/// A model-range note as a sentence.
+pub fn note_text(w: &RangeWarning) -> String {
+    match w.parameter {
+        RangeParameter::Temperature => format!(
+            "{} viscosity at {:.1} °C is outside the model's {:.0}–{:.0} °C range",
+            model_name(w.model),
+            w.value - 273.15,
+            w.valid[0] - 273.15,
+            w.valid[1] - 273.15
+        ),
+        RangeParameter::VolumeFraction if w.model == FluidModelName::Einstein => format!(
+            "volume fraction {} is beyond the dilute range of Einstein's law (φ ≤ {}); \
+             use model: krieger-dougherty",
+            w.value, w.valid[1]
+        ),
+        RangeParameter::VolumeFraction => format!(
+            "volume fraction {} is above {:.3}, within 10 % of maximum packing: the {} \
+             viscosity diverges there and is unreliable",
+            w.value,
+            w.valid[1],
+            model_name(w.model)
+        ),
+    }
+}
+
+/// A finding or note as a JSON record (SI values).
+#[derive(Serialize)]
+pub(crate) struct JsonFinding {
+    /// "exceeded" (a limit is broken) or "note".
+    pub severity: &'static str,
+    /// Machine name of the kind, e.g. "shear_over_limit", "model_range".
+    pub kind: &'static str,
+    /// "node", "channel" or "fluid".
+    pub place: &'static str,
+    /// Name of the node or channel (the model name for a fluid note).
+    pub name: String,
+    /// The value compared (SI: Pa, m, K, or a plain number).
+    pub value: f64,
+    /// The limit it was compared with (SI); for a model range, the bound crossed.
+    pub limit: f64,
+    pub message: String,
+}
+
+pub(crate) fn severity_code(s: Severity) -> &'static str {
+    match s {
+        Severity::Exceeded => "exceeded",
+        Severity::Note => "note",
+    }
+}
+
+/// Every finding and model note of a solved chip, most serious first.
+pub(crate) fn records(chip: &Chip, found: &[Finding]) -> Vec<JsonFinding> {
+    let mut out: Vec<JsonFinding> = found
+        .iter()
+        .filter(|f| f.severity == Severity::Exceeded)
+        .map(|f| record(chip, f))
+        .collect();
+    out.extend(chip.notes.iter().map(|w| JsonFinding {
+        severity: "note",
+        kind: "model_range",
+        place: "fluid",
+        name: model_name(w.model).to_string(),
+        value: w.value,
+        limit: if w.value < w.valid[0] {
+            w.valid[0]
+        } else {
+            w.valid[1]
+        },
+        message: note_text(w),
+    }));
+    out.extend(
+        found
+            .iter()
+            .filter(|f| f.severity != Severity::Exceeded)
+            .map(|f| record(chip, f)),
+    );
+    out
+}
+
+fn record(chip: &Chip, f: &Finding) -> JsonFinding {
+    let (place, name) = place_name(chip, f.kind.place());
+    let (value, limit) = f.kind.value_and_limit();
+    JsonFinding {
+        severity: severity_code(f.severity),
+        kind: f.kind.code(),
+        place,
+        name: name.to_string(),
+        value,
+        limit,
+        message: finding_text(chip, f),
+    }
+}

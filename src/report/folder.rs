@@ -1,0 +1,82 @@
+//! The `report` folder: tables (text, JSON, CSV), every picture as SVG and PNG, and a
+//! self-contained HTML page.
+
+use crate::analysis::SteadyState;
+use crate::chip::Chip;
+use crate::error::Error;
+use crate::{output, plots};
+use std::path::{Path, PathBuf};
+
+/// Writes new files into one folder, remembering what it wrote.
+struct Folder<'a> {
+    dir: &'a Path,
+    protected: &'a [&'a Path],
+    written: Vec<PathBuf>,
+}
+
+impl Folder<'_> {
+    fn put(&mut self, name: &str, bytes: &[u8]) -> Result<(), Error> {
+        let path = self.dir.join(name);
+        output::write_new_file(&path, bytes, self.protected)?;
+        self.written.push(path);
+        Ok(())
+    }
+
+    /// Write a figure as `name.svg` and `name.png`; returns the SVG text for the page.
+    fn picture(&mut self, name: &str, fig: &impl plots::Figure) -> Result<String, Error> {
+        let fail = |reason: String| Error::Write {
+            path: self.dir.join(name),
+            reason,
+        };
+        let svg = plots::render(fig, plots::PictureFormat::Svg).map_err(fail)?;
+        let png = plots::render(fig, plots::PictureFormat::Png).map_err(|reason| Error::Write {
+            path: self.dir.join(name),
+            reason,
+        })?;
+        self.put(&format!("{name}.svg"), &svg)?;
+        self.put(&format!("{name}.png"), &png)?;
+        Ok(String::from_utf8_lossy(&svg).into_owned())
+    }
+}
+
+/// Write the report of a solved chip into `dir` (which exists); returns the files written.
+pub fn write(
+    chip: &Chip,
+    state: &SteadyState,
+    dir: &Path,
+    protected: &[&Path],
+) -> Result<Vec<PathBuf>, Error> {
+    let mut folder = Folder {
+        dir,
+        protected,
+        written: Vec::new(),
+    };
+    folder.put("summary.txt", super::to_table(chip, state).as_bytes())?;
+    folder.put("results.json", super::to_json(chip, state).as_bytes())?;
+    folder.put("results.csv", super::to_csv(chip, state).as_bytes())?;
+    let mut pictures: Vec<(String, String)> = Vec::new();
+    let colour = if state.channels.iter().any(|s| s.shear_limit.is_some()) {
+        plots::ColourBy::Margin
+    } else {
+        plots::ColourBy::Pressure
+    };
+    let splits = plots::ChipPicture::new(chip, state, colour);
+    pictures.push((
+        "Flow split: line width ∝ |flow|, arrows show direction.".into(),
+        folder.picture("splits", &splits)?,
+    ));
+    let pressure = plots::PressurePicture::new(chip, state);
+    pictures.push((
+        "Pressure along the main flow path from each inlet.".into(),
+        folder.picture("pressure", &pressure)?,
+    ));
+    if let Some(chart) = plots::MarginChart::new(chip, state) {
+        pictures.push((
+            "Wall-shear margin per channel (limit / maximum wall shear).".into(),
+            folder.picture("margins", &chart)?,
+        ));
+    }
+    let page = super::html_page(chip, state, &pictures);
+    folder.put("index.html", page.as_bytes())?;
+    Ok(folder.written)
+}
