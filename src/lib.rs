@@ -28,6 +28,7 @@ pub mod output;
 pub mod plots;
 pub mod report;
 pub mod section;
+pub mod serpentine;
 pub mod solver;
 pub mod units;
 
