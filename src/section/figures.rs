@@ -1,0 +1,53 @@
+//! [`SectionFigures`]: the laminar figures of one cross-section (area, wetted perimeter,
+//! conductance factor, maximum wall shear, error estimate) and the figures derived from them.
+
+use super::numeric::NumericSection;
+
+/// Laminar figures of one cross-section, all SI.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct SectionFigures {
+    /// Area A [m²].
+    pub area: f64,
+    /// Wetted perimeter P [m].
+    pub perimeter: f64,
+    /// Conductance factor K [m⁴]: Q = K·G/μ.
+    pub conductance_factor: f64,
+    /// Maximum wall shear stress per unit pressure gradient, τ_max/G [m].
+    pub max_wall_shear_per_gradient: f64,
+    /// Relative error estimate of K (0 for closed forms).
+    pub relative_error_estimate: f64,
+}
+
+impl SectionFigures {
+    /// Figures of a numerical solution.
+    pub fn from_numeric(sol: &NumericSection) -> SectionFigures {
+        SectionFigures {
+            area: sol.area,
+            perimeter: sol.perimeter,
+            conductance_factor: sol.conductance_factor,
+            max_wall_shear_per_gradient: sol.max_wall_shear_per_gradient,
+            relative_error_estimate: sol.relative_error_estimate,
+        }
+    }
+
+    /// Hydraulic diameter Dh = 4A/P [m].
+    pub fn hydraulic_diameter(&self) -> f64 {
+        4.0 * self.area / self.perimeter
+    }
+
+    /// Hydraulic resistance per length R' = μ/K [Pa·s/m⁴] for viscosity μ [Pa·s].
+    pub fn resistance_per_length(&self, viscosity: f64) -> f64 {
+        viscosity / self.conductance_factor
+    }
+
+    /// Fanning friction factor times Reynolds number on Dh: f·Re = A·Dh²/(2K).
+    pub fn f_re(&self) -> f64 {
+        let dh = self.hydraulic_diameter();
+        self.area * dh * dh / (2.0 * self.conductance_factor)
+    }
+
+    /// Mean wall shear per unit gradient, τ_mean/G = A/P [m] (force balance).
+    pub fn mean_wall_shear_per_gradient(&self) -> f64 {
+        self.area / self.perimeter
+    }
+}

@@ -1,0 +1,275 @@
+//! Mesh generation for the numerical solver: the unit-size frame the mesher and assembly work
+//! in, the constrained-Delaunay quality mesh of the outline's chord polygons (spade), arc walls
+//! moved back onto their arcs, the quadratic elements' edge nodes, and the wall loops.
+
+use super::NumericError;
+use crate::section::outline::{ArcInfo, Outline, Point};
+use spade::{ConstrainedDelaunayTriangulation, Point2, RefinementParameters, Triangulation};
+use std::collections::{HashMap, HashSet};
+
+/// The section moved and scaled to unit size: the mesher and the assembly work on O(1)
+/// numbers. A frame point p stands for the SI point p·scale + lo.
+#[derive(Clone, Copy, Debug)]
+pub(super) struct Frame {
+    /// Larger side of the bounding box [m].
+    pub(super) scale: f64,
+    /// Lower-left corner of the bounding box [m].
+    pub(super) lo: [f64; 2],
+}
+
+impl Frame {
+    /// The frame of the bounding box of `loops` (SI points).
+    pub(super) fn enclosing(loops: &[Vec<Point>]) -> Result<Frame, NumericError> {
+        let (mut lo, mut hi) = ([f64::INFINITY; 2], [f64::NEG_INFINITY; 2]);
+        for p in loops.iter().flatten() {
+            for d in 0..2 {
+                lo[d] = lo[d].min(p[d]);
+                hi[d] = hi[d].max(p[d]);
+            }
+        }
+        let scale = (hi[0] - lo[0]).max(hi[1] - lo[1]);
+        if !(scale.is_finite() && scale > 0.0) {
+            return Err(NumericError::Mesh("the outline has no extent".into()));
+        }
+        Ok(Frame { scale, lo })
+    }
+
+    /// An SI point in the frame.
+    pub(super) fn norm(&self, p: &Point) -> Point {
+        [
+            (p[0] - self.lo[0]) / self.scale,
+            (p[1] - self.lo[1]) / self.scale,
+        ]
+    }
+
+    /// A frame point in SI.
+    pub(super) fn si(&self, p: Point) -> Point {
+        [
+            p[0] * self.scale + self.lo[0],
+            p[1] * self.scale + self.lo[1],
+        ]
+    }
+
+    /// SI loops in the frame.
+    pub(super) fn norm_loops(&self, loops: &[Vec<Point>]) -> Vec<Vec<Point>> {
+        loops
+            .iter()
+            .map(|l| l.iter().map(|p| self.norm(p)).collect())
+            .collect()
+    }
+}
+
+/// A quadratic triangle mesh (in the frame).
+pub(super) struct Mesh {
+    pub(super) nodes: Vec<Point>,
+    /// Six node indices per triangle: vertices 0..3, then edge nodes (01, 12, 20).
+    pub(super) tris: Vec<[usize; 6]>,
+    /// Wall loops as ordered node lists (vertex, edge node, vertex, ...), closed implicitly.
+    pub(super) walls: Vec<Vec<usize>>,
+}
+
+/// An edge as its two vertex indices, smaller first.
+type Edge = (usize, usize);
+
+fn edge(a: usize, b: usize) -> Edge {
+    (a.min(b), a.max(b))
+}
+
+/// Mesh `outline` with triangles of area at most `max_area` (in the frame). Arc chords follow
+/// the element size, so curved walls sharpen as the mesh refines.
+pub(super) fn generate(
+    outline: &Outline,
+    frame: &Frame,
+    max_area: f64,
+) -> Result<Mesh, NumericError> {
+    let h = (2.0 * max_area).sqrt();
+    let (raw_loops, raw_arcs) = outline.chords(h * frame.scale);
+    let loops = frame.norm_loops(&raw_loops);
+    let arcs: Vec<ArcInfo> = raw_arcs
+        .iter()
+        .map(|a| ArcInfo {
+            center: frame.norm(&a.center),
+            radius: a.radius / frame.scale,
+            chord: a.chord.iter().map(|p| frame.norm(p)).collect(),
+            ..*a
+        })
+        .collect();
+    mesh(&loops, &arcs, max_area)
+}
+
+/// Mesh the (normalised) chord polygons at `max_area`, then curve the arc walls.
+fn mesh(loops: &[Vec<Point>], arcs: &[ArcInfo], max_area: f64) -> Result<Mesh, NumericError> {
+    let (mut nodes, tri3) = triangulate(loops, max_area)?;
+    // Edges: count uses; boundary edges are used once.
+    let mut edge_use: HashMap<Edge, u8> = HashMap::new();
+    for t in &tri3 {
+        for k in 0..3 {
+            *edge_use.entry(edge(t[k], t[(k + 1) % 3])).or_insert(0) += 1;
+        }
+    }
+    snap_wall_vertices(&mut nodes, &edge_use, arcs);
+    let (tris, edge_node) = add_edge_nodes(&mut nodes, &tri3, &edge_use, arcs);
+    let walls = trace_walls(&edge_use, &edge_node);
+    Ok(Mesh { nodes, tris, walls })
+}
+
+/// The linear quality mesh of the chord polygons: vertices and triangles inside the outline
+/// (minimum angle 25°, area at most `max_area`).
+fn triangulate(
+    loops: &[Vec<Point>],
+    max_area: f64,
+) -> Result<(Vec<Point>, Vec<[usize; 3]>), NumericError> {
+    let mut cdt = ConstrainedDelaunayTriangulation::<Point2<f64>>::new();
+    for l in loops {
+        let handles: Vec<_> = l
+            .iter()
+            .map(|p| cdt.insert(Point2::new(p[0], p[1])))
+            .collect::<Result<_, _>>()
+            .map_err(|e| NumericError::Mesh(format!("{e:?}")))?;
+        for k in 0..handles.len() {
+            let (a, b) = (handles[k], handles[(k + 1) % handles.len()]);
+            if a == b {
+                continue;
+            }
+            if cdt.can_add_constraint(a, b) {
+                cdt.add_constraint(a, b);
+            } else {
+                return Err(NumericError::Mesh(
+                    "the outline crosses itself; give the vertices in order around the section"
+                        .into(),
+                ));
+            }
+        }
+    }
+    let params = RefinementParameters::<f64>::new()
+        .exclude_outer_faces(true)
+        .with_max_allowed_area(max_area)
+        .with_angle_limit(spade::AngleLimit::from_deg(25.0))
+        .with_max_additional_vertices(2_000_000);
+    let result = cdt.refine(params);
+    let excluded: HashSet<_> = result.excluded_faces.iter().copied().collect();
+
+    let nodes: Vec<Point> = cdt
+        .vertices()
+        .map(|v| [v.position().x, v.position().y])
+        .collect();
+    let mut tri3 = Vec::new();
+    for f in cdt.inner_faces() {
+        if excluded.contains(&f.fix()) {
+            continue;
+        }
+        let v = f.vertices();
+        tri3.push([v[0].fix().index(), v[1].fix().index(), v[2].fix().index()]);
+    }
+    if tri3.is_empty() {
+        return Err(NumericError::Mesh("the outline encloses no area".into()));
+    }
+    Ok((nodes, tri3))
+}
+
+/// Move wall vertices that lie on (a chord of) an arc onto the arc.
+///
+/// A wall vertex belongs to an arc when it lies on that arc's chords (the mesher splits
+/// chords, so new wall vertices sit on them); lid vertices near a corner do not.
+fn snap_wall_vertices(nodes: &mut [Point], edge_use: &HashMap<Edge, u8>, arcs: &[ArcInfo]) {
+    let arc_of = |p: Point| arcs.iter().find(|a| a.on_chords(p, 1e-10));
+    let mut wall_vertex = vec![false; nodes.len()];
+    for (&(a, b), &n) in edge_use {
+        if n == 1 {
+            wall_vertex[a] = true;
+            wall_vertex[b] = true;
+        }
+    }
+    for (i, is_wall) in wall_vertex.iter().enumerate() {
+        if *is_wall {
+            if let Some(arc) = arc_of(nodes[i]) {
+                nodes[i] = arc.project(nodes[i]);
+            }
+        }
+    }
+}
+
+/// Whether `p` lies on the circle of `arc` (relative tolerance 1e-9) within its angular range.
+fn lies_on_arc(arc: &ArcInfo, p: Point) -> bool {
+    let r = ((p[0] - arc.center[0]).powi(2) + (p[1] - arc.center[1]).powi(2)).sqrt();
+    (r - arc.radius).abs() < 1e-9 * arc.radius.max(1.0) && arc.covers(p)
+}
+
+/// Give every edge its middle node (appended to `nodes`) and make the six-node triangles.
+/// The middle node of a wall edge whose ends both lie on one arc is placed on that arc (a
+/// junction of two arcs belongs to both). Returns the triangles and each edge's middle node.
+fn add_edge_nodes(
+    nodes: &mut Vec<Point>,
+    tri3: &[[usize; 3]],
+    edge_use: &HashMap<Edge, u8>,
+    arcs: &[ArcInfo],
+) -> (Vec<[usize; 6]>, HashMap<Edge, usize>) {
+    let mut edge_node: HashMap<Edge, usize> = HashMap::new();
+    let mut tris = Vec::with_capacity(tri3.len());
+    for t in tri3 {
+        let mut six = [t[0], t[1], t[2], 0, 0, 0];
+        for k in 0..3 {
+            let (a, b) = (t[k], t[(k + 1) % 3]);
+            let key = edge(a, b);
+            let id = *edge_node.entry(key).or_insert_with(|| {
+                let (pa, pb) = (nodes[a], nodes[b]);
+                let mut m = [(pa[0] + pb[0]) / 2.0, (pa[1] + pb[1]) / 2.0];
+                if edge_use.get(&key) == Some(&1) {
+                    if let Some(arc) = arcs
+                        .iter()
+                        .find(|arc| lies_on_arc(arc, pa) && lies_on_arc(arc, pb))
+                    {
+                        m = arc.project(m);
+                    }
+                }
+                nodes.push(m);
+                nodes.len() - 1
+            });
+            six[3 + k] = id;
+        }
+        tris.push(six);
+    }
+    (tris, edge_node)
+}
+
+/// Wall loops: follow boundary edges vertex to vertex, with each edge's middle node between.
+fn trace_walls(edge_use: &HashMap<Edge, u8>, edge_node: &HashMap<Edge, usize>) -> Vec<Vec<usize>> {
+    let mut next: HashMap<usize, Vec<usize>> = HashMap::new();
+    for (&(a, b), &n) in edge_use {
+        if n == 1 {
+            next.entry(a).or_default().push(b);
+            next.entry(b).or_default().push(a);
+        }
+    }
+    let mut visited = HashSet::new();
+    let mut starts: Vec<usize> = next.keys().copied().collect();
+    starts.sort_unstable();
+    let mut walls = Vec::new();
+    for s in starts {
+        if visited.contains(&s) {
+            continue;
+        }
+        let mut lp = vec![s];
+        visited.insert(s);
+        let mut prev = usize::MAX;
+        let mut cur = s;
+        while let Some(cands) = next.get(&cur) {
+            let Some(&nx) = cands
+                .iter()
+                .find(|&&c| c != prev && (c == s || !visited.contains(&c)))
+            else {
+                break;
+            };
+            lp.push(edge_node[&edge(cur, nx)]);
+            if nx == s {
+                break;
+            }
+            lp.push(nx);
+            visited.insert(nx);
+            prev = cur;
+            cur = nx;
+        }
+        walls.push(lp);
+    }
+    walls
+}
