@@ -241,6 +241,11 @@ fn trace_walls(edge_use: &HashMap<Edge, u8>, edge_node: &HashMap<Edge, usize>) -
             next.entry(b).or_default().push(a);
         }
     }
+    // Sorted neighbours: the walk (and so every wall figure, to the last bit) does not
+    // depend on the hash map's iteration order.
+    for cands in next.values_mut() {
+        cands.sort_unstable();
+    }
     let mut visited = HashSet::new();
     let mut starts: Vec<usize> = next.keys().copied().collect();
     starts.sort_unstable();
