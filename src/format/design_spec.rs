@@ -12,7 +12,7 @@ use std::fmt;
 /// A quantity whose dimension is known only after conversion (a port's bound is a pressure
 /// or a flow depending on the port).
 #[derive(Clone, Debug, PartialEq)]
-pub struct RawQuantity(pub String);
+pub(crate) struct RawQuantity(pub String);
 
 impl<'de> Deserialize<'de> for RawQuantity {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {
@@ -42,7 +42,7 @@ impl<'de> Deserialize<'de> for RawQuantity {
 /// `adjust: {min: ..., max: ...}` on a port.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct AdjustSpec {
+pub(crate) struct AdjustSpec {
     pub min: RawQuantity,
     pub max: RawQuantity,
 }
@@ -50,7 +50,7 @@ pub struct AdjustSpec {
 /// One entry of `targets:`.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct TargetSpec {
+pub(crate) struct TargetSpec {
     #[serde(default)]
     pub channel: Option<String>,
     #[serde(default)]
@@ -70,7 +70,7 @@ pub struct TargetSpec {
 /// Bounds of a sized dimension.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct BoundSpec {
+pub(crate) struct BoundSpec {
     pub min: Q<Length>,
     pub max: Q<Length>,
     #[serde(default)]
@@ -80,7 +80,7 @@ pub struct BoundSpec {
 /// `size:` on a channel.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct SizeSpec {
+pub(crate) struct SizeSpec {
     #[serde(default)]
     pub length: Option<BoundSpec>,
     #[serde(default)]

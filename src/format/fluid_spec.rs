@@ -11,7 +11,7 @@ use serde::Deserialize;
 /// Which fluid model computes the properties.
 #[derive(Debug, Clone, Copy, Default, Deserialize, PartialEq, Eq)]
 #[serde(rename_all = "kebab-case")]
-pub enum FluidModel {
+pub(crate) enum FluidModel {
     /// `viscosity` and `density` given directly.
     #[default]
     Constant,
@@ -24,7 +24,7 @@ pub enum FluidModel {
 /// `fluid:`.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct FluidSpec {
+pub(crate) struct FluidSpec {
     #[serde(default)]
     pub model: FluidModel,
     #[serde(default)]
@@ -42,7 +42,7 @@ pub struct FluidSpec {
 /// How the cells raise the viscosity.
 #[derive(Debug, Clone, Copy, Default, Deserialize, PartialEq, Eq)]
 #[serde(rename_all = "kebab-case")]
-pub enum SuspensionKind {
+pub(crate) enum SuspensionKind {
     Einstein,
     #[default]
     KriegerDougherty,
@@ -51,7 +51,7 @@ pub enum SuspensionKind {
 /// `fluid.cells:` — a suspension on top of the carrier fluid.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct CellsSpec {
+pub(crate) struct CellsSpec {
     /// Volume fraction φ of cells (0 ≤ φ < 1), a plain number.
     pub volume_fraction: f64,
     #[serde(default)]

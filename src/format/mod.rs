@@ -28,12 +28,15 @@ mod quantity;
 mod section_spec;
 mod yaml_guard;
 
-pub use design_spec::{AdjustSpec, BoundSpec, RawQuantity, SizeSpec, TargetSpec};
-pub use fluid_spec::{CellsSpec, FluidModel, FluidSpec, SuspensionKind};
+// The serde types of the file format stay inside the crate: the rest of the program sees
+// only Chip and the domain types they convert into.
+pub(crate) use design_spec::{AdjustSpec, SizeSpec, TargetSpec};
+pub(crate) use fluid_spec::FluidSpec;
 pub use locate::{locate, locate_offset, replace_value};
-pub use named::Named;
-pub use quantity::Q;
-pub use section_spec::{parse_profile_csv, FileReader, SectionSpec, ShapeKind};
+pub(crate) use named::Named;
+pub(crate) use quantity::Q;
+pub(crate) use section_spec::SectionSpec;
+pub use section_spec::{parse_profile_csv, FileReader};
 
 use crate::chip::{Chip, DrawnLayout, Source};
 use crate::network::{NetworkBuilder, NetworkError, Port, SectionId};
@@ -127,7 +130,7 @@ impl InputError {
 /// A whole chip file.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct ChipFile {
+pub(crate) struct ChipFile {
     /// Chip name, used in report titles.
     #[serde(default)]
     pub name: Option<String>,
@@ -153,7 +156,7 @@ pub struct ChipFile {
 /// `nodes.NAME:` — a junction (`{}`), a pressure port or a flow port.
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct NodeSpec {
+pub(crate) struct NodeSpec {
     #[serde(default)]
     pub pressure: Option<Q<Pressure>>,
     #[serde(default)]
@@ -169,7 +172,7 @@ pub struct NodeSpec {
 /// `channels.NAME:`.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct ChannelSpec {
+pub(crate) struct ChannelSpec {
     pub from: String,
     pub to: String,
     pub section: SectionRef,
@@ -187,7 +190,7 @@ pub struct ChannelSpec {
 
 /// A channel's section: the name of one in `sections:`, or a mapping given inline.
 #[derive(Debug)]
-pub enum SectionRef {
+pub(crate) enum SectionRef {
     Named(String),
     Inline(Box<SectionSpec>),
 }

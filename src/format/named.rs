@@ -10,7 +10,7 @@ use std::marker::PhantomData;
 
 /// Entries in file order.
 #[derive(Clone, Debug, PartialEq)]
-pub struct Named<T>(pub Vec<(String, T)>);
+pub(crate) struct Named<T>(pub Vec<(String, T)>);
 
 impl<T> Default for Named<T> {
     fn default() -> Self {

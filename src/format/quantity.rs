@@ -9,7 +9,7 @@ use std::marker::PhantomData;
 /// A quantity read from a chip file: a string with a unit (a bare 0 is accepted where
 /// unambiguous).
 #[derive(Clone, Copy, Debug, PartialEq)]
-pub struct Q<T>(pub T);
+pub(crate) struct Q<T>(pub T);
 
 impl<'de, T: Quantity> Deserialize<'de> for Q<T> {
     fn deserialize<D: Deserializer<'de>>(deserializer: D) -> Result<Self, D::Error> {

@@ -11,7 +11,7 @@ use serde::Deserialize;
 /// The shape kinds a section may name.
 #[derive(Debug, Clone, Copy, Deserialize, PartialEq, Eq)]
 #[serde(rename_all = "kebab-case")]
-pub enum ShapeKind {
+pub(crate) enum ShapeKind {
     Circle,
     Rectangle,
     Ellipse,
@@ -29,7 +29,7 @@ pub enum ShapeKind {
 /// A cross-section as written in the chip file.
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
-pub struct SectionSpec {
+pub(crate) struct SectionSpec {
     pub shape: Option<ShapeKind>,
     #[serde(default)]
     pub diameter: Option<Q<Length>>,
