@@ -363,3 +363,32 @@ fn measured_profile_closes_with_the_lid() {
     assert_eq!(pts[2][1].si(), 8e-6);
     assert!(rillnet::format::parse_profile_csv("0,0\n1,x\n", 1e-6).is_err());
 }
+
+#[test]
+fn overall_width_is_the_horizontal_extent() {
+    // Plain geometry: a circle spans its diameter, a rectangle its width, an etched trapezoid
+    // (lid on top, walls narrowing downwards) its top width.
+    let um = |v: f64| Length::from_si(v * 1e-6);
+    let cases = [
+        (Shape::Circle { diameter: um(100.0) }, 100e-6),
+        (
+            Shape::Rectangle {
+                width: um(250.0),
+                height: um(40.0),
+            },
+            250e-6,
+        ),
+        (
+            Shape::Trapezoid {
+                top: um(120.0),
+                bottom: um(63.4),
+                depth: um(40.0),
+            },
+            120e-6,
+        ),
+    ];
+    for (shape, want) in cases {
+        let got = shape.overall_width();
+        assert!(((got - want) / want).abs() < 1e-8, "{}: {got}", shape.kind());
+    }
+}

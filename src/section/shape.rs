@@ -290,6 +290,16 @@ impl Shape {
         })
     }
 
+    /// Overall width of the section [m]: the horizontal extent of its outline (arcs resolved
+    /// to 1e-4 of the extent), e.g. for the footprint of a folded channel.
+    pub fn overall_width(&self) -> f64 {
+        let outline = self.outline();
+        let (loops, _) = outline.chords(f64::INFINITY);
+        let rough = extent(&loops);
+        let (loops, _) = outline.chords(1e-4 * rough.max(f64::MIN_POSITIVE));
+        extent(&loops)
+    }
+
     /// The outline to solve numerically (lid at y = 0, channel below), for any shape.
     pub fn outline(&self) -> Outline {
         let m = |l: &Length| l.si();
@@ -370,5 +380,17 @@ mod tests {
             };
             assert_eq!(s.check().unwrap_err().field, "height");
         }
+    }
+}
+
+/// Horizontal extent of chord polygons.
+fn extent(loops: &[Vec<[f64; 2]>]) -> f64 {
+    let xs = loops.iter().flatten().map(|p| p[0]);
+    let lo = xs.clone().fold(f64::INFINITY, f64::min);
+    let hi = xs.fold(f64::NEG_INFINITY, f64::max);
+    if hi > lo {
+        hi - lo
+    } else {
+        0.0
     }
 }
