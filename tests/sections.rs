@@ -370,7 +370,12 @@ fn overall_width_is_the_horizontal_extent() {
     // (lid on top, walls narrowing downwards) its top width.
     let um = |v: f64| Length::from_si(v * 1e-6);
     let cases = [
-        (Shape::Circle { diameter: um(100.0) }, 100e-6),
+        (
+            Shape::Circle {
+                diameter: um(100.0),
+            },
+            100e-6,
+        ),
         (
             Shape::Rectangle {
                 width: um(250.0),
@@ -389,6 +394,10 @@ fn overall_width_is_the_horizontal_extent() {
     ];
     for (shape, want) in cases {
         let got = shape.overall_width();
-        assert!(((got - want) / want).abs() < 1e-8, "{}: {got}", shape.kind());
+        assert!(
+            ((got - want) / want).abs() < 1e-8,
+            "{}: {got}",
+            shape.kind()
+        );
     }
 }

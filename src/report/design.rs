@@ -7,6 +7,7 @@ use crate::analysis::design::{SizeDim, SizeResult, TargetOutcome, TuneResult};
 use crate::chip::Chip;
 use crate::commands::SensitivityTable;
 use crate::network::{Network, Port};
+use crate::serpentine::{Serpentine, SerpentineError};
 use crate::units::display;
 use serde::Serialize;
 use std::io;
@@ -175,7 +176,20 @@ struct JsonSize<'a> {
     max_m: f64,
     step_m: Option<f64>,
     at_bound: Option<&'static str>,
-    serpentine_runs: Option<usize>,
+    /// The folded layout of a sized length longer than `--run` (null otherwise).
+    serpentine: Option<JsonSerpentine>,
+    /// Why a long sized length could not be folded with the requested run and pitch.
+    serpentine_problem: Option<String>,
+}
+
+#[derive(Serialize)]
+struct JsonSerpentine {
+    runs: usize,
+    run_length_m: f64,
+    bends: usize,
+    bend_radius_m: f64,
+    centreline_length_m: f64,
+    footprint_m: [f64; 2],
 }
 
 #[derive(Serialize)]
@@ -188,13 +202,22 @@ struct JsonSizing<'a> {
     targets: Vec<JsonTarget<'a>>,
 }
 
+/// The serpentine of a sized length longer than `run` (folded at `pitch`, with the sized
+/// chip's channel width); `None` when no folding is needed.
 fn serp(
+    r: &SizeResult,
     s: &crate::analysis::design::SizedDim,
     run: f64,
     pitch: f64,
-) -> Option<crate::analysis::design::Serpentine> {
-    (s.var.dim == SizeDim::Length && s.after > run)
-        .then(|| crate::analysis::design::serpentine(s.after, run, pitch))
+) -> Option<Result<Serpentine, SerpentineError>> {
+    if s.var.dim != SizeDim::Length || s.after <= run {
+        return None;
+    }
+    let net = &r.network;
+    let width = net.sections[net.channels[s.var.channel.0].section.0]
+        .shape
+        .overall_width();
+    Some(crate::serpentine::layout(s.after, run, pitch, width))
 }
 
 /// Sizing report as JSON.
@@ -227,7 +250,19 @@ pub(crate) fn size_json(
                 max_m: s.var.max,
                 step_m: s.var.step,
                 at_bound: bound_name(s.at_bound),
-                serpentine_runs: serp(s, run, pitch).map(|x| x.runs),
+                serpentine: serp(r, s, run, pitch)
+                    .and_then(Result::ok)
+                    .map(|x| JsonSerpentine {
+                        runs: x.runs,
+                        run_length_m: x.run_length,
+                        bends: x.bends,
+                        bend_radius_m: x.bend_radius,
+                        centreline_length_m: x.centreline_length,
+                        footprint_m: x.footprint,
+                    }),
+                serpentine_problem: serp(r, s, run, pitch)
+                    .and_then(Result::err)
+                    .map(|e| e.to_string()),
             })
             .collect(),
         targets: json_targets(&r.targets),
@@ -259,16 +294,22 @@ pub fn size_report(chip: &Chip, r: &SizeResult, run: f64, pitch: f64) -> String 
                 _ => "",
             }
         ));
-        if let Some(x) = serp(s, run, pitch) {
-            out.push_str(&format!(
-                "      serpentine: {} straight runs of {} mm with {} U-turns at {} µm pitch, footprint {} × {} mm\n",
+        match serp(r, s, run, pitch) {
+            Some(Ok(x)) => out.push_str(&format!(
+                "      serpentine: {} runs of {} mm joined by {} U-turn{} of {} µm centreline radius \
+                 (pitch {} µm); centreline {} mm; footprint {} × {} mm (walls included)\n",
                 x.runs,
-                fmt_sig(run * 1e3, 3),
-                x.turns,
-                fmt_sig(pitch * 1e6, 3),
-                fmt_sig(x.footprint[0] * 1e3, 3),
-                fmt_sig(x.footprint[1] * 1e3, 3)
-            ));
+                fmt_sig(x.run_length * 1e3, 6),
+                x.bends,
+                if x.bends == 1 { "" } else { "s" },
+                fmt_sig(x.bend_radius * 1e6, 4),
+                fmt_sig(pitch * 1e6, 4),
+                fmt_sig(x.centreline_length * 1e3, 6),
+                fmt_sig(x.footprint[0] * 1e3, 4),
+                fmt_sig(x.footprint[1] * 1e3, 4)
+            )),
+            Some(Err(e)) => out.push_str(&format!("      serpentine: {e}\n")),
+            None => {}
         }
     }
     targets_text(&r.targets, &mut out);
@@ -465,8 +506,12 @@ pub(crate) fn size_csv(
             "step_m",
             "at_bound",
             "serpentine_runs",
+            "serpentine_run_length_m",
+            "serpentine_footprint_x_m",
+            "serpentine_footprint_y_m",
         ],
         r.sizes.iter().map(|s| {
+            let folded = serp(r, s, run, pitch).and_then(Result::ok);
             vec![
                 "size".into(),
                 network.channels[s.var.channel.0].name.clone(),
@@ -480,9 +525,13 @@ pub(crate) fn size_csv(
                 n(s.var.max),
                 num(s.var.step),
                 bound_text(s.at_bound),
-                serp(s, run, pitch)
+                folded
+                    .as_ref()
                     .map(|x| x.runs.to_string())
                     .unwrap_or_default(),
+                num(folded.as_ref().map(|x| x.run_length)),
+                num(folded.as_ref().map(|x| x.footprint[0])),
+                num(folded.as_ref().map(|x| x.footprint[1])),
             ]
         }),
     )?;
