@@ -63,17 +63,20 @@ pub enum Outcome {
         state: SteadyState,
         passed: bool,
     },
-    /// `tune`: new drive settings.
+    /// `tune`: new drive settings, and the tuned chip (the copy as written, read back)
+    /// with its steady state.
     Tuned {
         chip: Box<Chip>,
         result: design::TuneResult,
+        after: Box<Changed>,
     },
-    /// `size`: new channel dimensions.
+    /// `size`: new channel dimensions, and the sized chip (read back) with its steady state.
     Sized {
         chip: Box<Chip>,
         result: Box<design::SizeResult>,
         run: f64,
         pitch: f64,
+        after: Box<Changed>,
     },
     /// `section`: one cross-section's figures.
     Section(Box<SectionOutcome>),
@@ -98,6 +101,32 @@ impl Outcome {
             _ => &[Format::Table, Format::Json, Format::Csv],
         }
     }
+}
+
+/// A chip changed by `tune` or `size`: the edited copy's text, the chip read back from it,
+/// and that chip's steady state.
+#[derive(Debug)]
+pub struct Changed {
+    pub text: String,
+    pub chip: Chip,
+    pub state: SteadyState,
+}
+
+/// Significant digits of written settings and sizes without a fabrication step.
+pub const WRITTEN_DIGITS: usize = 6;
+
+/// Read an edited copy back and solve it.
+fn changed(chip: &Chip, edits: &[crate::copies::ValueEdit]) -> Result<Changed, Error> {
+    let (text, copy) = crate::copies::edited_chip(chip, edits)?;
+    let state = analysis::steady_state(&copy.network).map_err(|source| Error::Solve {
+        origin: copy.source.origin.clone(),
+        source,
+    })?;
+    Ok(Changed {
+        text,
+        chip: copy,
+        state,
+    })
 }
 
 /// Sensitivities of chosen channels' flows, possibly cut to the largest per target.
@@ -404,13 +433,15 @@ fn design_error(chip: &Chip) -> impl Fn(design::DesignError) -> Error + '_ {
 pub fn tune(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
     let chip = req.chip.load()?;
     let result = design::tune(&chip.network, &chip.design).map_err(design_error(&chip))?;
+    let edits = crate::copies::tuned_edits(&chip, &result, WRITTEN_DIGITS);
+    let after = changed(&chip, &edits)?;
     if let Some(out) = req.output {
-        let edits = crate::copies::tuned_edits(&chip, &result);
-        crate::copies::write_edited_copy(&chip, out, &edits, &req.chip.protected())?;
+        crate::copies::write_copy(&after.text, out, &req.chip.protected())?;
     }
     Ok(Outcome::Tuned {
         chip: Box::new(chip),
         result,
+        after: Box::new(after),
     })
 }
 
@@ -418,15 +449,17 @@ pub fn tune(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
 pub fn size(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
     let chip = req.chip.load()?;
     let result = design::size(&chip.network, &chip.design).map_err(design_error(&chip))?;
+    let edits = crate::copies::sized_edits(&chip, &result, WRITTEN_DIGITS)?;
+    let after = changed(&chip, &edits)?;
     if let Some(out) = req.output {
-        let edits = crate::copies::sized_edits(&chip, &result)?;
-        crate::copies::write_edited_copy(&chip, out, &edits, &req.chip.protected())?;
+        crate::copies::write_copy(&after.text, out, &req.chip.protected())?;
     }
     Ok(Outcome::Sized {
         chip: Box::new(chip),
         result: Box::new(result),
         run: req.run,
         pitch: req.pitch,
+        after: Box::new(after),
     })
 }
 

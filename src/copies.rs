@@ -32,8 +32,46 @@ fn edit(parts: [&str; 3], value: NewValue) -> ValueEdit {
     }
 }
 
-/// The edits that write tuned drive settings.
-pub fn tuned_edits(chip: &Chip, r: &TuneResult) -> Vec<ValueEdit> {
+/// `x` with `digits` significant digits, without exponent for the magnitudes a chip uses
+/// (plain decimal text, trailing zeros removed).
+pub fn sig(x: f64, digits: usize) -> String {
+    if x == 0.0 || !x.is_finite() {
+        return format!("{}", x + 0.0);
+    }
+    let mag = x.abs().log10().floor() as i32;
+    let decimals = (digits as i32 - 1 - mag).max(0) as usize;
+    let text = format!("{x:.decimals$}");
+    let text = if text.contains('.') {
+        text.trim_end_matches('0').trim_end_matches('.').to_string()
+    } else {
+        text
+    };
+    if text == "-0" {
+        "0".into()
+    } else {
+        text
+    }
+}
+
+/// `x` [m] rounded to the fabrication `step` [m] when one is given, else to `digits`
+/// significant digits, in the unit `unit` (`scale` = unit per metre).
+fn length_text(x: f64, step: Option<f64>, digits: usize, scale: f64, unit: &str) -> String {
+    match step {
+        Some(step) if step > 0.0 => {
+            // Decimals enough to show the step itself exactly in this unit.
+            let s = step * scale;
+            let decimals = (0..=9)
+                .find(|&d| ((s * 10f64.powi(d)).round() - s * 10f64.powi(d)).abs() < 1e-9)
+                .unwrap_or(9) as usize;
+            let v = (x / step).round() * step * scale;
+            format!("{v:.decimals$} {unit}")
+        }
+        _ => format!("{} {unit}", sig(x * scale, digits)),
+    }
+}
+
+/// The edits that write tuned drive settings with `digits` significant digits.
+pub fn tuned_edits(chip: &Chip, r: &TuneResult, digits: usize) -> Vec<ValueEdit> {
     r.settings
         .iter()
         .map(|s| {
@@ -41,11 +79,14 @@ pub fn tuned_edits(chip: &Chip, r: &TuneResult) -> Vec<ValueEdit> {
             let (key, value) = match node.port {
                 Port::Flow(_) => (
                     "flow",
-                    format!("{} uL/min", units::display::ul_per_min(s.after)),
+                    format!(
+                        "{} uL/min",
+                        sig(units::display::ul_per_min(s.after), digits)
+                    ),
                 ),
                 _ => (
                     "pressure",
-                    format!("{} mbar", units::display::mbar(s.after)),
+                    format!("{} mbar", sig(units::display::mbar(s.after), digits)),
                 ),
             };
             edit(["nodes", &node.name, key], NewValue::Scalar(value))
@@ -53,32 +94,50 @@ pub fn tuned_edits(chip: &Chip, r: &TuneResult) -> Vec<ValueEdit> {
         .collect()
 }
 
-/// Fields of a closed-form section in the chip-file syntax, in µm.
-fn section_fields(shape: &section::Shape) -> Option<Vec<(String, String)>> {
-    let um = |l: &units::Length| format!("{} um", l.si() * 1e6);
+/// Fields of a closed-form section in the chip-file syntax, in µm; the width (or diameter)
+/// is rounded to `step` when one is given.
+fn section_fields(
+    shape: &section::Shape,
+    step: Option<f64>,
+    digits: usize,
+) -> Option<Vec<(String, String)>> {
+    let um = |l: &units::Length| length_text(l.si(), None, digits, 1e6, "um");
+    let width = |l: &units::Length| length_text(l.si(), step, digits, 1e6, "um");
     let mut fields = vec![("shape".to_string(), shape.kind().to_string())];
     let dims: Vec<(&str, String)> = match shape {
-        section::Shape::Circle { diameter } => vec![("diameter", um(diameter))],
-        section::Shape::Rectangle { width, height } | section::Shape::Ellipse { width, height } => {
-            vec![("width", um(width)), ("height", um(height))]
+        section::Shape::Circle { diameter } => vec![("diameter", width(diameter))],
+        section::Shape::Rectangle {
+            width: w,
+            height: h,
         }
-        section::Shape::Plates { gap, width } => vec![("gap", um(gap)), ("width", um(width))],
+        | section::Shape::Ellipse {
+            width: w,
+            height: h,
+        } => {
+            vec![("width", width(w)), ("height", um(h))]
+        }
+        section::Shape::Plates { gap, width: w } => {
+            vec![("gap", um(gap)), ("width", width(w))]
+        }
         _ => return None,
     };
     fields.extend(dims.into_iter().map(|(k, v)| (k.to_string(), v)));
     Some(fields)
 }
 
-/// The edits that write sized lengths and sections.
-pub fn sized_edits(chip: &Chip, r: &SizeResult) -> Result<Vec<ValueEdit>, Error> {
+/// The edits that write sized lengths and sections (to their fabrication steps, else with
+/// `digits` significant digits).
+pub fn sized_edits(chip: &Chip, r: &SizeResult, digits: usize) -> Result<Vec<ValueEdit>, Error> {
     r.sizes
         .iter()
         .map(|s| {
             let ch = &r.network.channels[s.var.channel.0];
             let value = match s.var.dim {
-                SizeDim::Length => NewValue::Scalar(format!("{} mm", s.after * 1e3)),
+                SizeDim::Length => {
+                    NewValue::Scalar(length_text(s.after, s.var.step, digits, 1e3, "mm"))
+                }
                 SizeDim::Width => NewValue::Mapping(
-                    section_fields(&r.network.sections[ch.section.0].shape)
+                    section_fields(&r.network.sections[ch.section.0].shape, s.var.step, digits)
                         .ok_or_else(|| rewrite_failed(chip, "a section"))?,
                 ),
             };
@@ -134,17 +193,11 @@ fn edited_text(chip: &Chip, edits: &[ValueEdit]) -> Result<String, Error> {
     Ok(text)
 }
 
-/// Write a copy of the chip to the new file `out` with the edits applied, keeping comments
-/// and layout. The copy is parsed and validated first; a copy that would not load is never
-/// written.
-pub fn write_edited_copy(
-    chip: &Chip,
-    out: &Path,
-    edits: &[ValueEdit],
-    protected: &[&Path],
-) -> Result<(), Error> {
+/// The chip text with the edits applied, parsed back into a chip (profiles named by the chip
+/// are read beside the original file). Fails, with nothing written, when the copy would not
+/// load.
+pub fn edited_chip(chip: &Chip, edits: &[ValueEdit]) -> Result<(String, Chip), Error> {
     let text = edited_text(chip, edits)?;
-    let origin = out.display().to_string();
     let base = Path::new(&chip.source.origin)
         .parent()
         .unwrap_or(Path::new("."))
@@ -152,11 +205,17 @@ pub fn write_edited_copy(
     let read = move |name: &str| -> Result<String, String> {
         std::fs::read_to_string(base.join(name)).map_err(|e| e.to_string())
     };
-    format::parse_chip_with(&text, &origin, chip.source.syntax, &read).map_err(|e| {
+    let origin = format!("edited copy of {}", chip.source.origin);
+    let copy = format::parse_chip_with(&text, &origin, chip.source.syntax, &read).map_err(|e| {
         Error::Write {
-            path: out.to_path_buf(),
+            path: chip.source.origin.clone().into(),
             reason: format!("the edited copy would not load ({e}); nothing was written"),
         }
     })?;
+    Ok((text, copy))
+}
+
+/// Write an edited chip text (from [`edited_chip`]) to the new file `out`.
+pub fn write_copy(text: &str, out: &Path, protected: &[&Path]) -> Result<(), Error> {
     output::write_new_file(out, text.as_bytes(), protected)
 }

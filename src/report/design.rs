@@ -5,7 +5,7 @@ use super::fmt_sig;
 use super::json::SCHEMA_VERSION;
 use crate::analysis::design::{SizeDim, SizeResult, TargetOutcome, TuneResult};
 use crate::chip::Chip;
-use crate::commands::SensitivityTable;
+use crate::commands::{Changed, SensitivityTable};
 use crate::network::{Network, Port};
 use crate::serpentine::{Serpentine, SerpentineError};
 use crate::units::display;
@@ -87,6 +87,8 @@ struct JsonSetting<'a> {
 #[derive(Serialize)]
 struct JsonTune<'a> {
     schema_version: u32,
+    /// The tuned chip (the copy as written, read back) solved: the `solve` document.
+    operating_point: super::json::JsonReport<'a>,
     feasible: bool,
     residual_norm: f64,
     settings: Vec<JsonSetting<'a>>,
@@ -102,10 +104,16 @@ fn bound_name(b: i8) -> Option<&'static str> {
 }
 
 /// Tuning report as JSON.
-pub(crate) fn tune_json(chip: &Chip, r: &TuneResult, w: &mut dyn io::Write) -> io::Result<()> {
+pub(crate) fn tune_json(
+    chip: &Chip,
+    r: &TuneResult,
+    after: &Changed,
+    w: &mut dyn io::Write,
+) -> io::Result<()> {
     let network = &chip.network;
     let j = JsonTune {
         schema_version: SCHEMA_VERSION,
+        operating_point: super::json::solve_report(&after.chip, &after.state),
         feasible: r.feasible,
         residual_norm: r.residual_norm,
         settings: r
@@ -195,6 +203,8 @@ struct JsonSerpentine {
 #[derive(Serialize)]
 struct JsonSizing<'a> {
     schema_version: u32,
+    /// The sized chip (the copy as written, read back) solved: the `solve` document.
+    operating_point: super::json::JsonReport<'a>,
     feasible: bool,
     residual_norm: f64,
     iterations: usize,
@@ -226,11 +236,13 @@ pub(crate) fn size_json(
     r: &SizeResult,
     run: f64,
     pitch: f64,
+    after: &Changed,
     w: &mut dyn io::Write,
 ) -> io::Result<()> {
     let network = &chip.network;
     let j = JsonSizing {
         schema_version: SCHEMA_VERSION,
+        operating_point: super::json::solve_report(&after.chip, &after.state),
         feasible: r.feasible,
         residual_norm: r.residual_norm,
         iterations: r.iterations,

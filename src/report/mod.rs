@@ -73,6 +73,14 @@ pub(crate) fn role(port: Port) -> &'static str {
     }
 }
 
+/// The tables of a tuned or sized chip, as `solve` prints them.
+fn operating_point_table(after: &crate::commands::Changed, w: &mut dyn Write) -> io::Result<()> {
+    w.write_all(
+        b"\nOperating point of the changed chip (the copy as written, read back and solved)\n\n",
+    )?;
+    w.write_all(to_table(&after.chip, &after.state).as_bytes())
+}
+
 /// Render a command's outcome in `format` to `w`. An outcome that has nothing to print
 /// (files written) writes nothing; a format the outcome cannot take is an
 /// `InvalidInput` error (callers check [`Outcome::formats`] first).
@@ -151,12 +159,36 @@ pub fn render(outcome: &Outcome, format: Format, w: &mut dyn Write) -> io::Resul
         (Outcome::Checked { chip, state, .. }, Format::Csv) => {
             csv::solve_table(chip, state, &mut csv::Tables::new(w))
         }
-        (Outcome::Tuned { chip, result }, Format::Table) => {
-            w.write_all(tune_report(chip, result).as_bytes())
+        (
+            Outcome::Tuned {
+                chip,
+                result,
+                after,
+            },
+            Format::Table,
+        ) => {
+            w.write_all(tune_report(chip, result).as_bytes())?;
+            operating_point_table(after, w)
         }
-        (Outcome::Tuned { chip, result }, Format::Json) => design::tune_json(chip, result, w),
-        (Outcome::Tuned { chip, result }, Format::Csv) => {
-            design::tune_csv(chip, result, &mut csv::Tables::new(w))
+        (
+            Outcome::Tuned {
+                chip,
+                result,
+                after,
+            },
+            Format::Json,
+        ) => design::tune_json(chip, result, after, w),
+        (
+            Outcome::Tuned {
+                chip,
+                result,
+                after,
+            },
+            Format::Csv,
+        ) => {
+            let mut tables = csv::Tables::new(w);
+            design::tune_csv(chip, result, &mut tables)?;
+            csv::solve_table(&after.chip, &after.state, &mut tables)
         }
         (
             Outcome::Sized {
@@ -164,12 +196,20 @@ pub fn render(outcome: &Outcome, format: Format, w: &mut dyn Write) -> io::Resul
                 result,
                 run,
                 pitch,
+                after,
             },
             f,
         ) => match f {
-            Format::Table => w.write_all(size_report(chip, result, *run, *pitch).as_bytes()),
-            Format::Json => design::size_json(chip, result, *run, *pitch, w),
-            Format::Csv => design::size_csv(chip, result, *run, *pitch, &mut csv::Tables::new(w)),
+            Format::Table => {
+                w.write_all(size_report(chip, result, *run, *pitch).as_bytes())?;
+                operating_point_table(after, w)
+            }
+            Format::Json => design::size_json(chip, result, *run, *pitch, after, w),
+            Format::Csv => {
+                let mut tables = csv::Tables::new(w);
+                design::size_csv(chip, result, *run, *pitch, &mut tables)?;
+                csv::solve_table(&after.chip, &after.state, &mut tables)
+            }
         },
         (Outcome::Section(o), Format::Table) => w.write_all(section_report(o).as_bytes()),
         (Outcome::Section(o), Format::Json) => section::section_json(o, w),
