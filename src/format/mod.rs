@@ -21,6 +21,7 @@
 //! ```
 
 mod design_spec;
+pub mod edit;
 mod fluid_spec;
 mod locate;
 mod named;
