@@ -116,7 +116,7 @@ pub struct Changed {
 pub const WRITTEN_DIGITS: usize = 6;
 
 /// Read an edited copy back and solve it.
-fn changed(chip: &Chip, edits: &[crate::copies::ValueEdit]) -> Result<Changed, Error> {
+fn changed(chip: &Chip, edits: &[format::edit::Edit]) -> Result<Changed, Error> {
     let (text, copy) = crate::copies::edited_chip(chip, edits)?;
     let state = analysis::steady_state(&copy.network).map_err(|source| Error::Solve {
         origin: copy.source.origin.clone(),

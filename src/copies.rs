@@ -1,33 +1,19 @@
 //! Tuned and sized copies of a chip file: the user's text with only the changed values
-//! rewritten, checked to load before it is written.
+//! rewritten at the places the parser found them ([`crate::format::edit`], which also checks
+//! that nothing else changed), then read back as a chip before anything is written.
 
 use crate::analysis::design::{SizeDim, SizeResult, TuneResult};
 use crate::chip::Chip;
 use crate::error::Error;
-use crate::format::{self, Syntax};
+use crate::format;
+use crate::format::edit::{self, Edit, NewValue};
 use crate::network::Port;
 use crate::{output, section, units};
 use std::path::Path;
 
-/// One value to change in the chip text: a key path and its new value.
-#[derive(Clone, Debug, PartialEq)]
-pub struct ValueEdit {
-    pub path: [String; 3],
-    pub value: NewValue,
-}
-
-/// The new value of an edit.
-#[derive(Clone, Debug, PartialEq)]
-pub enum NewValue {
-    /// A quantity such as `41.583 mbar`.
-    Scalar(String),
-    /// A mapping such as a section `{shape: rectangle, width: 100 um, height: 50 um}`.
-    Mapping(Vec<(String, String)>),
-}
-
-fn edit(parts: [&str; 3], value: NewValue) -> ValueEdit {
-    ValueEdit {
-        path: parts.map(str::to_string),
+fn edit(parts: [&str; 3], value: NewValue) -> Edit {
+    Edit {
+        path: parts.iter().map(|p| p.to_string()).collect(),
         value,
     }
 }
@@ -71,7 +57,7 @@ fn length_text(x: f64, step: Option<f64>, digits: usize, scale: f64, unit: &str)
 }
 
 /// The edits that write tuned drive settings with `digits` significant digits.
-pub fn tuned_edits(chip: &Chip, r: &TuneResult, digits: usize) -> Vec<ValueEdit> {
+pub fn tuned_edits(chip: &Chip, r: &TuneResult, digits: usize) -> Vec<Edit> {
     r.settings
         .iter()
         .map(|s| {
@@ -127,7 +113,7 @@ fn section_fields(
 
 /// The edits that write sized lengths and sections (to their fabrication steps, else with
 /// `digits` significant digits).
-pub fn sized_edits(chip: &Chip, r: &SizeResult, digits: usize) -> Result<Vec<ValueEdit>, Error> {
+pub fn sized_edits(chip: &Chip, r: &SizeResult, digits: usize) -> Result<Vec<Edit>, Error> {
     r.sizes
         .iter()
         .map(|s| {
@@ -154,50 +140,22 @@ fn rewrite_failed(chip: &Chip, what: &str) -> Error {
     Error::Write {
         path: chip.source.origin.clone().into(),
         reason: format!(
-            "cannot rewrite {what} in a copy of the chip: write that entry in flow style \
-             ({{key: value, ...}} on one line) so rillnet can change its value in place"
+            "cannot rewrite {what} in a copy of the chip: only closed-form sections (circle, \
+             rectangle, ellipse, plates) can be written back"
         ),
     }
-}
-
-/// The value as text in the file's syntax.
-fn literal(syntax: Syntax, value: &NewValue) -> String {
-    match (syntax, value) {
-        (Syntax::Yaml, NewValue::Scalar(s)) => s.clone(),
-        (Syntax::Json, NewValue::Scalar(s)) => format!("\"{s}\""),
-        (Syntax::Yaml, NewValue::Mapping(m)) => format!(
-            "{{{}}}",
-            m.iter()
-                .map(|(k, v)| format!("{k}: {v}"))
-                .collect::<Vec<_>>()
-                .join(", ")
-        ),
-        (Syntax::Json, NewValue::Mapping(m)) => format!(
-            "{{{}}}",
-            m.iter()
-                .map(|(k, v)| format!("\"{k}\": \"{v}\""))
-                .collect::<Vec<_>>()
-                .join(", ")
-        ),
-    }
-}
-
-/// The chip text with the edits applied.
-fn edited_text(chip: &Chip, edits: &[ValueEdit]) -> Result<String, Error> {
-    let mut text = chip.source.text.clone();
-    for e in edits {
-        let path: Vec<&str> = e.path.iter().map(String::as_str).collect();
-        text = format::replace_value(&text, &path, &literal(chip.source.syntax, &e.value))
-            .ok_or_else(|| rewrite_failed(chip, &e.path.join(".")))?;
-    }
-    Ok(text)
 }
 
 /// The chip text with the edits applied, parsed back into a chip (profiles named by the chip
 /// are read beside the original file). Fails, with nothing written, when the copy would not
 /// load.
-pub fn edited_chip(chip: &Chip, edits: &[ValueEdit]) -> Result<(String, Chip), Error> {
-    let text = edited_text(chip, edits)?;
+pub fn edited_chip(chip: &Chip, edits: &[Edit]) -> Result<(String, Chip), Error> {
+    let text = edit::apply_edits(&chip.source.text, chip.source.syntax, edits).map_err(|e| {
+        Error::Write {
+            path: chip.source.origin.clone().into(),
+            reason: format!("cannot write the changed values into a copy: {e}"),
+        }
+    })?;
     let base = Path::new(&chip.source.origin)
         .parent()
         .unwrap_or(Path::new("."))

@@ -84,7 +84,14 @@ fn tuned_copy_of_a_shipped_chip_still_loads_with_the_new_setting() {
     )
     .unwrap();
     let net = rillnet::format::parse_chip(&out, "copy.yaml", Syntax::Yaml).unwrap();
-    let pressure = |name: &str| match net.nodes.iter().find(|n| n.name == name).unwrap().port {
+    let pressure = |name: &str| match net
+        .network
+        .nodes
+        .iter()
+        .find(|n| n.name == name)
+        .unwrap()
+        .port
+    {
         rillnet::network::Port::Pressure(p) => p.si(),
         ref other => panic!("{other:?}"),
     };
@@ -118,7 +125,12 @@ fn sized_copy_of_a_shipped_chip_still_loads_with_the_new_section() {
     ));
     assert!(out.contains("lane_2: {from: inlet, to: waste, section: lane, length: 61 mm, size:"));
     let net = rillnet::format::parse_chip(&out, "copy.yaml", Syntax::Yaml).unwrap();
-    let lane_1 = net.channels.iter().find(|c| c.name == "lane_1").unwrap();
+    let lane_1 = net
+        .network
+        .channels
+        .iter()
+        .find(|c| c.name == "lane_1")
+        .unwrap();
     assert!((lane_1.length.si() - 42.5e-3).abs() < 1e-12);
 }
 

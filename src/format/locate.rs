@@ -41,59 +41,6 @@ pub fn locate_offset(text: &str, path: &[&str]) -> Option<usize> {
     found
 }
 
-/// Replace the value of the key at `path` (flow-style YAML or JSON) with `new_value`, keeping
-/// everything else — comments, order, layout — as it was. `None` when the key is missing or
-/// its value is a block (multi-line) mapping.
-pub fn replace_value(text: &str, path: &[&str], new_value: &str) -> Option<String> {
-    let key_at = locate_offset(text, path)?;
-    let bytes = text.as_bytes();
-    let mut i = key_at + text[key_at..].find(':')? + 1;
-    while i < bytes.len() && (bytes[i] == b' ' || bytes[i] == b'\t') {
-        i += 1;
-    }
-    let start = i;
-    let end = match bytes.get(i)? {
-        b'"' => i + 1 + text[i + 1..].find('"')? + 1,
-        b'{' | b'[' => {
-            let (open, close) = if bytes[i] == b'{' {
-                (b'{', b'}')
-            } else {
-                (b'[', b']')
-            };
-            let mut depth = 0;
-            let mut j = i;
-            loop {
-                match bytes.get(j)? {
-                    c if *c == open => depth += 1,
-                    c if *c == close => {
-                        depth -= 1;
-                        if depth == 0 {
-                            break j + 1;
-                        }
-                    }
-                    _ => {}
-                }
-                j += 1;
-            }
-        }
-        b'\n' | b'\r' | b'#' => return None,
-        _ => {
-            let mut j = i;
-            while j < bytes.len() && !matches!(bytes[j], b',' | b'}' | b']' | b'\n' | b'\r') {
-                if bytes[j] == b'#' && j > 0 && bytes[j - 1] == b' ' {
-                    break;
-                }
-                j += 1;
-            }
-            while j > start && bytes[j - 1] == b' ' {
-                j -= 1;
-            }
-            j
-        }
-    };
-    Some(format!("{}{}{}", &text[..start], new_value, &text[end..]))
-}
-
 fn find_key(text: &str, key: &str, from: usize) -> Option<usize> {
     if key.is_empty() {
         return None;
@@ -144,27 +91,6 @@ fn line_col(text: &str, i: usize) -> (usize, usize) {
 #[cfg(test)]
 mod tests {
     use super::*;
-
-    #[test]
-    fn replaces_flow_and_json_values() {
-        let yaml = "nodes:\n  a: {pressure: 100 mbar, adjust: {min: 0 Pa, max: 1 bar}}  # inlet\n";
-        let out = replace_value(yaml, &["nodes", "a", "pressure"], "123.5 mbar").unwrap();
-        assert_eq!(
-            out,
-            "nodes:\n  a: {pressure: 123.5 mbar, adjust: {min: 0 Pa, max: 1 bar}}  # inlet\n"
-        );
-        let json = r#"{"channels": {"c": {"length": "1 mm", "section": {"shape": "circle"}}}}"#;
-        let out = replace_value(
-            json,
-            &["channels", "c", "section"],
-            r#"{"shape": "rectangle"}"#,
-        )
-        .unwrap();
-        assert!(out.contains(r#""section": {"shape": "rectangle"}"#));
-        let out = replace_value(json, &["channels", "c", "length"], "\"2 mm\"").unwrap();
-        assert!(out.contains(r#""length": "2 mm""#));
-        assert!(replace_value("a:\n  b: 1\n", &["a"], "x").is_none());
-    }
 
     #[test]
     fn finds_block_flow_and_json_keys() {

@@ -367,6 +367,18 @@ impl Shape {
     }
 }
 
+/// Horizontal extent of chord polygons.
+fn extent(loops: &[Vec<[f64; 2]>]) -> f64 {
+    let xs = loops.iter().flatten().map(|p| p[0]);
+    let lo = xs.clone().fold(f64::INFINITY, f64::min);
+    let hi = xs.fold(f64::NEG_INFINITY, f64::max);
+    if hi > lo {
+        hi - lo
+    } else {
+        0.0
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -380,17 +392,5 @@ mod tests {
             };
             assert_eq!(s.check().unwrap_err().field, "height");
         }
-    }
-}
-
-/// Horizontal extent of chord polygons.
-fn extent(loops: &[Vec<[f64; 2]>]) -> f64 {
-    let xs = loops.iter().flatten().map(|p| p[0]);
-    let lo = xs.clone().fold(f64::INFINITY, f64::min);
-    let hi = xs.fold(f64::NEG_INFINITY, f64::max);
-    if hi > lo {
-        hi - lo
-    } else {
-        0.0
     }
 }
