@@ -37,7 +37,7 @@ impl ChipInput<'_> {
         match *self {
             ChipInput::File(path) => crate::load_chip(path),
             ChipInput::Text { text, syntax } => {
-                let cwd = |name: &str| std::fs::read_to_string(name).map_err(|e| e.to_string());
+                let cwd = |name: &str| crate::read_named_file(Path::new(name));
                 Ok(format::parse_chip_with(text, "<stdin>", syntax, &cwd)?)
             }
         }
@@ -334,7 +334,7 @@ fn usage(msg: &str) -> Error {
 fn section_shape(req: &SectionRequest<'_>) -> Result<(Shape, Option<f64>, String), Error> {
     match (req.spec, &req.chip, req.name) {
         (Some(spec), None, None) => {
-            let read = |name: &str| std::fs::read_to_string(name).map_err(|e| e.to_string());
+            let read = |name: &str| crate::read_named_file(Path::new(name));
             Ok((
                 format::parse_section_spec(spec, "section spec", &read)?,
                 None,

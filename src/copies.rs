@@ -160,9 +160,7 @@ pub fn edited_chip(chip: &Chip, edits: &[Edit]) -> Result<(String, Chip), Error>
         .parent()
         .unwrap_or(Path::new("."))
         .to_path_buf();
-    let read = move |name: &str| -> Result<String, String> {
-        std::fs::read_to_string(base.join(name)).map_err(|e| e.to_string())
-    };
+    let read = move |name: &str| crate::read_named_file(&base.join(name));
     let origin = format!("edited copy of {}", chip.source.origin);
     let copy = format::parse_chip_with(&text, &origin, chip.source.syntax, &read).map_err(|e| {
         Error::Write {

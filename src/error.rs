@@ -37,8 +37,9 @@ pub mod exit {
     /// Results withheld: the solver could not produce a solution that meets its balance
     /// check (or the matrix was not numerically positive definite).
     pub const WITHHELD: u8 = 3;
-    /// The output could not be written (disk full, closed standard output, ...).
-    pub const OUTPUT_FAILED: u8 = 4;
+    /// The output could not be written (disk full, closed standard output, ...): reported like
+    /// any other refusal to write, with code 2.
+    pub const OUTPUT_FAILED: u8 = 2;
 }
 
 impl Error {

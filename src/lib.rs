@@ -48,42 +48,51 @@ pub mod prelude {
     pub use crate::units::{Length, Pressure, Viscosity, VolumeFlow};
 }
 
-/// Read and validate a chip file (YAML, or JSON when the extension is `.json`).
-pub fn load_chip(path: &Path) -> Result<Chip, Error> {
-    let origin = path.display().to_string();
-    let meta = std::fs::metadata(path).map_err(|source| Error::Read {
-        path: path.to_path_buf(),
-        source,
+/// Read at most [`format::MAX_FILE_BYTES`] bytes of text from `reader`; refuse more (the limit
+/// is enforced while reading, so device files and pipes cannot exhaust memory).
+pub fn read_limited(reader: impl std::io::Read, origin: &str) -> Result<String, Error> {
+    let mut bytes = Vec::new();
+    let limit = format::MAX_FILE_BYTES as u64;
+    std::io::Read::read_to_end(&mut reader.take(limit + 1), &mut bytes).map_err(|e| {
+        format::InputError::whole_file(origin, format!("cannot read the chip: {e}"))
     })?;
-    if meta.len() > format::MAX_FILE_BYTES as u64 {
+    if bytes.len() as u64 > limit {
         return Err(format::InputError::whole_file(
-            &origin,
-            format!(
-                "the file is {} bytes; chip files are limited to {} bytes",
-                meta.len(),
-                format::MAX_FILE_BYTES
-            ),
+            origin,
+            format!("the input is larger than {limit} bytes, the limit for a chip file"),
         )
         .into());
     }
-    let bytes = std::fs::read(path).map_err(|source| Error::Read {
-        path: path.to_path_buf(),
-        source,
-    })?;
-    let text = String::from_utf8(bytes).map_err(|e| {
+    String::from_utf8(bytes).map_err(|e| {
         format::InputError::whole_file(
-            &origin,
+            origin,
             format!(
                 "the file is not UTF-8 text (invalid byte at offset {}); save it as UTF-8",
                 e.utf8_error().valid_up_to()
             ),
         )
+        .into()
+    })
+}
+
+/// Read a file named by a chip (a measured profile) with the same byte limit, for the
+/// `FileReader` of the file format.
+pub fn read_named_file(path: &Path) -> Result<String, String> {
+    let file = std::fs::File::open(path).map_err(|e| e.to_string())?;
+    read_limited(file, &path.display().to_string()).map_err(|e| e.to_string())
+}
+
+/// Read and validate a chip file (YAML, or JSON when the extension is `.json`).
+pub fn load_chip(path: &Path) -> Result<Chip, Error> {
+    let origin = path.display().to_string();
+    let file = std::fs::File::open(path).map_err(|source| Error::Read {
+        path: path.to_path_buf(),
+        source,
     })?;
+    let text = read_limited(file, &origin)?;
     // Files the chip names (measured profiles) are found beside the chip file.
     let base = path.parent().unwrap_or(Path::new(".")).to_path_buf();
-    let read = move |name: &str| -> Result<String, String> {
-        std::fs::read_to_string(base.join(name)).map_err(|e| e.to_string())
-    };
+    let read = move |name: &str| read_named_file(&base.join(name));
     Ok(format::parse_chip_with(
         &text,
         &origin,

@@ -1,12 +1,12 @@
 //! The `rillnet` command: parse arguments, call the library, write its outcome, map errors to
 //! exit codes (see `rillnet::error::exit`: 0 done, 1 a limit check failed, 2 bad input or
-//! usage, 3 results withheld by the solver, 4 output could not be written).
+//! usage or output that could not be written, 3 results withheld by the solver).
 
 use clap::{CommandFactory, Parser, Subcommand, ValueEnum};
 use rillnet::commands::{self, ChipInput, Outcome, SensitivityChoice};
 use rillnet::error::exit;
 use rillnet::report::Format;
-use std::io::{IsTerminal, Read, Write};
+use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
@@ -209,11 +209,7 @@ impl ChipArg {
                 stdin: None,
             });
         }
-        let mut text = String::new();
-        std::io::stdin()
-            .take(rillnet::format::MAX_FILE_BYTES as u64 + 1)
-            .read_to_string(&mut text)
-            .map_err(|e| input_error("<stdin>", format!("cannot read a chip: {e}")))?;
+        let text = rillnet::read_limited(std::io::stdin(), "<stdin>")?;
         let syntax = match syntax {
             Some(SyntaxArg::Json) => rillnet::format::Syntax::Json,
             Some(SyntaxArg::Yaml) => rillnet::format::Syntax::Yaml,

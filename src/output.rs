@@ -26,7 +26,8 @@ pub fn write_new_file(path: &Path, contents: &[u8], protected: &[&Path]) -> Resu
             ));
         }
     }
-    if path.exists() {
+    // symlink_metadata: a dangling symbolic link is an existing entry too.
+    if std::fs::symlink_metadata(path).is_ok() {
         return Err(fail(
             "the file exists; rillnet never overwrites files. Choose a new path or move the old file away"
                 .into(),
