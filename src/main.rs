@@ -411,8 +411,10 @@ fn generated(command: &Command) -> Option<std::io::Result<()>> {
     let mut out = std::io::stdout().lock();
     match command {
         Command::Completions { shell } => {
-            clap_complete::generate(*shell, &mut Cli::command(), "rillnet", &mut out);
-            Some(out.flush())
+            // Generated into memory first: the generator panics on a failed write.
+            let mut script = Vec::new();
+            clap_complete::generate(*shell, &mut Cli::command(), "rillnet", &mut script);
+            Some(out.write_all(&script).and_then(|()| out.flush()))
         }
         Command::Manual => Some(clap_mangen::Man::new(Cli::command()).render(&mut out)),
         _ => None,

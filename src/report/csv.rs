@@ -22,6 +22,14 @@ pub(crate) fn n(v: f64) -> String {
     num(Some(v))
 }
 
+/// The I/O error inside a CSV error, kind kept (a closed pipe must stay a `BrokenPipe`).
+fn io_error(e: csv::Error) -> io::Error {
+    match e.into_kind() {
+        csv::ErrorKind::Io(e) => e,
+        other => io::Error::other(format!("{other:?}")),
+    }
+}
+
 /// Writes the tables of one CSV document.
 pub(crate) struct Tables<'w> {
     w: &'w mut dyn Write,
@@ -43,10 +51,10 @@ impl<'w> Tables<'w> {
         }
         self.tables += 1;
         let mut out = csv::Writer::from_writer(&mut *self.w);
-        out.write_record(header).map_err(io::Error::other)?;
+        out.write_record(header).map_err(io_error)?;
         for row in rows {
             debug_assert_eq!(row.len(), header.len());
-            out.write_record(&row).map_err(io::Error::other)?;
+            out.write_record(&row).map_err(io_error)?;
         }
         out.flush()
     }

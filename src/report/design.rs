@@ -372,15 +372,20 @@ pub(crate) fn sensitivity_json<'a>(
             .map(|x| JsonSens {
                 target_channel: &network.channels[x.target_channel.0].name,
                 channel: &network.channels[x.channel.0].name,
-                d_flow_d_width_m3_per_s_per_m: x.d_width,
-                d_flow_d_height_m3_per_s_per_m: x.d_height,
-                d_flow_d_length_m3_per_s_per_m: x.d_length,
-                relative_width: x.rel_width,
-                relative_height: x.rel_height,
-                relative_length: x.rel_length,
+                d_flow_d_width_m3_per_s_per_m: x.d_width.map(z),
+                d_flow_d_height_m3_per_s_per_m: x.d_height.map(z),
+                d_flow_d_length_m3_per_s_per_m: z(x.d_length),
+                relative_width: x.rel_width.map(z),
+                relative_height: x.rel_height.map(z),
+                relative_length: x.rel_length.map(z),
             })
             .collect(),
     }
+}
+
+/// `x` with a negative zero made positive (no output prints −0).
+fn z(x: f64) -> f64 {
+    x + 0.0
 }
 
 /// Sensitivities as a CSV table.

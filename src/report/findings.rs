@@ -25,8 +25,8 @@ pub fn finding_text(chip: &Chip, f: &Finding) -> String {
     let at = format!("{kind} '{name}'");
     match f.kind {
         FindingKind::ShearOverLimit { value, limit, .. } => format!(
-            "{at}: maximum wall shear {value:.3} Pa exceeds the limit {limit:.3} Pa (margin {:.2})",
-            limit / value
+            "{at}: maximum wall shear {value:.3} Pa exceeds the limit {limit:.3} Pa (margin {})",
+            super::fmt_sig(limit / value, 3)
         ),
         FindingKind::PressureOverRating { value, limit, .. } => format!(
             "{at}: pressure {} exceeds the chip's rating {}",

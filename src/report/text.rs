@@ -311,7 +311,11 @@ pub fn check_text(chip: &Chip, state: &SteadyState, passed: bool) -> String {
             None => "not checked (no pressure_rating in the chip file)".to_string(),
         }
     ));
-    out.push_str(if passed {
+    let nothing_checked = limited == 0 && network.pressure_rating.is_none();
+    out.push_str(if passed && nothing_checked {
+        "Verdict: PASS — but only against vacuum: no shear limit and no pressure rating is set, \
+         so nothing else was checked.\n\n"
+    } else if passed {
         "Verdict: PASS — no limit exceeded.\n\n"
     } else {
         "Verdict: FAIL — limits exceeded (see Findings).\n\n"
