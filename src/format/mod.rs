@@ -371,17 +371,47 @@ pub fn parse_section_spec(
 
 /// Deserialize YAML after the alias-expansion guard, with located errors.
 fn read_yaml<T: serde::de::DeserializeOwned>(text: &str, origin: &str) -> Result<T, InputError> {
-    if let Err(x) = yaml_guard::check(text) {
+    if let Err(refusal) = yaml_guard::check(text) {
+        let (line, column, message) = match refusal {
+            yaml_guard::Refusal::Explosion(x) => (
+                x.line,
+                x.column,
+                format!(
+                    "YAML aliases here would expand to {} values from {} written ones; \
+                     refused to protect memory. Write the values out, or reference smaller anchors",
+                    x.expanded_events, x.written_events
+                ),
+            ),
+            yaml_guard::Refusal::Unchecked {
+                line,
+                column,
+                reason,
+            } => (
+                line,
+                column,
+                format!(
+                    "the file uses YAML anchors and aliases, but its text cannot be checked for \
+                     alias expansion here ({reason}); replace tabs before values and unusual line \
+                     breaks (U+0085, U+2028) with spaces and plain newlines, or write the values out"
+                ),
+            ),
+            yaml_guard::Refusal::TooDeep { line, column } => (
+                line,
+                column,
+                format!(
+                    "the text nests deeper than {} levels or is indented more than {} columns; \
+                     chip files need a few levels — check for unbalanced brackets",
+                    yaml_guard::MAX_FLOW_DEPTH,
+                    yaml_guard::MAX_INDENT
+                ),
+            ),
+        };
         return Err(InputError {
             origin: origin.to_string(),
-            line: Some(x.line),
-            column: Some(x.column),
+            line: Some(line),
+            column: Some(column),
             field: None,
-            message: format!(
-                "YAML aliases here would expand to {} values from {} written ones; \
-                 refused to protect memory. Write the values out, or reference smaller anchors",
-                x.expanded_events, x.written_events
-            ),
+            message,
         });
     }
     serde_yaml::from_str(text).map_err(|e| {

@@ -85,16 +85,85 @@ impl MarkedEventReceiver for Counter {
     }
 }
 
-/// Check the alias expansion of `text`. Texts that the event parser cannot read are left
-/// to the deserializer, which reports the syntax error with its location.
-pub fn check(text: &str) -> Result<(), Explosion> {
+/// Deepest flow nesting (`[`, `{`) accepted; chip files nest a handful of levels. Deeper
+/// documents make the deserializer slow (time grows with the square of the depth).
+pub const MAX_FLOW_DEPTH: usize = 64;
+/// Widest block indentation accepted, in columns (block nesting costs at least one column a
+/// level).
+pub const MAX_INDENT: usize = 512;
+
+/// Why a text is refused before deserializing.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Refusal {
+    /// Aliases would expand too much.
+    Explosion(Explosion),
+    /// The text has anchors and aliases, but the event reader cannot read it, so its
+    /// expansion cannot be bounded.
+    Unchecked {
+        line: usize,
+        column: usize,
+        reason: String,
+    },
+    /// Nesting deeper than [`MAX_FLOW_DEPTH`] or indentation wider than [`MAX_INDENT`].
+    TooDeep { line: usize, column: usize },
+}
+
+/// Linear scan for flow nesting depth and block indentation (quotes and comments skipped).
+fn check_depth(text: &str) -> Result<(), Refusal> {
+    let mut depth = 0usize;
+    for (l, line) in text.lines().enumerate() {
+        let indent = line.len() - line.trim_start_matches([' ', '\t']).len();
+        if indent > MAX_INDENT {
+            return Err(Refusal::TooDeep {
+                line: l + 1,
+                column: MAX_INDENT + 1,
+            });
+        }
+        let mut quote: Option<char> = None;
+        for (c, ch) in line.chars().enumerate() {
+            match (quote, ch) {
+                (Some(q), ch) if ch == q => quote = None,
+                (Some(_), _) => {}
+                (None, '"' | '\'') => quote = Some(ch),
+                (None, '#') => break,
+                (None, '[' | '{') => {
+                    depth += 1;
+                    if depth > MAX_FLOW_DEPTH {
+                        return Err(Refusal::TooDeep {
+                            line: l + 1,
+                            column: c + 1,
+                        });
+                    }
+                }
+                (None, ']' | '}') => depth = depth.saturating_sub(1),
+                _ => {}
+            }
+        }
+    }
+    Ok(())
+}
+
+/// Check nesting depth and the alias expansion of `text` before it is deserialized.
+pub fn check(text: &str) -> Result<(), Refusal> {
+    check_depth(text)?;
     // Without an anchor there is nothing to expand: skip the extra pass.
     if !text.contains('&') {
         return Ok(());
     }
     let mut counter = Counter::default();
     let mut parser = Parser::new_from_str(text);
-    if parser.load(&mut counter, false).is_err() {
+    if let Err(e) = parser.load(&mut counter, false) {
+        // The deserializer reads some texts this reader does not (a tab before a value,
+        // U+0085 or U+2028 line breaks): with aliases present, refuse rather than expand
+        // blindly.
+        if text.contains('*') {
+            let m = e.marker();
+            return Err(Refusal::Unchecked {
+                line: m.line(),
+                column: m.col() + 1,
+                reason: e.info().to_string(),
+            });
+        }
         return Ok(());
     }
     let allowed = EXPANSION_BUDGET.saturating_add(counter.written.saturating_mul(EXPANSION_FACTOR));
@@ -102,12 +171,12 @@ pub fn check(text: &str) -> Result<(), Explosion> {
         let (line, column) = counter
             .first_alias
             .map_or((1, 1), |m| (m.line(), m.col() + 1));
-        return Err(Explosion {
+        return Err(Refusal::Explosion(Explosion {
             line,
             column,
             expanded_events: counter.expanded,
             written_events: counter.written,
-        });
+        }));
     }
     Ok(())
 }
@@ -130,7 +199,9 @@ mod tests {
             let items = [prev.as_str(); 10].join(", ");
             text.push_str(&format!("l{i}: &l{i} [{items}]\n"));
         }
-        let e = check(&text).unwrap_err();
+        let Refusal::Explosion(e) = check(&text).unwrap_err() else {
+            panic!("not an explosion")
+        };
         assert!(e.expanded_events > 100_000_000);
         assert_eq!(e.line, 2);
     }
@@ -144,5 +215,33 @@ mod tests {
             text.push_str("  - *big\n");
         }
         assert!(check(&text).is_err());
+    }
+
+    #[test]
+    fn deep_nesting_is_refused_in_linear_time() {
+        let deep = format!("a: {}{}\n", "[".repeat(100_000), "]".repeat(100_000));
+        assert!(matches!(
+            check(&deep),
+            Err(Refusal::TooDeep { line: 1, .. })
+        ));
+        let quoted = format!("a: \"{}\"\n", "[".repeat(1000));
+        assert!(check(&quoted).is_ok());
+        let wide = format!("a:\n{}b: 1\n", " ".repeat(MAX_INDENT + 1));
+        assert!(matches!(
+            check(&wide),
+            Err(Refusal::TooDeep { line: 2, .. })
+        ));
+    }
+
+    #[test]
+    fn unreadable_text_with_aliases_is_refused() {
+        // A tab before the value, or a U+2028 line break, stops this reader but not the
+        // deserializer: with anchors and aliases the expansion could not be bounded.
+        for sep in ["\t", "\u{2028}"] {
+            let text = format!("big: &b [1, 2]\nname:{sep}*b\n");
+            if let Err(e) = check(&text) {
+                assert!(matches!(e, Refusal::Unchecked { .. }), "{e:?}");
+            }
+        }
     }
 }
