@@ -7,6 +7,7 @@ mod common;
 
 use common::{channel_flow, json_of, rillnet, run_json};
 use rillnet::analysis::design::{self, Adjustable, Design, SizeDim, SizeVar, Target, TargetKind};
+use rillnet::analysis::kirchhoff::{balance_residuals, conductances, Solver, RESIDUAL_LIMIT};
 use rillnet::prelude::*;
 use rillnet::units::Density;
 
@@ -237,6 +238,94 @@ fn bounds_are_respected_and_reported() {
         .settings
         .iter()
         .all(|s| s.after >= -1e-12 && s.after <= 2000.0 + 1e-9));
+}
+
+// The invariants "the matrix does not depend on the drives" and "sizing keeps the symbolic
+// analysis", counted on the solver the design code is given: a design answer that analysed or
+// factorised on its own (and so bypassed the checked, refined solves of `Factor`) leaves these
+// counters short.
+
+#[test]
+fn tuning_solves_every_drive_set_on_one_checked_factorisation() {
+    let (net, problem) = y_chip(
+        vec![flow_target(0, 3.0), flow_target(1, 1.0)],
+        (0.0, 50_000.0),
+    );
+    let solver = Solver::new(&net).unwrap();
+    let r = design::tune_with(&solver, &problem).unwrap();
+    // Fixed ports, two unit responses and the check at the tuned settings: one factorisation.
+    assert_eq!((solver.analyses(), solver.factorizations()), (1, 1));
+    assert_eq!(r, design::tune(&net, &problem).unwrap());
+    // The state reported is the checked one: its residuals are the balance recomputed
+    // independently on the chip at the tuned settings.
+    let tuned = y_network(r.settings[0].after, r.settings[1].after);
+    let again = balance_residuals(&tuned, &r.solution.pressures, &conductances(&tuned));
+    assert_eq!(again, r.solution.node_residuals);
+    assert!(r.solution.max_relative_residual <= RESIDUAL_LIMIT);
+    assert!(r.solution.refinements <= 3);
+}
+
+#[test]
+fn sizing_refactorises_once_per_evaluation_on_one_analysis() {
+    // A length and a width free: the width gives its channel a section of its own, but the
+    // nodes and channel ends stay, so one analysis serves every evaluation.
+    let net = tree(0.3);
+    let problem = Design {
+        targets: vec![Target {
+            kind: TargetKind::Split {
+                channels: vec![ChannelId(3), ChannelId(4), ChannelId(5), ChannelId(6)],
+                ratio: vec![1.0; 4],
+            },
+            weight: 1.0,
+        }],
+        adjustable: vec![],
+        sizes: vec![
+            SizeVar {
+                channel: ChannelId(3),
+                dim: SizeDim::Length,
+                min: 1e-3,
+                max: 50e-3,
+                step: None,
+            },
+            SizeVar {
+                channel: ChannelId(1),
+                dim: SizeDim::Width,
+                min: 50e-6,
+                max: 200e-6,
+                step: None,
+            },
+        ],
+    };
+    let solver = Solver::new(&net).unwrap();
+    let r = design::size_with(&solver, &problem).unwrap();
+    assert!(r.feasible, "{:?}", r.targets);
+    assert!(r.evaluations > 1 && r.iterations >= 1);
+    assert_eq!(
+        (solver.analyses(), solver.factorizations()),
+        (1, r.evaluations)
+    );
+    assert!(r.network.sections.len() > net.sections.len());
+    assert!(r.solution.max_relative_residual <= RESIDUAL_LIMIT);
+    // Returning the perturbed leaf to 8 mm restores the split; the trunk width stays free.
+    assert!(
+        (r.sizes[0].after - 8e-3).abs() < 1e-9 * 8e-3,
+        "{:?}",
+        r.sizes
+    );
+    let again = design::size(&net, &problem).unwrap();
+    assert_eq!(again.sizes, r.sizes);
+    assert_eq!(again.evaluations, r.evaluations);
+}
+
+#[test]
+fn sensitivities_take_one_factorisation_for_every_target() {
+    let net = tree(0.3);
+    let targets = [ChannelId(3), ChannelId(4), ChannelId(6)];
+    let solver = Solver::new(&net).unwrap();
+    let s = design::sensitivities_with(&solver, &targets).unwrap();
+    assert_eq!((solver.analyses(), solver.factorizations()), (1, 1));
+    assert_eq!(s.len(), targets.len() * net.channels.len());
+    assert_eq!(s, design::sensitivities(&net, &targets).unwrap());
 }
 
 #[test]

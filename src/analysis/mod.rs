@@ -9,7 +9,7 @@ pub mod design;
 pub mod kirchhoff;
 pub mod limits;
 
-pub use kirchhoff::{solve, FlowSolution, SolveError, RESIDUAL_LIMIT};
+pub use kirchhoff::{solve, FlowSolution, SolveError, Solver, RESIDUAL_LIMIT};
 pub use limits::{findings, Finding, FindingKind, Place, Severity};
 
 use crate::network::{ChannelId, Network, NodeId, Port};
@@ -94,7 +94,8 @@ impl SteadyState {
     }
 }
 
-/// Solve the network and derive the per-channel figures.
+/// Solve the network (the checked path of [`kirchhoff::Solver`], through [`solve`]) and
+/// derive the per-channel figures.
 pub fn steady_state(network: &Network) -> Result<SteadyState, SolveError> {
     let solution = solve(network)?;
     Ok(derive(network, solution))

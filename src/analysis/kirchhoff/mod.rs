@@ -10,14 +10,25 @@
 //! restricted to them) is symmetric positive definite whenever every connected part touches
 //! a pressure port — which [`crate::network::NetworkBuilder::build`] guarantees.
 //!
+//! Every solve goes through one checked path ([`Solver`] → [`Factor`]): iterative refinement
+//! (at most [`MAX_REFINEMENTS`] steps) and a componentwise balance check against
+//! [`RESIDUAL_LIMIT`]; [`solve`], [`solve_with`] and the design answers all use it.
+//!
 //! Sign convention: a channel's flow is positive from its `from` node to its `to` node; a
 //! port's flow is positive into the chip.
 
+mod session;
+
+pub use session::{AdjointSolution, Factor, Solver};
+
 use crate::network::{Network, Port};
-use crate::solver::{Parallelism, SolverError, SymbolicCholesky, SymmetricPattern};
+use crate::solver::{SolverError, SymbolicCholesky, SymmetricPattern};
 
 /// Largest relative node imbalance accepted before results are withheld.
 pub const RESIDUAL_LIMIT: f64 = 1e-9;
+
+/// Most iterative-refinement steps a checked solve takes before it gives up.
+pub const MAX_REFINEMENTS: usize = 3;
 
 /// Failure to produce a trustworthy flow solution.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -32,6 +43,27 @@ pub enum SolveError {
         node: String,
         residual: f64,
         limit: f64,
+    },
+    #[error(
+        "the adjoint system behind the sensitivities is not solved to {limit:e} (worst node '{node}', \
+         componentwise relative residual {residual:e}); results withheld. Channel resistances may span \
+         too many orders of magnitude for double precision"
+    )]
+    Adjoint {
+        node: String,
+        residual: f64,
+        limit: f64,
+    },
+    #[error(
+        "the network's nodes, port kinds or channel ends differ from those the solver was analysed \
+         for; a solver serves one topology"
+    )]
+    TopologyChanged,
+    #[error("{what}: expected {expected} values, got {found}")]
+    Mismatch {
+        what: &'static str,
+        expected: usize,
+        found: usize,
     },
 }
 
@@ -53,6 +85,7 @@ struct ChannelSlots {
 #[derive(Debug)]
 pub struct KirchhoffSystem {
     unknown_of: Vec<Option<usize>>,
+    node_of: Vec<usize>,
     pattern: SymmetricPattern,
     slots: Vec<ChannelSlots>,
 }
@@ -61,15 +94,16 @@ impl KirchhoffSystem {
     /// Build the structure for `network`.
     pub fn new(network: &Network) -> Self {
         let mut unknown_of = Vec::with_capacity(network.nodes.len());
-        let mut n = 0;
-        for node in &network.nodes {
+        let mut node_of = Vec::new();
+        for (i, node) in network.nodes.iter().enumerate() {
             if matches!(node.port, Port::Pressure(_)) {
                 unknown_of.push(None);
             } else {
-                unknown_of.push(Some(n));
-                n += 1;
+                unknown_of.push(Some(node_of.len()));
+                node_of.push(i);
             }
         }
+        let n = node_of.len();
         // Positions 0..n are the diagonals (so isolated unknowns still have an entry); then one
         // off-diagonal position per channel joining two unknowns. A channel's diagonal slots
         // are those of its end nodes.
@@ -98,6 +132,7 @@ impl KirchhoffSystem {
             .collect();
         KirchhoffSystem {
             unknown_of,
+            node_of,
             pattern,
             slots,
         }
@@ -178,6 +213,21 @@ impl KirchhoffSystem {
     pub fn unknown(&self, node: usize) -> Option<usize> {
         self.unknown_of[node]
     }
+
+    /// The node of an unknown index (the inverse of [`KirchhoffSystem::unknown`]).
+    pub fn node(&self, unknown: usize) -> usize {
+        self.node_of[unknown]
+    }
+
+    /// Number of nodes the system was built for.
+    pub fn nodes(&self) -> usize {
+        self.unknown_of.len()
+    }
+
+    /// Number of channels the system was built for.
+    pub fn channels(&self) -> usize {
+        self.slots.len()
+    }
 }
 
 /// Each node's drive value: pressure of a pressure port, injected flow of a flow port, 0 at a
@@ -211,8 +261,9 @@ pub fn conductances(network: &Network) -> Vec<f64> {
         .collect()
 }
 
-/// The steady flow state of a network.
-#[derive(Clone, Debug)]
+/// The steady flow state of a network for one set of drives, with the record of how the
+/// checked solve ([`Factor::solve`]) got there.
+#[derive(Clone, Debug, PartialEq)]
 pub struct FlowSolution {
     /// Gauge pressure at every node [Pa].
     pub pressures: Vec<f64>,
@@ -221,11 +272,15 @@ pub struct FlowSolution {
     /// Net flow each node delivers into the chip [m³/s]: the port flow at ports, the
     /// numerical imbalance (≈ 0) at junctions.
     pub node_net_inflow: Vec<f64>,
-    /// Largest relative imbalance over the nodes whose balance is imposed.
+    /// Largest relative imbalance over the nodes whose balance is imposed: the final residual
+    /// the solve stopped at (at most [`RESIDUAL_LIMIT`]).
     pub max_relative_residual: f64,
     /// Relative balance residual of every node (None at pressure ports, whose flow is free);
     /// see [`balance_residuals`].
     pub node_residuals: Vec<Option<f64>>,
+    /// Iterative-refinement steps taken after the first solve (0 when the first solve met
+    /// the balance; at most [`MAX_REFINEMENTS`]).
+    pub refinements: usize,
 }
 
 /// Net flow out of every node through its channels [m³/s].
@@ -246,6 +301,17 @@ fn node_outflows(network: &Network, flows: &[f64]) -> Vec<f64> {
 /// the size of the terms that produced it. It stays meaningful at a dead-end junction, where
 /// the true flow is zero and any rounding would be a 100 % error relative to the flow itself.
 pub fn balance_residuals(network: &Network, pressures: &[f64], g: &[f64]) -> Vec<Option<f64>> {
+    balance_residuals_for(network, pressures, g, &drive_values(network))
+}
+
+/// [`balance_residuals`] for other drive settings: the injection s_i of a flow port is
+/// `drives[i]` (see [`KirchhoffSystem::rhs_for`]).
+pub fn balance_residuals_for(
+    network: &Network,
+    pressures: &[f64],
+    g: &[f64],
+    drives: &[f64],
+) -> Vec<Option<f64>> {
     let n = network.nodes.len();
     let mut imbalance = vec![0.0; n];
     let mut scale = vec![0.0; n];
@@ -261,90 +327,58 @@ pub fn balance_residuals(network: &Network, pressures: &[f64], g: &[f64]) -> Vec
     network
         .nodes
         .iter()
+        .zip(drives)
         .enumerate()
-        .map(|(i, node)| {
+        .map(|(i, (node, &d))| {
             let inj = match node.port {
                 Port::Pressure(_) => return None,
                 Port::Junction => 0.0,
-                Port::Flow(q) => q.si(),
+                Port::Flow(_) => d,
             };
             let s = scale[i] + inj.abs();
-            Some(if s > 0.0 {
-                (inj + imbalance[i]).abs() / s
-            } else {
+            // 0 where nothing flows at all; NaN (never accepted) where the pressures are.
+            Some(if s == 0.0 {
                 0.0
+            } else {
+                (inj + imbalance[i]).abs() / s
             })
         })
         .collect()
 }
 
-fn worst(residuals: &[Option<f64>]) -> (usize, f64) {
+/// The largest residual and where it is (index 0 and residual 0 when there is none); the
+/// first NaN, if any, counts as the largest, so that a broken solve is never accepted.
+fn worst(residuals: impl IntoIterator<Item = Option<f64>>) -> (usize, f64) {
     residuals
-        .iter()
+        .into_iter()
         .enumerate()
         .filter_map(|(i, r)| r.map(|r| (i, r)))
-        .fold((0, 0.0), |acc, (i, r)| if r > acc.1 { (i, r) } else { acc })
+        .fold((0, 0.0), |acc, (i, r)| {
+            if acc.1.is_nan() || r <= acc.1 {
+                acc
+            } else {
+                (i, r)
+            }
+        })
 }
 
-/// Solve the steady flow with the given channel conductances, reusing an analysed pattern.
+/// Solve the steady flow with the given channel conductances, reusing an analysed pattern
+/// (`system` and `symbolic` built for `network`).
 ///
-/// One step of iterative refinement is applied when the balance misses [`RESIDUAL_LIMIT`];
-/// if it still misses, the solution is refused.
+/// The same checked path as [`Solver`]: a [`Factor`] for `g`, then [`Factor::solve`] with the
+/// network's own drives (refinement at most [`MAX_REFINEMENTS`] times, refused above
+/// [`RESIDUAL_LIMIT`]).
 pub fn solve_with(
     network: &Network,
     system: &KirchhoffSystem,
     symbolic: &SymbolicCholesky,
     g: &[f64],
 ) -> Result<FlowSolution, SolveError> {
-    let values = system.matrix_values(g);
-    let b = system.rhs(network, g);
-    let factor = symbolic.factorize(system.pattern(), &values)?;
-    let mut x = b.clone();
-    factor.solve_in_place(&mut x)?;
-
-    let flows_of = |x: &[f64]| -> (Vec<f64>, Vec<f64>) {
-        let p = system.node_pressures(network, x);
-        let q = channel_flows(network, g, &p);
-        (p, q)
-    };
-    let (mut pressures, mut flows) = flows_of(&x);
-    let mut residuals = balance_residuals(network, &pressures, g);
-    let mut refinements = 0;
-    while worst(&residuals).1 > RESIDUAL_LIMIT && refinements < 3 {
-        // r = b − A x; solve A d = r; x += d.
-        let mut ax = vec![0.0; x.len()];
-        system.pattern().multiply(&values, &x, &mut ax);
-        let mut d: Vec<f64> = b.iter().zip(&ax).map(|(bi, ai)| bi - ai).collect();
-        factor.solve_in_place(&mut d)?;
-        x.iter_mut().zip(&d).for_each(|(xi, di)| *xi += di);
-        (pressures, flows) = flows_of(&x);
-        residuals = balance_residuals(network, &pressures, g);
-        refinements += 1;
-    }
-    let (worst_node, worst_residual) = worst(&residuals);
-    if worst_residual > RESIDUAL_LIMIT || !worst_residual.is_finite() {
-        return Err(SolveError::Residual {
-            node: network.nodes[worst_node].name.clone(),
-            residual: worst_residual,
-            limit: RESIDUAL_LIMIT,
-        });
-    }
-    // Dead-end branches carry no flow; what the solve left there is rounding.
-    for (q, dead) in flows.iter_mut().zip(network.dead_end_channels()) {
-        if dead {
-            *q = 0.0;
-        }
-    }
-    Ok(FlowSolution {
-        node_net_inflow: node_outflows(network, &flows),
-        pressures,
-        flows,
-        max_relative_residual: worst_residual,
-        node_residuals: residuals,
-    })
+    Factor::new(network, system, symbolic, g.to_vec())?.solve(&drive_values(network))
 }
 
-/// Solve the steady flow of `network`: assemble, analyse, factorise, solve, check.
+/// Solve the steady flow of `network`: assemble, analyse, factorise, solve, check — through
+/// [`Solver::new`] and [`Solver::solve`].
 ///
 /// ```
 /// use rillnet::prelude::*;
@@ -359,7 +393,5 @@ pub fn solve_with(
 /// assert!((sol.flows[0] - 1000.0 / r).abs() < 1e-12 * sol.flows[0]);
 /// ```
 pub fn solve(network: &Network) -> Result<FlowSolution, SolveError> {
-    let system = KirchhoffSystem::new(network);
-    let symbolic = SymbolicCholesky::analyse(system.pattern(), Parallelism::default())?;
-    solve_with(network, &system, &symbolic, &conductances(network))
+    Solver::new(network)?.solve()
 }

@@ -1,0 +1,58 @@
+//! Design answers: drive settings for target flows (tuning), channel sizes for target splits
+//! (sizing), and sensitivities of flows to channel dimensions (adjoint method).
+//!
+//! - `targets`: targets → dimensionless residual rows, and how each target came out;
+//! - `tune`: linear least squares over the adjustable ports (unit responses on one
+//!   factorisation, [`super::boxqp`]);
+//! - `adjoint`: gradients of linear measures with respect to conductances, and the
+//!   sensitivities of flows to channel dimensions;
+//! - `size`: bounded, damped Gauss–Newton over channel lengths and widths;
+//! - `serpentine`: how a long sized channel folds into a footprint.
+//!
+//! Every solve goes through one [`Solver`](super::kirchhoff::Solver) per chip (one symbolic
+//! analysis) and its checked, refined [`Factor`](super::kirchhoff::Factor): tuning
+//! factorises once for all its drive sets, sizing once per evaluation (conductances change,
+//! the topology does not), and the adjoint solves are refined and checked like the flow
+//! solves. The `*_with` variants take the solver from the caller, so that its counters
+//! ([`Solver::factorizations`](super::kirchhoff::Solver::factorizations)) show what was done.
+
+mod adjoint;
+mod serpentine;
+mod size;
+mod targets;
+mod tune;
+
+pub use crate::chip::design::{Adjustable, Design, SizeDim, SizeVar, Target, TargetKind};
+pub use adjoint::{dlog_resistance, sensitivities, sensitivities_with, Sensitivity};
+pub use serpentine::{serpentine, Serpentine};
+pub use size::{dimension, size, size_with, with_dimension, SizeResult, SizedDim};
+pub use targets::{TargetOutcome, MET};
+pub use tune::{tune, tune_with, Setting, TuneResult};
+
+use super::kirchhoff::SolveError;
+use crate::network::{Network, NodeId, Port};
+
+/// Why a design question could not be answered.
+#[derive(Clone, Debug, PartialEq, thiserror::Error)]
+pub enum DesignError {
+    #[error(
+        "the chip has no targets; add a 'targets:' list (channel flow, split or node pressure)"
+    )]
+    NoTargets,
+    #[error("no port is adjustable; add 'adjust: {{min: ..., max: ...}}' to the ports tuning may change")]
+    NoAdjustable,
+    #[error("no channel dimension is free; add 'size: {{length: {{min: ..., max: ...}}}}' (or width) to a channel")]
+    NoSizes,
+    #[error("channel '{channel}': width sizing needs a closed-form section (circle, rectangle, ellipse, plates); its section is a {shape}")]
+    WidthUnsupported {
+        channel: String,
+        shape: &'static str,
+    },
+    #[error(transparent)]
+    Solve(#[from] SolveError),
+}
+
+/// Port kind for reports.
+pub fn is_pressure_port(network: &Network, node: NodeId) -> bool {
+    matches!(network.nodes[node.0].port, Port::Pressure(_))
+}

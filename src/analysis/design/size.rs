@@ -1,0 +1,418 @@
+//! Sizing: channel lengths and widths that meet the targets with the drives fixed.
+//!
+//! Sizing is nonlinear in lengths and widths. It uses Gauss–Newton steps (Levenberg–Marquardt
+//! damped, bounded, in relative units Δz_j = z_j·δ_j; [`super::super::boxqp`]) with exact
+//! derivatives: the adjoint of the Kirchhoff system (see `adjoint`) gives dq/dg for every
+//! channel conductance g with one extra solve per target row, and dg/dL = −g/L,
+//! dg/dw = −g·(dR'/dw)/R' (central difference of the closed-form R', [`dlog_resistance`]).
+//! Dimensions with a fabrication step are then snapped to it and the others re-solved.
+//!
+//! A sized width gives the channel a section of its own, but the nodes, ports and channel
+//! ends stay as they were: every evaluation refactorises on the one symbolic analysis of the
+//! caller's [`Solver`], which checks this ([`Solver::conductances_of`]).
+
+use super::super::boxqp::{self, BoxLsq};
+use super::super::kirchhoff::{drive_values, FlowSolution, Solver};
+use super::adjoint::{dlog_resistance, measure_gradients};
+use super::targets::{outcomes, rows, TargetOutcome, MET};
+use super::{Design, DesignError, SizeDim, SizeVar};
+use crate::network::{Network, Section, SectionId};
+use crate::section::Shape;
+use crate::units::Length;
+use std::cell::Cell;
+
+/// Gauss–Newton iterations per descent, at most.
+const MAX_ITERATIONS: usize = 100;
+
+/// A sized dimension.
+#[derive(Clone, Debug, PartialEq)]
+pub struct SizedDim {
+    pub var: SizeVar,
+    pub before: f64,
+    pub after: f64,
+    pub at_bound: i8,
+}
+
+/// Result of sizing.
+#[derive(Clone, Debug)]
+pub struct SizeResult {
+    pub sizes: Vec<SizedDim>,
+    pub targets: Vec<TargetOutcome>,
+    pub residual_norm: f64,
+    pub iterations: usize,
+    /// Trial sizes evaluated (each one factorisation, one forward and one adjoint solve per
+    /// target row, all on the same symbolic analysis).
+    pub evaluations: usize,
+    pub feasible: bool,
+    /// The network with the new sizes.
+    pub network: Network,
+    /// Its checked flow state (with the refinement count and residual).
+    pub solution: FlowSolution,
+}
+
+/// Find channel lengths/widths that meet the targets with the drives fixed ([`size_with`] on
+/// a new [`Solver`]).
+pub fn size(network: &Network, design: &Design) -> Result<SizeResult, DesignError> {
+    check_design(design)?;
+    size_with(&Solver::new(network)?, design)
+}
+
+/// [`size`] for the network of `solver`: every evaluation factorises on its analysis.
+pub fn size_with(solver: &Solver<'_>, design: &Design) -> Result<SizeResult, DesignError> {
+    check_design(design)?;
+    let network = solver.network();
+    let vars = &design.sizes;
+    let before: Vec<f64> = vars
+        .iter()
+        .map(|v| current(network, v))
+        .collect::<Result<_, _>>()?;
+    let z: Vec<f64> = before
+        .iter()
+        .zip(vars)
+        .map(|(b, v)| b.clamp(v.min, v.max))
+        .collect();
+    let ctx = Context {
+        solver,
+        design,
+        evaluations: Cell::new(0),
+    };
+    let mut it = Iterate::start(&ctx, z)?;
+    it.descend(&ctx, &vec![true; vars.len()])?;
+    if vars.iter().any(|v| v.step.is_some()) {
+        it.snap_and_resolve(&ctx)?;
+    }
+    let Evaluation {
+        net, state, res, ..
+    } = it.eval;
+    let targets = outcomes(&net, &design.targets, &state.pressures, &state.flows);
+    let sizes = vars
+        .iter()
+        .zip(&before)
+        .zip(&it.z)
+        .map(|((v, &before), &after)| SizedDim {
+            var: v.clone(),
+            before,
+            after,
+            at_bound: at_bound(v, after),
+        })
+        .collect();
+    Ok(SizeResult {
+        feasible: targets.iter().all(|t| t.miss <= MET),
+        residual_norm: norm(&res),
+        sizes,
+        targets,
+        iterations: it.iterations,
+        evaluations: ctx.evaluations.get(),
+        network: net,
+        solution: state,
+    })
+}
+
+fn check_design(design: &Design) -> Result<(), DesignError> {
+    if design.targets.is_empty() {
+        return Err(DesignError::NoTargets);
+    }
+    if design.sizes.is_empty() {
+        return Err(DesignError::NoSizes);
+    }
+    Ok(())
+}
+
+/// −1 at the minimum, +1 at the maximum (to 1e-12 relative), 0 inside.
+fn at_bound(v: &SizeVar, z: f64) -> i8 {
+    if z <= v.min * (1.0 + 1e-12) {
+        -1
+    } else if z >= v.max * (1.0 - 1e-12) {
+        1
+    } else {
+        0
+    }
+}
+
+fn norm(r: &[f64]) -> f64 {
+    r.iter().map(|v| v * v).sum::<f64>().sqrt()
+}
+
+/// The current value of a size variable.
+fn current(network: &Network, v: &SizeVar) -> Result<f64, DesignError> {
+    let ch = &network.channels[v.channel.0];
+    Ok(match v.dim {
+        SizeDim::Length => ch.length.si(),
+        SizeDim::Width => {
+            let shape = &network.sections[ch.section.0].shape;
+            dimension(shape, "width")
+                .filter(|_| shape.analytic_figures().is_some())
+                .ok_or_else(|| DesignError::WidthUnsupported {
+                    channel: ch.name.clone(),
+                    shape: shape.kind(),
+                })?
+        }
+    })
+}
+
+/// What every evaluation needs: the solver (one analysis), the problem, and a count.
+struct Context<'a, 'n> {
+    solver: &'a Solver<'n>,
+    design: &'a Design,
+    evaluations: Cell<usize>,
+}
+
+/// The network at trial sizes, its checked state, its residuals and their Jacobian.
+struct Evaluation {
+    net: Network,
+    state: FlowSolution,
+    res: Vec<f64>,
+    jac: Vec<Vec<f64>>,
+}
+
+impl Context<'_, '_> {
+    /// Apply sizes `z`, factorise on the kept analysis, solve (forward and adjoint, checked)
+    /// and form the residuals and d(res)/dz.
+    fn evaluate(&self, z: &[f64]) -> Result<Evaluation, DesignError> {
+        self.evaluations.set(self.evaluations.get() + 1);
+        let vars = &self.design.sizes;
+        let net = apply(self.solver.network(), vars, z)?;
+        let factor = self.solver.factorize(self.solver.conductances_of(&net)?)?;
+        let state = factor.solve(&drive_values(&net))?;
+        // The measures' coefficients do not depend on the flows (only the split scale Q_ref
+        // does), so one solve gives both the gradients and the flows for the scales.
+        let unscaled = rows(&self.design.targets, &vec![1.0; net.channels.len()]);
+        let grads = measure_gradients(&factor, &state, &unscaled)?;
+        let rws = rows(&self.design.targets, &state.flows);
+        let res: Vec<f64> = rws
+            .iter()
+            .map(|r| r.residual(&state.pressures, &state.flows))
+            .collect();
+        let g = factor.conductances();
+        let dg_dz: Vec<f64> = vars
+            .iter()
+            .zip(z)
+            .map(|(v, &zv)| {
+                let m = v.channel.0;
+                match v.dim {
+                    SizeDim::Length => -g[m] / zv,
+                    SizeDim::Width => {
+                        let shape = &net.sections[net.channels[m].section.0].shape;
+                        -g[m] * dlog_resistance(shape, "width").unwrap_or(0.0)
+                    }
+                }
+            })
+            .collect();
+        // Jacobian d(res)/dz = √w/scale · dJ/dg_m · dg_m/dz.
+        let jac: Vec<Vec<f64>> = rws
+            .iter()
+            .zip(&grads)
+            .map(|(r, gr)| {
+                vars.iter()
+                    .zip(&dg_dz)
+                    .map(|(v, dg)| r.weight.sqrt() * gr[v.channel.0] * dg / r.scale)
+                    .collect()
+            })
+            .collect();
+        Ok(Evaluation {
+            net,
+            state,
+            res,
+            jac,
+        })
+    }
+}
+
+/// The Gauss–Newton iterate: sizes, their evaluation, the damping μ and the iteration count.
+struct Iterate {
+    z: Vec<f64>,
+    eval: Evaluation,
+    iterations: usize,
+    mu: f64,
+}
+
+impl Iterate {
+    fn start(ctx: &Context<'_, '_>, z: Vec<f64>) -> Result<Iterate, DesignError> {
+        Ok(Iterate {
+            eval: ctx.evaluate(&z)?,
+            z,
+            iterations: 0,
+            mu: 1e-3,
+        })
+    }
+
+    /// Damped, bounded Gauss–Newton on the `free` variables: accept a step that lowers
+    /// ‖res‖ (μ ← max(μ/10, 1e-15)), else raise μ tenfold; stop when ‖res‖ < 1e-13, a step
+    /// moves no size by more than 1e-14 relative, μ exceeds 1e12, or after
+    /// [`MAX_ITERATIONS`].
+    fn descend(&mut self, ctx: &Context<'_, '_>, free: &[bool]) -> Result<(), DesignError> {
+        let vars = &ctx.design.sizes;
+        for _ in 0..MAX_ITERATIONS {
+            if norm(&self.eval.res) < 1e-13 {
+                break;
+            }
+            self.iterations += 1;
+            let step = self.step(vars, free);
+            let trial: Vec<f64> = vars
+                .iter()
+                .zip(&self.z)
+                .zip(&step.x)
+                .map(|((v, z), d)| (z * (1.0 + d)).clamp(v.min, v.max))
+                .collect();
+            let eval = ctx.evaluate(&trial)?;
+            if norm(&eval.res) < norm(&self.eval.res) {
+                let small = trial
+                    .iter()
+                    .zip(&self.z)
+                    .all(|(a, b)| (a - b).abs() <= 1e-14 * b.abs());
+                self.z = trial;
+                self.eval = eval;
+                self.mu = (self.mu * 0.1).max(1e-15);
+                if small {
+                    break;
+                }
+            } else {
+                self.mu *= 10.0;
+                if self.mu > 1e12 {
+                    break;
+                }
+            }
+        }
+        Ok(())
+    }
+
+    /// The bounded, damped least-squares step in relative units: minimise
+    /// ‖J·diag(z)·δ + res‖² + μ‖δ‖² with min/z − 1 ≤ δ ≤ max/z − 1 (δ = 0 where not free).
+    fn step(&self, vars: &[SizeVar], free: &[bool]) -> BoxLsq {
+        let n = vars.len();
+        let z = &self.z;
+        let mut a: Vec<Vec<f64>> = self
+            .eval
+            .jac
+            .iter()
+            .map(|row| {
+                (0..n)
+                    .map(|j| if free[j] { row[j] * z[j] } else { 0.0 })
+                    .collect()
+            })
+            .collect();
+        let mut rhs: Vec<f64> = self.eval.res.iter().map(|v| -v).collect();
+        for j in 0..n {
+            let mut damp = vec![0.0; n];
+            damp[j] = self.mu.sqrt();
+            a.push(damp);
+            rhs.push(0.0);
+        }
+        let bound = |f: &dyn Fn(&SizeVar) -> f64| -> Vec<f64> {
+            (0..n)
+                .map(|j| {
+                    if free[j] {
+                        f(&vars[j]) / z[j] - 1.0
+                    } else {
+                        0.0
+                    }
+                })
+                .collect()
+        };
+        let (lo, hi) = (bound(&|v| v.min), bound(&|v| v.max));
+        boxqp::solve(&a, &rhs, &lo, &hi, &vec![0.0; n])
+    }
+
+    /// Fabrication steps: snap the stepped dimensions, then re-solve the others.
+    fn snap_and_resolve(&mut self, ctx: &Context<'_, '_>) -> Result<(), DesignError> {
+        let vars = &ctx.design.sizes;
+        for (z, v) in self.z.iter_mut().zip(vars) {
+            if let Some(step) = v.step {
+                let snapped = (*z / step).round() * step;
+                *z = snapped.clamp(v.min, v.max);
+            }
+        }
+        self.eval = ctx.evaluate(&self.z)?;
+        let free: Vec<bool> = vars.iter().map(|v| v.step.is_none()).collect();
+        if free.iter().any(|f| *f) {
+            self.mu = 1e-3;
+            self.descend(ctx, &free)?;
+        }
+        Ok(())
+    }
+}
+
+/// Apply sizes `z` to a copy of the network. A sized width gives its channel a section of its
+/// own, so shared sections stay as they were; nodes and channel ends do not change.
+fn apply(network: &Network, vars: &[SizeVar], z: &[f64]) -> Result<Network, DesignError> {
+    let mut net = network.clone();
+    for (v, &val) in vars.iter().zip(z) {
+        match v.dim {
+            SizeDim::Length => net.channels[v.channel.0].length = Length::from_si(val),
+            SizeDim::Width => {
+                let section = sized_section(&net, v, val)?;
+                net.sections.push(section);
+                net.channels[v.channel.0].section = SectionId(net.sections.len() - 1);
+            }
+        }
+    }
+    Ok(net)
+}
+
+/// The section of `v`'s channel with its width set to `value`, with its closed-form figures.
+fn sized_section(net: &Network, v: &SizeVar, value: f64) -> Result<Section, DesignError> {
+    let ch = &net.channels[v.channel.0];
+    let unsupported = |shape: &Shape| DesignError::WidthUnsupported {
+        channel: ch.name.clone(),
+        shape: shape.kind(),
+    };
+    let shape = &net.sections[ch.section.0].shape;
+    let new = with_dimension(shape, "width", value).ok_or_else(|| unsupported(shape))?;
+    let figures = new.analytic_figures().ok_or_else(|| unsupported(&new))?;
+    Ok(Section {
+        name: format!("{}.section", ch.name),
+        named: false,
+        shape: new,
+        figures,
+    })
+}
+
+/// The shape with its width (or a circle's diameter) or height set to `value`, when the shape
+/// has a closed form with that dimension.
+pub fn with_dimension(shape: &Shape, dim: &str, value: f64) -> Option<Shape> {
+    let v = Length::from_si(value);
+    Some(match (shape, dim) {
+        (Shape::Rectangle { height, .. }, "width") => Shape::Rectangle {
+            width: v,
+            height: *height,
+        },
+        (Shape::Rectangle { width, .. }, "height") => Shape::Rectangle {
+            width: *width,
+            height: v,
+        },
+        (Shape::Ellipse { height, .. }, "width") => Shape::Ellipse {
+            width: v,
+            height: *height,
+        },
+        (Shape::Ellipse { width, .. }, "height") => Shape::Ellipse {
+            width: *width,
+            height: v,
+        },
+        (Shape::Plates { gap, .. }, "width") => Shape::Plates {
+            gap: *gap,
+            width: v,
+        },
+        (Shape::Plates { width, .. }, "height") => Shape::Plates {
+            gap: v,
+            width: *width,
+        },
+        (Shape::Circle { .. }, "width") => Shape::Circle { diameter: v },
+        _ => return None,
+    })
+}
+
+/// A dimension's current value.
+pub fn dimension(shape: &Shape, dim: &str) -> Option<f64> {
+    Some(match (shape, dim) {
+        (
+            Shape::Rectangle { width, .. }
+            | Shape::Ellipse { width, .. }
+            | Shape::Plates { width, .. },
+            "width",
+        ) => width.si(),
+        (Shape::Rectangle { height, .. } | Shape::Ellipse { height, .. }, "height") => height.si(),
+        (Shape::Plates { gap, .. }, "height") => gap.si(),
+        (Shape::Circle { diameter }, "width") => diameter.si(),
+        _ => return None,
+    })
+}
