@@ -353,7 +353,7 @@ fn section_shape(req: &SectionRequest<'_>) -> Result<(Shape, Option<f64>, String
                 ))
             })?;
             Ok((
-                chip.network.sections[id.0].shape.clone(),
+                chip.network.sections[id].shape.clone(),
                 Some(chip.network.fluid.viscosity.si()),
                 format!("section '{name}' of {}", chip.source.origin),
             ))

@@ -61,7 +61,7 @@ pub fn tuned_edits(chip: &Chip, r: &TuneResult, digits: usize) -> Vec<Edit> {
     r.settings
         .iter()
         .map(|s| {
-            let node = &chip.network.nodes[s.node.0];
+            let node = &chip.network.nodes[s.node];
             let (key, value) = match node.port {
                 Port::Flow(_) => (
                     "flow",
@@ -117,13 +117,13 @@ pub fn sized_edits(chip: &Chip, r: &SizeResult, digits: usize) -> Result<Vec<Edi
     r.sizes
         .iter()
         .map(|s| {
-            let ch = &r.network.channels[s.var.channel.0];
+            let ch = &r.network.channels[s.var.channel];
             let value = match s.var.dim {
                 SizeDim::Length => {
                     NewValue::Scalar(length_text(s.after, s.var.step, digits, 1e3, "mm"))
                 }
                 SizeDim::Width => NewValue::Mapping(
-                    section_fields(&r.network.sections[ch.section.0].shape, s.var.step, digits)
+                    section_fields(&r.network.sections[ch.section].shape, s.var.step, digits)
                         .ok_or_else(|| rewrite_failed(chip, "a section"))?,
                 ),
             };

@@ -23,6 +23,7 @@ pub mod copies;
 pub mod error;
 pub mod fluid;
 pub mod format;
+pub mod index_vec;
 pub mod network;
 pub mod output;
 pub mod plots;

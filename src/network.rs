@@ -11,6 +11,7 @@
 //! - every value is SI.
 
 use crate::fluid::Fluid;
+use crate::index_vec::IdVec;
 use crate::section::numeric::NumericOptions;
 use crate::section::{GeometryKey, SectionFigures, Shape};
 use crate::units::{Length, Pressure, VolumeFlow};
@@ -29,6 +30,10 @@ pub struct SectionId(pub usize);
 /// Index of a channel in [`Network::channels`].
 #[derive(Clone, Copy, Debug, PartialEq, Eq, Hash)]
 pub struct ChannelId(pub usize);
+
+crate::impl_id!(NodeId);
+crate::impl_id!(SectionId);
+crate::impl_id!(ChannelId);
 
 /// What drives or constrains a node.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -78,9 +83,9 @@ pub struct Channel {
 #[derive(Clone, Debug)]
 pub struct Network {
     pub fluid: Fluid,
-    pub nodes: Vec<Node>,
-    pub sections: Vec<Section>,
-    pub channels: Vec<Channel>,
+    pub nodes: IdVec<NodeId, Node>,
+    pub sections: IdVec<SectionId, Section>,
+    pub channels: IdVec<ChannelId, Channel>,
     /// Highest gauge pressure the chip is rated for, if given.
     pub pressure_rating: Option<Pressure>,
     graph: UnGraph<NodeId, ChannelId>,
@@ -495,9 +500,9 @@ impl NetworkBuilder {
         }
         Ok(Network {
             fluid: self.fluid,
-            nodes: self.nodes,
-            sections: self.sections,
-            channels: self.channels,
+            nodes: self.nodes.into(),
+            sections: self.sections.into(),
+            channels: self.channels.into(),
             pressure_rating: self.pressure_rating,
             graph,
         })
@@ -517,7 +522,7 @@ impl Network {
             .edges(petgraph::graph::NodeIndex::new(node.0))
             .map(move |e| {
                 let c = *e.weight();
-                let ch = &self.channels[c.0];
+                let ch = &self.channels[c];
                 (c, if ch.from == node { ch.to } else { ch.from })
             })
     }
@@ -539,7 +544,7 @@ impl Network {
             .collect();
         let mut stack: Vec<NodeId> = (0..self.nodes.len())
             .map(NodeId)
-            .filter(|&i| degree[i.0] == 1 && self.nodes[i.0].port == Port::Junction)
+            .filter(|&i| degree[i.0] == 1 && self.nodes[i].port == Port::Junction)
             .collect();
         while let Some(leaf) = stack.pop() {
             let Some((c, other)) = self.incident(leaf).find(|(c, _)| !dead[c.0]) else {
@@ -548,7 +553,7 @@ impl Network {
             dead[c.0] = true;
             degree[leaf.0] -= 1;
             degree[other.0] -= 1;
-            if degree[other.0] == 1 && self.nodes[other.0].port == Port::Junction {
+            if degree[other.0] == 1 && self.nodes[other].port == Port::Junction {
                 stack.push(other);
             }
         }
@@ -557,8 +562,8 @@ impl Network {
 
     /// Hydraulic resistance of a channel, R = μ·L/K [Pa·s/m³].
     pub fn resistance(&self, channel: ChannelId) -> f64 {
-        let c = &self.channels[channel.0];
-        let s = &self.sections[c.section.0];
+        let c = &self.channels[channel];
+        let s = &self.sections[c.section];
         s.figures.resistance_per_length(self.fluid.viscosity.si()) * c.length.si()
     }
 
@@ -577,7 +582,7 @@ impl Network {
 
     /// The section of a channel.
     pub fn section_of(&self, channel: ChannelId) -> &Section {
-        &self.sections[self.channels[channel.0].section.0]
+        &self.sections[self.channels[channel].section]
     }
 }
 

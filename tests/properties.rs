@@ -118,7 +118,7 @@ proptest! {
         }
         // Mass conservation over the whole chip: port flows sum to zero.
         let total: f64 = sol.node_net_inflow.iter().enumerate()
-            .filter(|(i, _)| !matches!(net.nodes[*i].port, Port::Junction))
+            .filter(|(i, _)| !matches!(net.nodes[NodeId(*i)].port, Port::Junction))
             .map(|(_, q)| q).sum();
         let scale: f64 = sol.node_net_inflow.iter().map(|q| q.abs()).sum::<f64>().max(1e-30);
         prop_assert!(total.abs() <= 1e-9 * scale + 1e-12 * qmax, "net {total} of {scale}");

@@ -70,7 +70,7 @@ impl SteadyState {
             .incident(NodeId(node))
             .filter_map(|(c, other)| {
                 let q = self.channels[c.0].flow;
-                let forward = network.channels[c.0].from.0 == node;
+                let forward = network.channels[c].from.0 == node;
                 match (forward, q) {
                     (true, q) if q > 0.0 => Some((c.0, other.0, q)),
                     (false, q) if q < 0.0 => Some((c.0, other.0, -q)),
@@ -84,7 +84,7 @@ impl SteadyState {
 
     /// The operating point of node `i` if it is a port.
     pub fn port(&self, network: &Network, i: usize) -> Option<PortState> {
-        match network.nodes[i].port {
+        match network.nodes[NodeId(i)].port {
             Port::Junction => None,
             Port::Pressure(_) | Port::Flow(_) => Some(PortState {
                 pressure: self.solution.pressures[i],
@@ -116,7 +116,7 @@ pub fn derive(network: &Network, solution: FlowSolution) -> SteadyState {
         .enumerate()
         .map(|(k, c)| {
             let q = solution.flows[k] + 0.0; // never −0
-            let fig = &network.sections[c.section.0].figures;
+            let fig = &network.sections[c.section].figures;
             let u = q / fig.area;
             let dp = if q == 0.0 {
                 0.0

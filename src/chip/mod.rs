@@ -65,13 +65,13 @@ impl Chip {
         }
         let channel = name.strip_suffix(".section")?;
         let id = self.network.channel_id(channel)?;
-        Some(self.network.channels[id.0].section)
+        Some(self.network.channels[id].section)
     }
 
     /// The name a channel's section is known by in the file.
     pub fn section_label(&self, channel: ChannelId) -> String {
-        let c = &self.network.channels[channel.0];
-        let s = &self.network.sections[c.section.0];
+        let c = &self.network.channels[channel];
+        let s = &self.network.sections[c.section];
         if s.named {
             s.name.clone()
         } else {
@@ -91,7 +91,7 @@ impl Chip {
         names.extend(
             net.channels
                 .iter()
-                .filter(|c| !net.sections[c.section.0].named)
+                .filter(|c| !net.sections[c.section].named)
                 .map(|c| format!("{}.section", c.name)),
         );
         names

@@ -149,7 +149,7 @@ pub(super) fn to_design(
         let id: NodeId = net
             .node_id(name)
             .ok_or_else(|| at(&["nodes", name], "unknown node"))?;
-        let (dim, value) = match net.nodes[id.0].port {
+        let (dim, value) = match net.nodes[id].port {
             Port::Pressure(p) => (Dimension::Pressure, p.si()),
             Port::Flow(q) => (Dimension::VolumeFlow, q.si()),
             Port::Junction => {

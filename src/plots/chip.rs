@@ -11,7 +11,7 @@
 use super::{drawing, text_style, Figure, ALERT_VERMILLION, GRID_GREY, INK};
 use crate::analysis::SteadyState;
 use crate::chip::Chip;
-use crate::network::{Network, Port};
+use crate::network::{ChannelId, Network, Port};
 use crate::report::fmt_sig;
 use crate::units::display;
 use plotters::coord::Shift;
@@ -486,7 +486,7 @@ impl Figure for ChipPicture<'_> {
                 let (nx, ny) = to_px(self.layout.nodes[i]);
                 for (k, q) in outgoing {
                     let pts = &self.layout.channels[k];
-                    let far = if net.channels[k].from.0 == i {
+                    let far = if net.channels[ChannelId(k)].from.0 == i {
                         pts[1]
                     } else {
                         pts[pts.len() - 2]

@@ -5,7 +5,7 @@
 use super::{drawing, Figure, GRID_GREY, INK};
 use crate::analysis::SteadyState;
 use crate::chip::Chip;
-use crate::network::Port;
+use crate::network::{ChannelId, NodeId, Port};
 use crate::units::display;
 use plotters::coord::Shift;
 use plotters::prelude::*;
@@ -59,17 +59,17 @@ impl PressurePicture {
                     .filter(|(_, to, _)| !seen[*to])
                     .max_by(|a, b| a.2.total_cmp(&b.2).then(b.0.cmp(&a.0)));
                 let Some((k, to, _)) = next else { break };
-                dist += network.channels[k].length.si() * 1e3;
+                dist += network.channels[ChannelId(k)].length.si() * 1e3;
                 pts.push((dist, display::mbar(p[to])));
                 seen[to] = true;
                 cur = to;
-                if !matches!(network.nodes[to].port, Port::Junction) {
+                if !matches!(network.nodes[NodeId(to)].port, Port::Junction) {
                     break;
                 }
             }
             if pts.len() > 1 {
                 paths.push(PressurePath {
-                    label: format!("{} → {}", node.name, network.nodes[cur].name),
+                    label: format!("{} → {}", node.name, network.nodes[NodeId(cur)].name),
                     points: pts,
                 });
             }

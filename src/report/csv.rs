@@ -102,9 +102,9 @@ pub(crate) fn solve_table(
         vec![
             "channel".into(),
             c.name.clone(),
-            network.sections[c.section.0].shape.kind().into(),
-            network.nodes[c.from.0].name.clone(),
-            network.nodes[c.to.0].name.clone(),
+            network.sections[c.section].shape.kind().into(),
+            network.nodes[c.from].name.clone(),
+            network.nodes[c.to].name.clone(),
             String::new(),
             String::new(),
             n(s.flow),

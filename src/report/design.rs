@@ -6,14 +6,14 @@ use super::json::SCHEMA_VERSION;
 use crate::analysis::design::{SizeDim, SizeResult, TargetOutcome, TuneResult};
 use crate::chip::Chip;
 use crate::commands::{Changed, SensitivityTable};
-use crate::network::{Network, Port};
+use crate::network::{Network, NodeId, Port};
 use crate::serpentine::{Serpentine, SerpentineError};
 use crate::units::display;
 use serde::Serialize;
 use std::io;
 
 fn value_text(network: &Network, node: usize, v: f64) -> String {
-    match network.nodes[node].port {
+    match network.nodes[NodeId(node)].port {
         Port::Flow(_) => format!("{} µL/min", fmt_sig(display::ul_per_min(v), 6)),
         _ => format!("{} mbar", fmt_sig(display::mbar(v), 6)),
     }
@@ -120,8 +120,8 @@ pub(crate) fn tune_json(
             .settings
             .iter()
             .map(|s| JsonSetting {
-                node: &network.nodes[s.node.0].name,
-                kind: if matches!(network.nodes[s.node.0].port, Port::Flow(_)) {
+                node: &network.nodes[s.node].name,
+                kind: if matches!(network.nodes[s.node].port, Port::Flow(_)) {
                     "flow"
                 } else {
                     "pressure"
@@ -145,7 +145,7 @@ pub fn tune_report(chip: &Chip, r: &TuneResult) -> String {
     for s in &r.settings {
         out.push_str(&format!(
             "  {:<16} {:>22} → {:>22}   bounds [{}, {}]{}\n",
-            network.nodes[s.node.0].name,
+            network.nodes[s.node].name,
             value_text(network, s.node.0, s.before),
             value_text(network, s.node.0, s.after),
             value_text(network, s.node.0, s.min),
@@ -224,7 +224,7 @@ fn serp(
         return None;
     }
     let net = &r.network;
-    let width = net.sections[net.channels[s.var.channel.0].section.0]
+    let width = net.sections[net.channels[s.var.channel].section]
         .shape
         .overall_width();
     Some(crate::serpentine::layout(s.after, run, pitch, width))
@@ -250,7 +250,7 @@ pub(crate) fn size_json(
             .sizes
             .iter()
             .map(|s| JsonSize {
-                channel: &network.channels[s.var.channel.0].name,
+                channel: &network.channels[s.var.channel].name,
                 dimension: if s.var.dim == SizeDim::Length {
                     "length"
                 } else {
@@ -294,7 +294,7 @@ pub fn size_report(chip: &Chip, r: &SizeResult, run: f64, pitch: f64) -> String 
         };
         out.push_str(&format!(
             "  {:<16} {:<6} {:>12} {unit} → {:>12} {unit}   bounds [{}, {}] {unit}{}\n",
-            network.channels[s.var.channel.0].name,
+            network.channels[s.var.channel].name,
             dim,
             fmt_sig(s.before * k, 6),
             fmt_sig(s.after * k, 6),
@@ -370,8 +370,8 @@ pub(crate) fn sensitivity_json<'a>(
             .rows
             .iter()
             .map(|x| JsonSens {
-                target_channel: &network.channels[x.target_channel.0].name,
-                channel: &network.channels[x.channel.0].name,
+                target_channel: &network.channels[x.target_channel].name,
+                channel: &network.channels[x.channel].name,
                 d_flow_d_width_m3_per_s_per_m: x.d_width.map(z),
                 d_flow_d_height_m3_per_s_per_m: x.d_height.map(z),
                 d_flow_d_length_m3_per_s_per_m: z(x.d_length),
@@ -409,8 +409,8 @@ pub(crate) fn sensitivity_csv(
         t.rows.iter().map(|x| {
             vec![
                 "sensitivity".into(),
-                network.channels[x.target_channel.0].name.clone(),
-                network.channels[x.channel.0].name.clone(),
+                network.channels[x.target_channel].name.clone(),
+                network.channels[x.channel].name.clone(),
                 num(x.d_width),
                 num(x.d_height),
                 n(x.d_length),
@@ -454,8 +454,8 @@ pub fn sensitivity_report(network: &Network, t: &SensitivityTable) -> String {
     for x in &t.rows {
         out.push_str(&format!(
             "  {:<14} {:<14} {:>12} {:>12} {:>12} {:>9} {:>9} {:>9}\n",
-            network.channels[x.target_channel.0].name,
-            network.channels[x.channel.0].name,
+            network.channels[x.target_channel].name,
+            network.channels[x.channel].name,
             per_um(x.d_width),
             per_um(x.d_height),
             fmt_sig(display::ul_per_min(x.d_length) * 1e-3, 4),
@@ -486,7 +486,7 @@ pub(crate) fn tune_csv(chip: &Chip, r: &TuneResult, tables: &mut Tables<'_>) -> 
             "at_bound",
         ],
         r.settings.iter().map(|s| {
-            let node = &network.nodes[s.node.0];
+            let node = &network.nodes[s.node];
             vec![
                 "setting".into(),
                 node.name.clone(),
@@ -531,7 +531,7 @@ pub(crate) fn size_csv(
             let folded = serp(r, s, run, pitch).and_then(Result::ok);
             vec![
                 "size".into(),
-                network.channels[s.var.channel.0].name.clone(),
+                network.channels[s.var.channel].name.clone(),
                 match s.var.dim {
                     SizeDim::Length => "length".into(),
                     SizeDim::Width => "width".into(),

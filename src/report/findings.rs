@@ -10,8 +10,8 @@ use serde::Serialize;
 /// The place of a finding by name: ("node" | "channel", name).
 pub(crate) fn place_name(chip: &Chip, place: Place) -> (&'static str, &str) {
     match place {
-        Place::Node(n) => ("node", chip.network.nodes[n.0].name.as_str()),
-        Place::Channel(c) => ("channel", chip.network.channels[c.0].name.as_str()),
+        Place::Node(n) => ("node", chip.network.nodes[n].name.as_str()),
+        Place::Channel(c) => ("channel", chip.network.channels[c].name.as_str()),
     }
 }
 

@@ -107,8 +107,8 @@ pub fn html_page(chip: &Chip, state: &SteadyState, pictures: &[(String, String)]
         .map(|(c, s)| {
             vec![
                 c.name.clone(),
-                network.nodes[c.from.0].name.clone(),
-                network.nodes[c.to.0].name.clone(),
+                network.nodes[c.from].name.clone(),
+                network.nodes[c.to].name.clone(),
                 fmt_sig(display::ul_per_min(s.flow), 4),
                 fmt_sig(display::mbar(s.pressure_drop), 4),
                 fmt_sig(s.wall_shear_max, 3),

@@ -145,8 +145,8 @@ pub(crate) fn solve_report<'a>(chip: &'a Chip, state: &'a SteadyState) -> JsonRe
             .enumerate()
             .map(|(k, (c, s))| JsonChannel {
                 name: &c.name,
-                from: &network.nodes[c.from.0].name,
-                to: &network.nodes[c.to.0].name,
+                from: &network.nodes[c.from].name,
+                to: &network.nodes[c.to].name,
                 section: chip.section_label(crate::network::ChannelId(k)),
                 length_m: c.length.si(),
                 flow_m3_per_s: s.flow,

@@ -3,7 +3,7 @@
 use super::{fmt_sig, CAUTION};
 use crate::analysis::SteadyState;
 use crate::chip::Chip;
-use crate::network::{Network, Port};
+use crate::network::{ChannelId, Network, NodeId, Port};
 use crate::units::display;
 
 // ---------------------------------------------------------------------------------------
@@ -115,13 +115,13 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
     ports.render(&mut out);
 
     let junctions: Vec<usize> = (0..network.nodes.len())
-        .filter(|&i| matches!(network.nodes[i].port, Port::Junction))
+        .filter(|&i| matches!(network.nodes[NodeId(i)].port, Port::Junction))
         .collect();
     if !junctions.is_empty() {
         let mut nodes = TextTable::new(&["Junction", "Pressure [mbar]"], 1);
         for i in junctions {
             nodes.add_row(vec![
-                network.nodes[i].name.clone(),
+                network.nodes[NodeId(i)].name.clone(),
                 fmt_sig(display::mbar(sol.pressures[i]), 4),
             ]);
         }
@@ -142,7 +142,7 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
         2,
     );
     for (c, s) in network.channels.iter().zip(&state.channels) {
-        let (a, b) = (&network.nodes[c.from.0].name, &network.nodes[c.to.0].name);
+        let (a, b) = (&network.nodes[c.from].name, &network.nodes[c.to].name);
         let direction = if s.flow == 0.0 {
             format!("{a} ─ {b} (no flow)")
         } else if s.flow > 0.0 {
@@ -209,7 +209,7 @@ pub fn shear_section(network: &Network, state: &SteadyState, out: &mut String) {
         2,
     );
     for k in worst_first(state) {
-        let (c, s) = (&network.channels[k], &state.channels[k]);
+        let (c, s) = (&network.channels[ChannelId(k)], &state.channels[k]);
         let status = match s.shear_margin {
             Some(m) if m < 1.0 => "OVER LIMIT",
             Some(_) => "ok",
@@ -332,7 +332,7 @@ pub fn check_text(chip: &Chip, state: &SteadyState, passed: bool) -> String {
         out.push_str(&format!(
             "\nHighest pressure: {} mbar at node '{}'.\n",
             fmt_sig(display::mbar(state.solution.pressures[i]), 4),
-            network.nodes[i].name
+            network.nodes[NodeId(i)].name
         ));
     }
     findings_section(chip, state, &mut out);

@@ -45,7 +45,7 @@ pub(super) fn measure_gradients(
 fn adjoint_rhs(network: &Network, g: &[f64], r: &Row) -> Vec<f64> {
     let mut col = vec![0.0; network.nodes.len()];
     for &(k, c) in &r.flow_coeffs {
-        let ch = &network.channels[k];
+        let ch = &network.channels[ChannelId(k)];
         col[ch.from.0] += c * g[k];
         col[ch.to.0] -= c * g[k];
     }
@@ -149,8 +149,8 @@ fn sensitivity(
     q: f64,
     dq_dg: f64,
 ) -> Sensitivity {
-    let ch = &network.channels[channel.0];
-    let shape = &network.sections[ch.section.0].shape;
+    let ch = &network.channels[channel];
+    let shape = &network.sections[ch.section].shape;
     let rel = |d: f64, x: f64| (q != 0.0).then(|| d * x / q);
     // g = K/(μL): dg/dL = −g/L; dg/dw = −g·d ln R'/dw.
     let length = ch.length.si();

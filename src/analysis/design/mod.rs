@@ -54,5 +54,5 @@ pub enum DesignError {
 
 /// Port kind for reports.
 pub fn is_pressure_port(network: &Network, node: NodeId) -> bool {
-    matches!(network.nodes[node.0].port, Port::Pressure(_))
+    matches!(network.nodes[node].port, Port::Pressure(_))
 }

@@ -16,7 +16,7 @@ use super::super::kirchhoff::{drive_values, FlowSolution, Solver};
 use super::adjoint::{dlog_resistance, measure_gradients};
 use super::targets::{outcomes, rows, TargetOutcome, MET};
 use super::{Design, DesignError, SizeDim, SizeVar};
-use crate::network::{Network, Section, SectionId};
+use crate::network::{ChannelId, Network, Section, SectionId};
 use crate::section::Shape;
 use crate::units::Length;
 use std::cell::Cell;
@@ -135,11 +135,11 @@ fn norm(r: &[f64]) -> f64 {
 
 /// The current value of a size variable.
 fn current(network: &Network, v: &SizeVar) -> Result<f64, DesignError> {
-    let ch = &network.channels[v.channel.0];
+    let ch = &network.channels[v.channel];
     Ok(match v.dim {
         SizeDim::Length => ch.length.si(),
         SizeDim::Width => {
-            let shape = &network.sections[ch.section.0].shape;
+            let shape = &network.sections[ch.section].shape;
             dimension(shape, "width")
                 .filter(|_| shape.analytic_figures().is_some())
                 .ok_or_else(|| DesignError::WidthUnsupported {
@@ -192,7 +192,7 @@ impl Context<'_, '_> {
                 match v.dim {
                     SizeDim::Length => -g[m] / zv,
                     SizeDim::Width => {
-                        let shape = &net.sections[net.channels[m].section.0].shape;
+                        let shape = &net.sections[net.channels[ChannelId(m)].section].shape;
                         -g[m] * dlog_resistance(shape, "width").unwrap_or(0.0)
                     }
                 }
@@ -338,11 +338,11 @@ fn apply(network: &Network, vars: &[SizeVar], z: &[f64]) -> Result<Network, Desi
     let mut net = network.clone();
     for (v, &val) in vars.iter().zip(z) {
         match v.dim {
-            SizeDim::Length => net.channels[v.channel.0].length = Length::from_si(val),
+            SizeDim::Length => net.channels[v.channel].length = Length::from_si(val),
             SizeDim::Width => {
                 let section = sized_section(&net, v, val)?;
                 net.sections.push(section);
-                net.channels[v.channel.0].section = SectionId(net.sections.len() - 1);
+                net.channels[v.channel].section = SectionId(net.sections.len() - 1);
             }
         }
     }
@@ -351,12 +351,12 @@ fn apply(network: &Network, vars: &[SizeVar], z: &[f64]) -> Result<Network, Desi
 
 /// The section of `v`'s channel with its width set to `value`, with its closed-form figures.
 fn sized_section(net: &Network, v: &SizeVar, value: f64) -> Result<Section, DesignError> {
-    let ch = &net.channels[v.channel.0];
+    let ch = &net.channels[v.channel];
     let unsupported = |shape: &Shape| DesignError::WidthUnsupported {
         channel: ch.name.clone(),
         shape: shape.kind(),
     };
-    let shape = &net.sections[ch.section.0].shape;
+    let shape = &net.sections[ch.section].shape;
     let new = with_dimension(shape, "width", value).ok_or_else(|| unsupported(shape))?;
     let figures = new.analytic_figures().ok_or_else(|| unsupported(&new))?;
     Ok(Section {

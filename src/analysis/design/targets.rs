@@ -183,19 +183,19 @@ fn describe(
 ) -> (String, f64, f64) {
     match kind {
         TargetKind::ChannelFlow { channel, flow } => (
-            format!("flow in {}", network.channels[channel.0].name),
+            format!("flow in {}", network.channels[*channel].name),
             *flow,
             flows[channel.0],
         ),
         TargetKind::NodePressure { node, pressure } => (
-            format!("pressure at {}", network.nodes[node.0].name),
+            format!("pressure at {}", network.nodes[*node].name),
             *pressure,
             pressures[node.0],
         ),
         TargetKind::Split { channels, ratio } => {
             let names: Vec<&str> = channels
                 .iter()
-                .map(|c| network.channels[c.0].name.as_str())
+                .map(|c| network.channels[*c].name.as_str())
                 .collect();
             let ratios: Vec<String> = ratio.iter().map(|r| format!("{r}")).collect();
             let total: f64 = channels.iter().map(|c| flows[c.0]).sum();

@@ -19,7 +19,7 @@ use super::{
     balance_residuals_for, channel_flows, conductances, drive_values, node_outflows, worst,
     FlowSolution, KirchhoffSystem, SolveError, MAX_REFINEMENTS, RESIDUAL_LIMIT,
 };
-use crate::network::{Network, Port};
+use crate::network::{Network, NodeId, Port};
 use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky};
 use std::borrow::Cow;
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -299,7 +299,7 @@ impl<'a> Factor<'a> {
             self.refine(b, &mut x, check)?;
         if residual > RESIDUAL_LIMIT || !residual.is_finite() {
             return Err(SolveError::Residual {
-                node: self.network.nodes[node].name.clone(),
+                node: self.network.nodes[NodeId(node)].name.clone(),
                 residual,
                 limit: RESIDUAL_LIMIT,
             });
@@ -335,7 +335,9 @@ impl<'a> Factor<'a> {
         let (refinements, (at, residual)) = self.refine(b, &mut x, check)?;
         if residual > RESIDUAL_LIMIT || !residual.is_finite() {
             return Err(SolveError::Adjoint {
-                node: self.network.nodes[self.system.node(at)].name.clone(),
+                node: self.network.nodes[NodeId(self.system.node(at))]
+                    .name
+                    .clone(),
                 residual,
                 limit: RESIDUAL_LIMIT,
             });
@@ -518,7 +520,7 @@ mod tests {
         }
         // A network with a different topology is refused.
         let mut other = mesh(100e-6);
-        other.channels[3].to = crate::network::NodeId(3);
+        other.channels[crate::network::ChannelId(3)].to = crate::network::NodeId(3);
         assert_eq!(
             solver.conductances_of(&other),
             Err(SolveError::TopologyChanged)
