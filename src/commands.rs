@@ -420,6 +420,9 @@ pub struct DesignRequest<'a> {
     /// Serpentine straight run and centre-line pitch for long sized lengths [m].
     pub run: f64,
     pub pitch: f64,
+    /// Leave wall-shear limits and the pressure rating out of the problem (the old
+    /// behaviour); they are still checked and reported afterwards.
+    pub ignore_limits: bool,
 }
 
 fn design_error(chip: &Chip) -> impl Fn(design::DesignError) -> Error + '_ {

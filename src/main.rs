@@ -64,6 +64,9 @@ enum Command {
         /// Write the tuned chip to this new file.
         #[arg(long, short)]
         output: Option<PathBuf>,
+        /// Do not hold wall-shear limits and the pressure rating as constraints.
+        #[arg(long)]
+        ignore_limits: bool,
     },
     /// Size channel lengths/widths (marked 'size:') to meet the chip's targets, drives fixed.
     Size {
@@ -81,6 +84,9 @@ enum Command {
         /// Centre-line pitch of the serpentine, e.g. '400 um'.
         #[arg(long, default_value = "400 um")]
         pitch: String,
+        /// Do not hold wall-shear limits and the pressure rating as constraints.
+        #[arg(long)]
+        ignore_limits: bool,
     },
     /// Draw the chip: flow splits (default) or pressure along the flow paths, to SVG or PNG.
     Plot {
@@ -232,10 +238,19 @@ impl ChipArg {
     }
 }
 
+/// A positive, finite length argument.
 fn length_arg(flag: &str, text: &str) -> Result<f64, rillnet::Error> {
-    text.parse::<rillnet::units::Length>()
+    let l = text
+        .parse::<rillnet::units::Length>()
         .map(|l| l.si())
-        .map_err(|e| input_error(flag, e.to_string()))
+        .map_err(|e| input_error(flag, e.to_string()))?;
+    if !(l.is_finite() && l > 0.0) {
+        return Err(input_error(
+            flag,
+            format!("must be a positive length, e.g. '10 mm'; got '{text}'"),
+        ));
+    }
+    Ok(l)
 }
 
 /// Refuse a picture path whose extension rillnet cannot draw, before any work.
@@ -299,6 +314,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             file,
             format,
             output,
+            ignore_limits,
         } => {
             let arg = chip(file)?;
             let outcome = commands::tune(&commands::DesignRequest {
@@ -306,6 +322,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 output: output.as_deref(),
                 run: 0.0,
                 pitch: 0.0,
+                ignore_limits: *ignore_limits,
             })?;
             (outcome, to_stdout(*format), vec![arg.path])
         }
@@ -315,6 +332,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             output,
             run,
             pitch,
+            ignore_limits,
         } => {
             let (run, pitch) = (length_arg("--run", run)?, length_arg("--pitch", pitch)?);
             let arg = chip(file)?;
@@ -323,6 +341,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 output: output.as_deref(),
                 run,
                 pitch,
+                ignore_limits: *ignore_limits,
             })?;
             (outcome, to_stdout(*format), vec![arg.path])
         }
