@@ -24,6 +24,7 @@ pub mod error;
 pub mod fluid;
 pub mod format;
 pub mod index_vec;
+pub mod input;
 pub mod network;
 pub mod output;
 pub mod plots;

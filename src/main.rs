@@ -3,8 +3,9 @@
 //! usage or output that could not be written, 3 results withheld by the solver).
 
 use clap::{CommandFactory, Parser, Subcommand, ValueEnum};
-use rillnet::commands::{self, ChipInput, Outcome, SensitivityChoice};
+use rillnet::commands::{self, Outcome, SensitivityChoice};
 use rillnet::error::exit;
+use rillnet::input::{positive_length, ChipArg};
 use rillnet::report::Format;
 use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
@@ -201,58 +202,6 @@ fn input_error(flag: &str, message: String) -> rillnet::Error {
     rillnet::Error::Input(rillnet::format::InputError::whole_file(flag, message))
 }
 
-/// A chip argument: a path, or the text of standard input for `-`.
-struct ChipArg {
-    path: PathBuf,
-    stdin: Option<(String, rillnet::format::Syntax)>,
-}
-
-impl ChipArg {
-    fn new(path: &Path, syntax: Option<SyntaxArg>) -> Result<ChipArg, rillnet::Error> {
-        if path != Path::new("-") {
-            return Ok(ChipArg {
-                path: path.to_path_buf(),
-                stdin: None,
-            });
-        }
-        let text = rillnet::read_limited(std::io::stdin(), "<stdin>")?;
-        let syntax = match syntax {
-            Some(SyntaxArg::Json) => rillnet::format::Syntax::Json,
-            Some(SyntaxArg::Yaml) => rillnet::format::Syntax::Yaml,
-            None => rillnet::format::Syntax::sniff(&text),
-        };
-        Ok(ChipArg {
-            path: path.to_path_buf(),
-            stdin: Some((text, syntax)),
-        })
-    }
-
-    fn input(&self) -> ChipInput<'_> {
-        match &self.stdin {
-            Some((text, syntax)) => ChipInput::Text {
-                text,
-                syntax: *syntax,
-            },
-            None => ChipInput::File(&self.path),
-        }
-    }
-}
-
-/// A positive, finite length argument.
-fn length_arg(flag: &str, text: &str) -> Result<f64, rillnet::Error> {
-    let l = text
-        .parse::<rillnet::units::Length>()
-        .map(|l| l.si())
-        .map_err(|e| input_error(flag, e.to_string()))?;
-    if !(l.is_finite() && l > 0.0) {
-        return Err(input_error(
-            flag,
-            format!("must be a positive length, e.g. '10 mm'; got '{text}'"),
-        ));
-    }
-    Ok(l)
-}
-
 /// Refuse a picture path whose extension rillnet cannot draw, before any work.
 fn picture_arg(path: Option<&Path>) -> Result<(), rillnet::Error> {
     match path {
@@ -261,20 +210,14 @@ fn picture_arg(path: Option<&Path>) -> Result<(), rillnet::Error> {
     }
 }
 
-/// What to do with an outcome: print it in a format, or write it to a new file.
-struct Delivery<'a> {
-    format: Format,
-    output: Option<&'a Path>,
-}
-
 /// Run the command: its outcome and how to deliver it.
 fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), rillnet::Error> {
-    let chip = |file: &Path| ChipArg::new(file, cli.syntax);
-    let to_stdout = |format: OutFormat| Delivery {
-        format: format.into(),
-        output: None,
-    };
-    let (outcome, delivery, inputs): (Outcome, Delivery, Vec<PathBuf>) = match &cli.command {
+    let syntax = cli.syntax.map(|s| match s {
+        SyntaxArg::Json => rillnet::format::Syntax::Json,
+        SyntaxArg::Yaml => rillnet::format::Syntax::Yaml,
+    });
+    let chip = |file: &Path| ChipArg::new(file, syntax);
+    Ok(match &cli.command {
         Command::Solve {
             file,
             format,
@@ -295,11 +238,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 plot: plot.as_deref(),
                 sensitivity: choice,
             })?;
-            let delivery = Delivery {
-                format: (*format).into(),
-                output: output.as_deref(),
-            };
-            (outcome, delivery, vec![arg.path])
+            (outcome, (*format).into(), output.clone(), vec![arg.path])
         }
         Command::Check { file, format, plot } => {
             picture_arg(plot.as_deref())?;
@@ -308,7 +247,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 chip: arg.input(),
                 plot: plot.as_deref(),
             })?;
-            (outcome, to_stdout(*format), vec![arg.path])
+            (outcome, (*format).into(), None, vec![arg.path])
         }
         Command::Tune {
             file,
@@ -324,7 +263,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 pitch: 0.0,
                 ignore_limits: *ignore_limits,
             })?;
-            (outcome, to_stdout(*format), vec![arg.path])
+            (outcome, (*format).into(), None, vec![arg.path])
         }
         Command::Size {
             file,
@@ -334,7 +273,10 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             pitch,
             ignore_limits,
         } => {
-            let (run, pitch) = (length_arg("--run", run)?, length_arg("--pitch", pitch)?);
+            let (run, pitch) = (
+                positive_length("--run", run)?,
+                positive_length("--pitch", pitch)?,
+            );
             let arg = chip(file)?;
             let outcome = commands::size(&commands::DesignRequest {
                 chip: arg.input(),
@@ -343,7 +285,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 pitch,
                 ignore_limits: *ignore_limits,
             })?;
-            (outcome, to_stdout(*format), vec![arg.path])
+            (outcome, (*format).into(), None, vec![arg.path])
         }
         Command::Section {
             spec,
@@ -371,11 +313,8 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 tolerance: *tolerance,
                 plot: plot.as_deref(),
             })?;
-            (
-                outcome,
-                to_stdout(*format),
-                arg.map(|a| a.path).into_iter().collect(),
-            )
+            let inputs = arg.map(|a| a.path).into_iter().collect();
+            (outcome, (*format).into(), None, inputs)
         }
         Command::Plot {
             file,
@@ -395,7 +334,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 },
                 output,
             })?;
-            (outcome, to_stdout(OutFormat::Table), vec![arg.path])
+            (outcome, Format::Table, None, vec![arg.path])
         }
         Command::Report {
             file,
@@ -408,16 +347,10 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 folder: output,
                 into_existing: *into_existing,
             })?;
-            (outcome, to_stdout(OutFormat::Table), vec![arg.path])
+            (outcome, Format::Table, None, vec![arg.path])
         }
         Command::Completions { .. } | Command::Manual => unreachable!("handled before run"),
-    };
-    Ok((
-        outcome,
-        delivery.format,
-        delivery.output.map(Path::to_path_buf),
-        inputs,
-    ))
+    })
 }
 
 /// Write to standard error, ignoring failure (nowhere left to report it).
