@@ -47,6 +47,11 @@ impl Error {
     pub fn exit_code(&self) -> u8 {
         match self {
             Error::Input(_) | Error::Read { .. } | Error::Write { .. } => exit::BAD_INPUT,
+            // A channel too short to resolve is a property of the input, named in the message.
+            Error::Solve {
+                source: SolveError::StiffChannels { .. } | SolveError::NegligibleChannel { .. },
+                ..
+            } => exit::BAD_INPUT,
             Error::Solve { .. } => exit::WITHHELD,
             Error::Design { source, .. } => match source {
                 crate::analysis::design::DesignError::Solve(_) => exit::WITHHELD,

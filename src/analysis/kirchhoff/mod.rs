@@ -17,6 +17,7 @@
 //! Sign convention: a channel's flow is positive from its `from` node to its `to` node; a
 //! port's flow is positive into the chip.
 
+pub mod flows;
 mod session;
 
 pub use session::{AdjointSolution, Factor, Solver};
@@ -50,6 +51,40 @@ pub enum SolveError {
          too many orders of magnitude for double precision"
     )]
     Adjoint {
+        node: String,
+        residual: f64,
+        limit: f64,
+    },
+    #[error(
+        "the flows through {count} channel(s) cannot be resolved in double precision: {listed}. \
+         Their resistance is negligible beside the channels around them (their end pressures agree to \
+         {digits} digits) and they close a loop or join two pressure ports. Merge their ends into one \
+         node, or give them a realistic length and section"
+    )]
+    StiffChannels {
+        count: usize,
+        listed: String,
+        digits: u32,
+        channels: Vec<String>,
+    },
+    #[error(
+        "channel '{channel}' has a resistance {ratio:.1e} times smaller than the channels around it, \
+         beyond what double precision resolves: the flows at node '{node}' miss their balance by \
+         {residual:.1e}. Merge the ends of '{channel}' into one node, or give it a realistic length \
+         and section"
+    )]
+    NegligibleChannel {
+        channel: String,
+        node: String,
+        ratio: f64,
+        residual: f64,
+    },
+    #[error(
+        "the flows do not balance to {limit:e} at node '{node}' (net flow {residual:e} of the largest \
+         flow through it); results withheld. Channel resistances around it may span too many orders \
+         of magnitude for double precision"
+    )]
+    FlowBalance {
         node: String,
         residual: f64,
         limit: f64,
@@ -315,6 +350,7 @@ pub fn balance_residuals_for(
     let n = network.nodes.len();
     let mut imbalance = vec![0.0; n];
     let mut scale = vec![0.0; n];
+    let mut conductance = vec![0.0; n];
     for (c, &gk) in network.channels.iter().zip(g) {
         let (pi, pj) = (pressures[c.from.0], pressures[c.to.0]);
         let q = gk * (pi - pj);
@@ -323,7 +359,15 @@ pub fn balance_residuals_for(
         imbalance[c.to.0] += q;
         scale[c.from.0] += size;
         scale[c.to.0] += size;
+        conductance[c.from.0] += gk;
+        conductance[c.to.0] += gk;
     }
+    let p_max = pressures.iter().fold(0.0f64, |m, p| m.max(p.abs()));
+    // Arioli, Demmel & Duff (1989), SIAM J. Matrix Anal. Appl. 10, 165: where the componentwise
+    // denominator (|A||x| + |b|)_i is below τ = 1000·n·ε times the normwise one
+    // (‖A_i‖·‖x‖∞ + |b_i|), e.g. where pressures have decayed to nothing far down a leaky
+    // line, the normwise denominator is used, so rounding there is not read as an imbalance.
+    let tau = 1000.0 * n as f64 * f64::EPSILON;
     network
         .nodes
         .iter()
@@ -335,7 +379,13 @@ pub fn balance_residuals_for(
                 Port::Junction => 0.0,
                 Port::Flow(_) => d,
             };
-            let s = scale[i] + inj.abs();
+            let componentwise = scale[i] + inj.abs();
+            let normwise = 2.0 * conductance[i] * p_max + inj.abs();
+            let s = if componentwise < tau * normwise {
+                normwise
+            } else {
+                componentwise
+            };
             // 0 where nothing flows at all; NaN (never accepted) where the pressures are.
             Some(if s == 0.0 {
                 0.0

@@ -24,6 +24,11 @@ use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky};
 use std::borrow::Cow;
 use std::sync::atomic::{AtomicUsize, Ordering};
 
+/// A channel whose conductance exceeds the others at its ends by this factor is named as the
+/// cause when the flows do not balance (its resistance is negligible: merging its ends is
+/// the fix).
+const NEGLIGIBLE_RATIO: f64 = 1e6;
+
 /// Solves for one network topology: the Kirchhoff structure ([`KirchhoffSystem`]) and its
 /// symbolic analysis ([`SymbolicCholesky::analyse`]), computed once in [`Solver::new`] and
 /// reused by every [`Solver::factorize`] — for new drives (the matrix does not depend on
@@ -311,6 +316,7 @@ impl<'a> Factor<'a> {
                 *q = 0.0;
             }
         }
+        self.trusted_flows(&pressures, drives, &mut flows)?;
         Ok(FlowSolution {
             node_net_inflow: node_outflows(self.network, &flows),
             pressures,
@@ -319,6 +325,80 @@ impl<'a> Factor<'a> {
             node_residuals: residuals,
             refinements,
         })
+    }
+
+    /// Recover the flows of stiff channels from the balance and check every imposed node's
+    /// net flow (see [`super::flows`]).
+    fn trusted_flows(
+        &self,
+        pressures: &[f64],
+        drives: &[f64],
+        flows: &mut [f64],
+    ) -> Result<(), SolveError> {
+        let network = self.network;
+        let injection: Vec<f64> = network
+            .nodes
+            .iter()
+            .zip(drives)
+            .map(|(n, &d)| {
+                if matches!(n.port, Port::Flow(_)) {
+                    d
+                } else {
+                    0.0
+                }
+            })
+            .collect();
+        let (stiff, unresolved) = super::flows::recover_stiff(
+            network,
+            pressures,
+            &self.g,
+            &injection,
+            &self.dead_end,
+            flows,
+        );
+        if !unresolved.is_empty() {
+            let names: Vec<String> = unresolved
+                .iter()
+                .map(|&c| network.channels[c].name.clone())
+                .collect();
+            let agree = unresolved
+                .iter()
+                .map(|&c| {
+                    let ch = &network.channels[c];
+                    let (pi, pj) = (pressures[ch.from.0], pressures[ch.to.0]);
+                    ((pi.abs() + pj.abs()) / (pi - pj).abs()).log10()
+                })
+                .fold(0.0f64, f64::max);
+            return Err(SolveError::StiffChannels {
+                count: names.len(),
+                listed: names
+                    .iter()
+                    .take(8)
+                    .map(|n| format!("'{n}'"))
+                    .collect::<Vec<_>>()
+                    .join(", "),
+                digits: agree.min(99.0) as u32,
+                channels: names,
+            });
+        }
+        let Some((node, residual)) = super::flows::worst_flow_imbalance(
+            network, pressures, &self.g, &stiff, &injection, flows,
+        ) else {
+            return Ok(());
+        };
+        match super::flows::most_negligible_at(network, &self.g, node) {
+            Some((k, ratio)) if ratio >= NEGLIGIBLE_RATIO => Err(SolveError::NegligibleChannel {
+                channel: network.channels[k].name.clone(),
+                node: network.nodes[node].name.clone(),
+                ratio,
+                residual,
+            }),
+            _ => Err(SolveError::FlowBalance {
+                node: network.nodes[node].name.clone(),
+                residual,
+                limit: super::flows::FLOW_LIMIT,
+            }),
+        }
     }
 
     /// Refine and check one adjoint column (`abs_values` = |A|), then expand λ to the nodes.

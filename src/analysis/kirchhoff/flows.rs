@@ -1,0 +1,197 @@
+//! Channel flows that can be trusted, and the check that they balance.
+//!
+//! A flow computed as Q = g·(p_i − p_j) inherits the rounding of the pressures magnified by
+//! (|p_i| + |p_j|)/|p_i − p_j|: a channel whose resistance is negligible beside its
+//! neighbours has almost equal end pressures, and its computed flow can be wrong in every
+//! digit although every pressure is right to rounding. Such "stiff" channels get their flows
+//! from the flow balance instead: at a node whose balance is imposed (a junction or a flow
+//! port) and where every other channel's flow is trusted, the stiff channel carries the rest.
+//! Peeling such nodes repeatedly recovers every stiff channel that lies on a forest hanging
+//! off trusted flows, in O(nodes + channels). Stiff channels left over (a loop of them, or a
+//! stiff channel with no imposed end) cannot be recovered and are named in the refusal.
+//!
+//! Every solution is then checked on its flows: at each imposed node, the net flow must vanish
+//! to [`FLOW_LIMIT`] relative to the largest flow through the node, with a floor of a few
+//! units of rounding of the largest flow anywhere (so that nodes where the flow has decayed to
+//! nothing are not judged on noise).
+
+use crate::network::{ChannelId, Network, NodeId, Port};
+
+/// Largest relative error accepted on a flow computed from its end pressures, and on a node's
+/// net flow relative to the flows through it.
+pub const FLOW_LIMIT: f64 = 1e-9;
+
+/// A channel is stiff when its conductance exceeds the other channels at either end by this
+/// factor (its resistance is small beside its neighbours').
+pub const STIFF_RATIO: f64 = 1e3;
+
+/// Channels whose computed flow is not trusted: their conductance exceeds the others at their
+/// ends by [`STIFF_RATIO`], and their end pressures agree so closely that the rounding of
+/// g·(p_i − p_j), ε·(|p_i| + |p_j|)/|p_i − p_j| relative, exceeds [`FLOW_LIMIT`]. (A channel
+/// of ordinary resistance with equal end pressures, as in a balanced bridge, carries nearly
+/// nothing and is trusted.) Channels between two pressure ports take their given pressures and
+/// are never stiff; dead-end channels carry exactly nothing.
+fn stiff_channels(network: &Network, pressures: &[f64], g: &[f64], dead: &[bool]) -> Vec<bool> {
+    network
+        .channels
+        .iter()
+        .enumerate()
+        .map(|(k, c)| {
+            let both_set = matches!(network.nodes[c.from].port, Port::Pressure(_))
+                && matches!(network.nodes[c.to].port, Port::Pressure(_));
+            if dead[k] || both_set {
+                return false;
+            }
+            let (pi, pj) = (pressures[c.from.0], pressures[c.to.0]);
+            let size = pi.abs() + pj.abs();
+            let cancels = size > 0.0 && f64::EPSILON * size > FLOW_LIMIT * (pi - pj).abs();
+            cancels && conductance_ratio(network, g, ChannelId(k)) >= STIFF_RATIO
+        })
+        .collect()
+}
+
+/// g_k over the larger of the sums of the other conductances at its two ends (infinite when
+/// it is the only channel at both ends).
+fn conductance_ratio(network: &Network, g: &[f64], k: ChannelId) -> f64 {
+    let c = &network.channels[k];
+    let others = |end: NodeId| -> f64 {
+        network
+            .incident(end)
+            .filter(|(o, _)| *o != k)
+            .map(|(o, _)| g[o.0])
+            .sum()
+    };
+    let ends = others(c.from).max(others(c.to));
+    if ends > 0.0 {
+        g[k.0] / ends
+    } else {
+        f64::INFINITY
+    }
+}
+
+fn imposed(network: &Network, node: NodeId) -> bool {
+    !matches!(network.nodes[node].port, Port::Pressure(_))
+}
+
+/// Replace the flows of stiff channels by the values the flow balance gives. `injection[i]`
+/// is the flow a node injects (a flow port's setting, 0 at a junction). Returns the stiff
+/// mask and the stiff channels that could not be recovered (empty when all were).
+pub fn recover_stiff(
+    network: &Network,
+    pressures: &[f64],
+    g: &[f64],
+    injection: &[f64],
+    dead: &[bool],
+    flows: &mut [f64],
+) -> (Vec<bool>, Vec<ChannelId>) {
+    let stiff = stiff_channels(network, pressures, g, dead);
+    if !stiff.contains(&true) {
+        return (stiff, Vec::new());
+    }
+    let mut unknown = stiff.clone();
+    let mut count = vec![0usize; network.nodes.len()];
+    for (c, _) in network.channels.iter().zip(&unknown).filter(|(_, &u)| u) {
+        count[c.from.0] += 1;
+        count[c.to.0] += 1;
+    }
+    let mut stack: Vec<NodeId> = network
+        .nodes
+        .ids()
+        .filter(|&i| count[i.0] == 1 && imposed(network, i))
+        .collect();
+    while let Some(node) = stack.pop() {
+        let Some((k, other)) = network.incident(node).find(|(c, _)| unknown[c.0]) else {
+            continue;
+        };
+        // Balance at `node`: Σ outflows = injection; solve for channel k.
+        let mut rest = injection[node.0];
+        for (c, _) in network.incident(node).filter(|(c, _)| *c != k) {
+            let ch = &network.channels[c];
+            rest -= if ch.from == node {
+                flows[c.0]
+            } else {
+                -flows[c.0]
+            };
+        }
+        flows[k.0] = if network.channels[k].from == node {
+            rest
+        } else {
+            -rest
+        };
+        unknown[k.0] = false;
+        count[node.0] -= 1;
+        count[other.0] -= 1;
+        if count[other.0] == 1 && imposed(network, other) {
+            stack.push(other);
+        }
+    }
+    let unresolved = unknown
+        .iter()
+        .enumerate()
+        .filter(|(_, &u)| u)
+        .map(|(k, _)| ChannelId(k))
+        .collect();
+    (stiff, unresolved)
+}
+
+/// The node whose net flow misses the balance most, relative to the flows through it, and
+/// that relative miss; `None` when every imposed node balances to [`FLOW_LIMIT`].
+///
+/// A miss within the rounding of the flows computed from pressures at that node,
+/// 64·ε·Σ g_k·(|p_i| + |p_j|) over its channels whose flow came from pressures (not `stiff`
+/// ones, whose flows came from the balance), or within 64·ε of the largest flow of the chip,
+/// is no miss: where nothing flows, flows are that rounding.
+pub fn worst_flow_imbalance(
+    network: &Network,
+    pressures: &[f64],
+    g: &[f64],
+    stiff: &[bool],
+    injection: &[f64],
+    flows: &[f64],
+) -> Option<(NodeId, f64)> {
+    let n = network.nodes.len();
+    let mut net = vec![0.0; n];
+    let mut through = vec![0.0f64; n];
+    let mut noise = vec![0.0; n];
+    for (k, (c, &q)) in network.channels.iter().zip(flows).enumerate() {
+        net[c.from.0] += q;
+        net[c.to.0] -= q;
+        through[c.from.0] = through[c.from.0].max(q.abs());
+        through[c.to.0] = through[c.to.0].max(q.abs());
+        if !stiff[k] {
+            let size = g[k] * (pressures[c.from.0].abs() + pressures[c.to.0].abs());
+            noise[c.from.0] += size;
+            noise[c.to.0] += size;
+        }
+    }
+    // Far down a leaky line flows decay below the smallest normal double; a miss that small
+    // beside the largest flow of the chip is rounding too.
+    let largest = flows
+        .iter()
+        .chain(injection)
+        .fold(0.0f64, |m, q| m.max(q.abs()));
+    let mut worst: Option<(NodeId, f64)> = None;
+    for i in network.nodes.ids().filter(|&i| imposed(network, i)) {
+        let miss = (net[i.0] - injection[i.0]).abs();
+        if miss <= 64.0 * f64::EPSILON * noise[i.0].max(largest) {
+            continue;
+        }
+        let relative = miss / through[i.0].max(injection[i.0].abs());
+        if (relative > FLOW_LIMIT || relative.is_nan())
+            && worst.is_none_or(|(_, w)| relative > w || relative.is_nan())
+        {
+            worst = Some((i, relative));
+        }
+    }
+    worst
+}
+
+/// The channel at `node` whose conductance most exceeds the other channels at its ends, with
+/// that ratio (g_k over the larger of the two ends' other conductances): the likely cause
+/// when the flows at `node` do not balance.
+pub fn most_negligible_at(network: &Network, g: &[f64], node: NodeId) -> Option<(ChannelId, f64)> {
+    network
+        .incident(node)
+        .map(|(k, _)| (k, conductance_ratio(network, g, k)))
+        .max_by(|a, b| a.1.total_cmp(&b.1))
+}
