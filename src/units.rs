@@ -25,6 +25,45 @@ pub enum Dimension {
 }
 
 impl Dimension {
+    /// Magnitudes accepted from input (SI). Far wider than any chip needs, and narrow enough
+    /// that no accepted input overflows a resistance, a flow or a stress to infinity or
+    /// underflows it to a subnormal number (products of the extremes stay within about
+    /// 1e-200…1e200). Zero is accepted where it means something (a 0 Pa outlet, a position).
+    fn magnitude_range(self) -> (f64, f64) {
+        match self {
+            Dimension::Length => (1e-15, 1e4),
+            Dimension::Pressure => (1e-12, 1e9),
+            Dimension::VolumeFlow => (1e-30, 1.0),
+            Dimension::Viscosity => (1e-7, 1e7),
+            Dimension::Density => (1e-3, 1e5),
+            Dimension::Temperature => (0.0, 1e4),
+            Dimension::Angle => (0.0, 1e3),
+        }
+    }
+
+    /// The accepted range in words, for messages.
+    pub fn accepted_range(self) -> &'static str {
+        match self {
+            Dimension::Length => "1 fm to 10 km, or 0",
+            Dimension::Pressure => "magnitudes from 1 pPa to 10 kbar, or 0",
+            Dimension::VolumeFlow => "magnitudes up to 1 m^3/s",
+            Dimension::Viscosity => "positive, 1e-7 to 1e7 Pa*s",
+            Dimension::Density => "positive, 1e-3 to 1e5 kg/m^3",
+            Dimension::Temperature => "absolute zero to 10 000 K",
+            Dimension::Angle => "magnitudes up to 1000 rad",
+        }
+    }
+
+    /// Whether an SI value read from input lies in the accepted range.
+    pub fn accepts(self, value: f64) -> bool {
+        let (lo, hi) = self.magnitude_range();
+        match self {
+            Dimension::Temperature => (lo..=hi).contains(&value),
+            Dimension::Viscosity | Dimension::Density => (lo..=hi).contains(&value.abs()),
+            _ => value == 0.0 || (lo..=hi).contains(&value.abs()),
+        }
+    }
+
     /// Human name used in error messages ("a length").
     pub fn noun(self) -> &'static str {
         match self {
@@ -215,6 +254,12 @@ pub enum UnitError {
     },
     #[error("'{text}' is not finite; expected {dim}")]
     NotFinite { text: String, dim: Dimension },
+    #[error("'{text}' is outside the range rillnet accepts for {dim} ({range}); check the value and its unit")]
+    OutOfRange {
+        text: String,
+        dim: Dimension,
+        range: &'static str,
+    },
 }
 
 fn unit_list(dim: Dimension) -> String {
@@ -331,6 +376,13 @@ pub fn parse_si(text: &str, dim: Dimension) -> Result<f64, UnitError> {
         return Err(UnitError::NotFinite {
             text: trimmed.to_string(),
             dim,
+        });
+    }
+    if !dim.accepts(value) {
+        return Err(UnitError::OutOfRange {
+            text: trimmed.to_string(),
+            dim,
+            range: dim.accepted_range(),
         });
     }
     Ok(value)
