@@ -138,6 +138,17 @@ pub enum NetworkError {
     },
     #[error("the chip has no channels; add at least one channel between two nodes")]
     Empty,
+    #[error(
+        "{kind} name '{shown}' contains {what} (U+{code:04X}); names may not hide characters. \
+         Use visible letters, digits, '_', '-' or '.'"
+    )]
+    BadName {
+        kind: &'static str,
+        name: String,
+        shown: String,
+        what: &'static str,
+        code: u32,
+    },
     #[error("{place}: must be a positive finite pressure, got {value} Pa")]
     BadLimit { place: String, value: f64 },
 }
@@ -177,11 +188,41 @@ impl NetworkError {
                 None => p(&["nodes"]),
             },
             NetworkError::Empty => p(&["channels"]),
+            NetworkError::BadName { kind, name, .. } => match *kind {
+                "node" => p(&["nodes", name]),
+                "section" => p(&["sections", name]),
+                _ => p(&["channels", name]),
+            },
             NetworkError::BadLimit { place, .. } => Place {
                 keys: place.split('.').map(str::to_string).collect(),
                 repeated: false,
             },
         }
+    }
+}
+
+/// Refuse names with control, zero-width or direction-changing characters: printed in a
+/// table they would hide or reorder text.
+fn check_name(kind: &'static str, name: &str) -> Result<(), NetworkError> {
+    let hidden = |c: char| -> Option<&'static str> {
+        match c {
+            c if c.is_control() => Some("a control character"),
+            '\u{200B}'..='\u{200F}' | '\u{2060}' | '\u{FEFF}' => Some("an invisible character"),
+            '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}' => {
+                Some("a character that changes the text direction")
+            }
+            _ => None,
+        }
+    };
+    match name.chars().find_map(|c| hidden(c).map(|w| (c, w))) {
+        None => Ok(()),
+        Some((c, what)) => Err(NetworkError::BadName {
+            kind,
+            name: name.to_string(),
+            shown: name.escape_default().to_string(),
+            what,
+            code: c as u32,
+        }),
     }
 }
 
@@ -294,6 +335,7 @@ impl NetworkBuilder {
     }
 
     pub fn add_node(&mut self, name: &str, port: Port) -> Result<NodeId, NetworkError> {
+        check_name("node", name)?;
         let bad = |field, value: f64| NetworkError::BadPortValue {
             node: name.to_string(),
             field,
@@ -320,6 +362,7 @@ impl NetworkBuilder {
     /// Add a named section. Its shape is checked and its figures computed (once per
     /// geometry: a second section of the same shape reuses them but keeps its own name).
     pub fn add_section(&mut self, name: &str, shape: Shape) -> Result<SectionId, NetworkError> {
+        check_name("section", name)?;
         if self.section_index.contains_key(name) {
             return Err(NetworkError::DuplicateSection {
                 name: name.to_string(),
@@ -416,6 +459,7 @@ impl NetworkBuilder {
         section: SectionId,
         length: Length,
     ) -> Result<ChannelId, NetworkError> {
+        check_name("channel", name)?;
         let from_id = self.node(name, "from", from)?;
         let to_id = self.node(name, "to", to)?;
         if from_id == to_id {

@@ -77,6 +77,24 @@ impl Syntax {
     }
 }
 
+/// Text with control, invisible and direction-changing characters written as `\u{…}`
+/// escapes, so an error message shows what the file holds (a name cannot reorder or hide the
+/// message around it).
+pub fn visible(text: &str) -> String {
+    text.chars()
+        .map(|c| match c {
+            '\n' | '\t' => c.to_string(),
+            c if c.is_control()
+                || matches!(c, '\u{200B}'..='\u{200F}' | '\u{2060}' | '\u{FEFF}')
+                || matches!(c, '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}') =>
+            {
+                c.escape_unicode().to_string()
+            }
+            c => c.to_string(),
+        })
+        .collect()
+}
+
 /// A problem in a chip file, with its place.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 #[error("{}", self.render())]
@@ -109,7 +127,7 @@ impl InputError {
             }
         }
         s.push_str(&self.message);
-        s
+        visible(&s)
     }
 
     /// An error about the whole file (no line).
@@ -429,12 +447,51 @@ fn read_yaml<T: serde::de::DeserializeOwned>(text: &str, origin: &str) -> Result
 /// Largest chip file accepted (bytes). A 10⁶-channel file is about 80 MB of YAML.
 pub const MAX_FILE_BYTES: usize = 1 << 30;
 
-/// Remove serde's trailing " at line L column C" (we print the place up front).
+/// Remove serde's trailing " at line L column C" (we print the place up front) and put
+/// Rust type names into the file's words.
 fn strip_position(message: &str) -> String {
-    match message.rfind(" at line ") {
-        Some(i) if message[i..].contains(" column ") => message[..i].to_string(),
-        _ => message.to_string(),
+    let message = match message.rfind(" at line ") {
+        Some(i) if message[i..].contains(" column ") => &message[..i],
+        _ => message,
+    };
+    plain_words(message)
+}
+
+/// serde's "expected struct FluidSpec", "expected f64", … in the words of the file format.
+fn plain_words(message: &str) -> String {
+    let mut out = message.to_string();
+    for (from, to) in [
+        ("expected f64", "expected a number"),
+        ("expected u64", "expected a whole number"),
+        ("expected usize", "expected a whole number"),
+        ("expected i64", "expected a whole number"),
+        ("expected a borrowed string", "expected text"),
+        ("expected a string", "expected text"),
+        ("invalid type: string", "found the text"),
+        ("invalid type: integer", "found the number"),
+        ("invalid type: floating point", "found the number"),
+        ("invalid type: map", "found a mapping"),
+        ("invalid type: sequence", "found a list"),
+        ("invalid type: boolean", "found"),
+    ] {
+        out = out.replace(from, to);
     }
+    // "expected struct FluidSpec" / "expected enum ShapeKind": name no Rust type.
+    for kind in ["struct ", "enum "] {
+        while let Some(i) = out.find(&format!("expected {kind}")) {
+            let start = i + "expected ".len();
+            let end = out[start + kind.len()..]
+                .find(|c: char| !c.is_alphanumeric() && c != '_')
+                .map_or(out.len(), |e| start + kind.len() + e);
+            let what = if kind == "struct " {
+                "a mapping of keys and values"
+            } else {
+                "one of the listed words"
+            };
+            out.replace_range(start..end, what);
+        }
+    }
+    out
 }
 
 /// Parse chip-file text into a validated network. `origin` names the file in errors.
@@ -463,6 +520,8 @@ pub fn parse_chip_with(
             ),
         ));
     }
+    // A byte-order mark is not part of the text (editors on some systems write one).
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let file: ChipFile = match syntax {
         Syntax::Yaml => read_yaml(text, origin)?,
         Syntax::Json => {

@@ -1,0 +1,142 @@
+//! Hostile and extreme input: clear errors with places, never a panic, a NaN or a runaway.
+//! Interface contract tests (no physics asserted).
+
+mod common;
+
+use common::rillnet;
+
+const GOOD: &str = "fluid: {viscosity: 1 mPa*s, density: 1000 kg/m^3}\n\
+sections:\n  tube: {shape: circle, diameter: 100 um}\n\
+nodes:\n  inlet: {pressure: 100 mbar}\n  tee: {}\n  drain: {pressure: 0 Pa}\n\
+channels:\n  c1: {from: inlet, to: tee, section: tube, length: 10 mm}\n  \
+c2: {from: tee, to: drain, section: tube, length: 10 mm}\n";
+
+fn run_on(name: &str, text: &[u8], args: &[&str]) -> (i32, String, String) {
+    let dir = tempfile::tempdir().unwrap();
+    let p = dir.path().join(name);
+    std::fs::write(&p, text).unwrap();
+    let out = rillnet().args(args).arg(&p).output().unwrap();
+    (
+        out.status.code().unwrap_or(-1),
+        String::from_utf8_lossy(&out.stdout).into_owned(),
+        String::from_utf8_lossy(&out.stderr).into_owned(),
+    )
+}
+
+#[test]
+fn extreme_values_are_refused_with_the_range() {
+    for (from, to, field) in [
+        ("100 mbar", "1e308 Pa", "nodes.inlet.pressure"),
+        (
+            "length: 10 mm}\n  c2",
+            "length: 1e305 m}\n  c2",
+            "channels.c1.length",
+        ),
+        ("diameter: 100 um", "diameter: 1e-300 um", "sections.tube"),
+        (
+            "viscosity: 1 mPa*s",
+            "viscosity: 1e30 Pa*s",
+            "fluid.viscosity",
+        ),
+    ] {
+        let text = GOOD.replacen(from, to, 1);
+        let (code, out, err) = run_on("chip.yaml", text.as_bytes(), &["solve"]);
+        assert_eq!(code, 2, "{to}: {err}");
+        assert!(out.is_empty());
+        assert!(err.contains(field) && err.contains("range"), "{to}: {err}");
+        assert!(!err.contains("NaN") && !err.contains("inf"), "{err}");
+    }
+    let text = GOOD.replacen(
+        "fluid: {viscosity: 1 mPa*s, density: 1000 kg/m^3}",
+        "fluid: {model: water, temperature: -300 degC}",
+        1,
+    );
+    let (code, _, err) = run_on("chip.yaml", text.as_bytes(), &["solve"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("absolute zero"), "{err}");
+}
+
+#[test]
+fn messages_name_no_rust_types() {
+    for (from, to) in [
+        (
+            "fluid: {viscosity: 1 mPa*s, density: 1000 kg/m^3}",
+            "fluid: 3",
+        ),
+        ("nodes:", "section_tolerance: \"1e-4\"\nnodes:"),
+    ] {
+        let (code, _, err) = run_on(
+            "chip.yaml",
+            GOOD.replacen(from, to, 1).as_bytes(),
+            &["solve"],
+        );
+        assert_eq!(code, 2, "{err}");
+        for rust in ["struct ", "f64", "FluidSpec", "ChipFile"] {
+            assert!(!err.contains(rust), "'{rust}' in: {err}");
+        }
+        // One place, given once.
+        assert!(!err.contains(" at line "), "{err}");
+    }
+}
+
+#[test]
+fn hidden_characters_in_names_are_refused_and_shown_escaped() {
+    let text = GOOD.replace("tee", "t\u{202e}ee");
+    let (code, _, err) = run_on("chip.yaml", text.as_bytes(), &["solve"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("U+202E") && !err.contains('\u{202e}'), "{err}");
+}
+
+#[test]
+fn a_json_chip_with_a_byte_order_mark_reads() {
+    let json = "\u{feff}{\"fluid\": {\"viscosity\": \"1 mPa*s\", \"density\": \"1000 kg/m^3\"},\
+        \"sections\": {\"t\": {\"shape\": \"circle\", \"diameter\": \"100 um\"}},\
+        \"nodes\": {\"a\": {\"pressure\": \"1 bar\"}, \"b\": {\"pressure\": \"0 Pa\"}},\
+        \"channels\": {\"c\": {\"from\": \"a\", \"to\": \"b\", \"section\": \"t\", \"length\": \"1 mm\"}}}";
+    let (code, out, err) = run_on("chip.json", json.as_bytes(), &["solve"]);
+    assert_eq!(code, 0, "{err}");
+    assert!(out.contains("Ports"));
+}
+
+#[test]
+fn deep_nesting_is_refused_quickly() {
+    let text = format!(
+        "name: {}{}\n{GOOD}",
+        "[".repeat(100_000),
+        "]".repeat(100_000)
+    );
+    let started = std::time::Instant::now();
+    let (code, _, err) = run_on("chip.yaml", text.as_bytes(), &["solve"]);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("nests deeper"), "{err}");
+    // Generous bound: the refusal is a linear scan; the old path took tens of seconds.
+    assert!(started.elapsed().as_secs() < 20);
+}
+
+#[cfg(unix)]
+#[test]
+fn a_device_file_is_read_only_up_to_the_limit() {
+    let out = rillnet()
+        .args(["solve", "/dev/zero"])
+        .timeout(std::time::Duration::from_secs(60))
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("larger than"));
+}
+
+#[test]
+fn serpentine_arguments_must_be_positive() {
+    for (flag, value) in [("--run", "0 mm"), ("--run", "-5 mm"), ("--pitch", "0 um")] {
+        let out = rillnet()
+            .args([
+                "size",
+                "networks/gradient_splitter_sizing.yaml",
+                &format!("{flag}={value}"),
+            ])
+            .output()
+            .unwrap();
+        assert_eq!(out.status.code(), Some(2), "{flag} {value}");
+        assert!(String::from_utf8_lossy(&out.stderr).contains("positive length"));
+    }
+}
