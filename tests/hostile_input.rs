@@ -140,3 +140,27 @@ fn serpentine_arguments_must_be_positive() {
         assert!(String::from_utf8_lossy(&out.stderr).contains("positive length"));
     }
 }
+
+#[test]
+fn a_report_into_a_folder_with_an_old_page_writes_nothing() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::write(dir.path().join("index.html"), "old").unwrap();
+    let out = rillnet()
+        .args([
+            "report",
+            "networks/reagent_mixer.yaml",
+            "--into-existing",
+            "--output",
+        ])
+        .arg(dir.path())
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&out.stderr).contains("index.html"));
+    let files: Vec<_> = std::fs::read_dir(dir.path()).unwrap().collect();
+    assert_eq!(files.len(), 1, "only the old page is there");
+    assert_eq!(
+        std::fs::read_to_string(dir.path().join("index.html")).unwrap(),
+        "old"
+    );
+}

@@ -356,12 +356,27 @@ fn measured_profile_closes_with_the_lid() {
     .figures()
     .unwrap();
     assert!(rel(p.conductance_factor, r.conductance_factor) < 1e-4);
-    // CSV parsing: header, comments, separators, unit scale.
-    let csv = "# stylus export\nx_um,depth_um\n0,0\n10;5\n20\t8\n30 0\n";
-    let pts = rillnet::format::parse_profile_csv(csv, 1e-6).unwrap();
-    assert_eq!(pts.len(), 4);
-    assert_eq!(pts[2][1].si(), 8e-6);
-    assert!(rillnet::format::parse_profile_csv("0,0\n1,x\n", 1e-6).is_err());
+    // CSV parsing: header, comments, each separator, unit scale (one separator per file, fixed
+    // by the first data row).
+    for sep in [",", ";", "\t", " "] {
+        let csv =
+            format!("# stylus export\nx_um{sep}depth_um\n0{sep}0\n10{sep}5\n20{sep}8\n30{sep}0\n");
+        let pts = rillnet::format::parse_profile_csv(&csv, 1e-6).unwrap();
+        assert_eq!(pts.len(), 4, "{sep:?}");
+        assert_eq!(pts[2][1].si(), 8e-6);
+    }
+    // Strict: a cell that is not a plain number, a changed field count, a decimal comma.
+    for bad in [
+        "0,0\n1,x\n",
+        "0,0\n1,2 um\n",
+        "0,0\n1,\"2\"\n",
+        "0,0\n1,2,3\n",
+        "0;0\n0,5;1\n",
+        "0,5;0\n1;1\n",
+    ] {
+        let e = rillnet::format::parse_profile_csv(bad, 1e-6).unwrap_err();
+        assert!(e.contains("line 2") || e.contains("line 1"), "{bad:?}: {e}");
+    }
 }
 
 #[test]

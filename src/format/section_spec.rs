@@ -118,24 +118,56 @@ fn kind_name(kind: ShapeKind) -> &'static str {
 /// semicolon, tab or spaces; header and `#` comment lines skipped. `scale` converts to metres.
 pub fn parse_profile_csv(text: &str, scale: f64) -> Result<Vec<[Length; 2]>, String> {
     let mut points = Vec::new();
+    // The delimiter and the field count are fixed by the first data row.
+    let mut layout: Option<(Delimiter, usize)> = None;
     for (i, line) in text.lines().enumerate() {
         let line = line.trim();
         if line.is_empty() || line.starts_with('#') {
             continue;
         }
-        let cols: Vec<&str> = line
-            .split([',', ';', '\t', ' '])
-            .filter(|c| !c.is_empty())
-            .collect();
+        let delimiter = layout.map_or_else(|| Delimiter::of(line), |l| l.0);
+        let cols = delimiter.split(line);
         let nums: Vec<Option<f64>> = cols.iter().map(|c| c.parse::<f64>().ok()).collect();
+        let Some((_, fields)) = layout else {
+            match nums.as_slice() {
+                [Some(_), Some(_), ..] => layout = Some((delimiter, cols.len())),
+                _ => {
+                    // A header, unless it is a data row written with decimal commas.
+                    let with_points = line.replace(',', ".");
+                    let numbers = delimiter
+                        .split(&with_points)
+                        .iter()
+                        .filter(|c| c.parse::<f64>().is_ok())
+                        .count();
+                    if numbers >= 2 {
+                        check_decimal_comma(delimiter, line, i)?;
+                    }
+                    continue;
+                }
+            }
+            let [Some(x), Some(d), ..] = nums.as_slice() else {
+                continue;
+            };
+            check_decimal_comma(delimiter, line, i)?;
+            points.push([Length::from_si(x * scale), Length::from_si(d * scale)]);
+            continue;
+        };
+        check_decimal_comma(delimiter, line, i)?;
+        if cols.len() != fields {
+            return Err(format!(
+                "line {}: {} fields where the first data row has {fields}; every row needs the same columns",
+                i + 1,
+                cols.len()
+            ));
+        }
         match nums.as_slice() {
             [Some(x), Some(d), ..] => {
                 points.push([Length::from_si(x * scale), Length::from_si(d * scale)])
             }
-            _ if points.is_empty() => continue, // header line(s)
             _ => {
                 return Err(format!(
-                    "line {}: expected two numbers (position, depth), found '{line}'",
+                    "line {}: expected two plain numbers (position, depth), found '{line}'; \
+                     write numbers without units or quotes (the unit is the profile's 'unit')",
                     i + 1
                 ))
             }
@@ -145,6 +177,47 @@ pub fn parse_profile_csv(text: &str, scale: f64) -> Result<Vec<[Length; 2]>, Str
         return Err("fewer than two (position, depth) rows".into());
     }
     Ok(points)
+}
+
+/// How the fields of a profile row are separated.
+#[derive(Clone, Copy, Debug, PartialEq)]
+enum Delimiter {
+    Semicolon,
+    Comma,
+    Blank,
+}
+
+impl Delimiter {
+    fn of(line: &str) -> Delimiter {
+        if line.contains(';') {
+            Delimiter::Semicolon
+        } else if line.contains(',') {
+            Delimiter::Comma
+        } else {
+            Delimiter::Blank
+        }
+    }
+
+    fn split(self, line: &str) -> Vec<&str> {
+        let cols: Vec<&str> = match self {
+            Delimiter::Semicolon => line.split(';').map(str::trim).collect(),
+            Delimiter::Comma => line.split(',').map(str::trim).collect(),
+            Delimiter::Blank => line.split([' ', '\t']).filter(|c| !c.is_empty()).collect(),
+        };
+        cols
+    }
+}
+
+/// Refuse `0,5;0`-style rows: with ';' between fields a ',' is a decimal comma, which would be
+/// misread.
+fn check_decimal_comma(delimiter: Delimiter, line: &str, i: usize) -> Result<(), String> {
+    if delimiter != Delimiter::Comma && line.contains(',') {
+        return Err(format!(
+            "line {}: '{line}' has a decimal comma; write decimal points (0.5, not 0,5)",
+            i + 1
+        ));
+    }
+    Ok(())
 }
 
 impl SectionSpec {

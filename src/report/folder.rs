@@ -39,6 +39,42 @@ impl Folder<'_> {
     }
 }
 
+/// The files a report writes, in order.
+fn file_names(state: &SteadyState) -> Vec<String> {
+    let mut names: Vec<String> = ["summary.txt", "results.json", "results.csv"]
+        .map(String::from)
+        .to_vec();
+    let mut pictures = vec!["splits", "pressure"];
+    if state.channels.iter().any(|s| s.shear_limit.is_some()) {
+        pictures.push("margins");
+    }
+    for p in pictures {
+        names.push(format!("{p}.svg"));
+        names.push(format!("{p}.png"));
+    }
+    names.push("index.html".into());
+    names
+}
+
+/// Refuse before writing anything when a file of the report exists already, so a report is
+/// never left half written over an old one.
+fn refuse_existing(state: &SteadyState, dir: &Path) -> Result<(), Error> {
+    let taken: Vec<String> = file_names(state)
+        .into_iter()
+        .filter(|n| std::fs::symlink_metadata(dir.join(n)).is_ok())
+        .collect();
+    if taken.is_empty() {
+        return Ok(());
+    }
+    Err(Error::Write {
+        path: dir.to_path_buf(),
+        reason: format!(
+            "the folder already has {}; nothing was written. Choose a new folder, or move those files away",
+            taken.join(", ")
+        ),
+    })
+}
+
 /// Write the report of a solved chip into `dir` (which exists); returns the files written.
 pub fn write(
     chip: &Chip,
@@ -46,6 +82,7 @@ pub fn write(
     dir: &Path,
     protected: &[&Path],
 ) -> Result<Vec<PathBuf>, Error> {
+    refuse_existing(state, dir)?;
     let mut folder = Folder {
         dir,
         protected,
