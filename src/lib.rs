@@ -26,6 +26,7 @@ pub mod format;
 pub mod index_vec;
 pub mod input;
 pub mod network;
+pub mod outcome;
 pub mod output;
 pub mod plots;
 pub mod report;
@@ -35,8 +36,8 @@ pub mod solver;
 pub mod units;
 
 pub use chip::Chip;
-pub use commands::Outcome;
 pub use error::Error;
+pub use outcome::Outcome;
 
 use std::path::Path;
 

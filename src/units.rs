@@ -484,6 +484,23 @@ quantity!(
 
 /// Display conversions used by the reports (SI → the units designers read).
 pub mod display {
+    /// Format a number with about `sig` significant digits, switching to exponent form for very
+    /// large or small magnitudes.
+    pub fn fmt_sig(x: f64, sig: usize) -> String {
+        if x == 0.0 {
+            return "0".to_string();
+        }
+        if !x.is_finite() {
+            return format!("{x}");
+        }
+        let mag = x.abs().log10().floor() as i32;
+        if !(-3..6).contains(&mag) {
+            return format!("{:.*e}", sig.saturating_sub(1), x);
+        }
+        let decimals = (sig as i32 - 1 - mag).max(0) as usize;
+        format!("{x:.decimals$}")
+    }
+
     /// Pa → mbar.
     pub fn mbar(pa: f64) -> f64 {
         pa / 100.0

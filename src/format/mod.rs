@@ -46,36 +46,7 @@ use serde::de::{self, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
 use std::fmt;
 
-/// Which syntax a chip file is written in.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Syntax {
-    Yaml,
-    Json,
-}
-
-impl Syntax {
-    /// `.json` files are JSON; everything else is read as YAML (a superset of JSON).
-    pub fn from_path(path: &std::path::Path) -> Syntax {
-        match path.extension().and_then(|e| e.to_str()) {
-            Some(e) if e.eq_ignore_ascii_case("json") => Syntax::Json,
-            _ => Syntax::Yaml,
-        }
-    }
-
-    /// Guess the syntax of text without a file name: JSON when the first non-blank
-    /// character opens an object, else YAML (which also reads most JSON).
-    pub fn sniff(text: &str) -> Syntax {
-        match text
-            .trim_start_matches('\u{feff}')
-            .trim_start()
-            .chars()
-            .next()
-        {
-            Some('{') => Syntax::Json,
-            _ => Syntax::Yaml,
-        }
-    }
-}
+pub use crate::chip::Syntax;
 
 /// Text with control, invisible and direction-changing characters written as `\u{…}`
 /// escapes, so an error message shows what the file holds (a name cannot reorder or hide the

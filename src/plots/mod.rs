@@ -160,7 +160,7 @@ pub(crate) fn colour_bar<DB: DrawingBackend>(
         let v = lo + (hi - lo) * k as f64 / 4.0;
         let ty = y + h - h * k / 4;
         area.draw(&Text::new(
-            crate::report::fmt_sig(v, 3),
+            crate::units::display::fmt_sig(v, 3),
             (x + w + 6, ty - 7),
             text_style(11, INK),
         ))

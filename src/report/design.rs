@@ -5,8 +5,8 @@ use super::fmt_sig;
 use super::json::SCHEMA_VERSION;
 use crate::analysis::design::{SizeDim, SizeResult, TargetOutcome, TuneResult};
 use crate::chip::Chip;
-use crate::commands::{Changed, SensitivityTable};
 use crate::network::{Network, NodeId, Port};
+use crate::outcome::{Changed, SensitivityTable};
 use crate::serpentine::{Serpentine, SerpentineError};
 use crate::units::display;
 use serde::Serialize;
@@ -336,56 +336,6 @@ pub fn size_report(chip: &Chip, r: &SizeResult, run: f64, pitch: f64) -> String 
          least-squares compromise.\n"
     });
     out
-}
-
-#[derive(Serialize)]
-struct JsonSens<'a> {
-    target_channel: &'a str,
-    channel: &'a str,
-    d_flow_d_width_m3_per_s_per_m: Option<f64>,
-    d_flow_d_height_m3_per_s_per_m: Option<f64>,
-    d_flow_d_length_m3_per_s_per_m: f64,
-    /// d ln Q / d ln x: % change of the target flow per % change of the dimension.
-    relative_width: Option<f64>,
-    relative_height: Option<f64>,
-    relative_length: Option<f64>,
-}
-
-/// The `sensitivities` key of `solve --sensitivity --format json`.
-#[derive(Serialize)]
-pub(crate) struct JsonSensitivities<'a> {
-    /// Rows kept per target channel when the full table was too large (largest relative
-    /// length sensitivity first); null when every row is given.
-    kept_per_target: Option<usize>,
-    rows: Vec<JsonSens<'a>>,
-}
-
-pub(crate) fn sensitivity_json<'a>(
-    network: &'a Network,
-    t: &'a SensitivityTable,
-) -> JsonSensitivities<'a> {
-    JsonSensitivities {
-        kept_per_target: t.kept_per_target,
-        rows: t
-            .rows
-            .iter()
-            .map(|x| JsonSens {
-                target_channel: &network.channels[x.target_channel].name,
-                channel: &network.channels[x.channel].name,
-                d_flow_d_width_m3_per_s_per_m: x.d_width.map(z),
-                d_flow_d_height_m3_per_s_per_m: x.d_height.map(z),
-                d_flow_d_length_m3_per_s_per_m: z(x.d_length),
-                relative_width: x.rel_width.map(z),
-                relative_height: x.rel_height.map(z),
-                relative_length: x.rel_length.map(z),
-            })
-            .collect(),
-    }
-}
-
-/// `x` with a negative zero made positive (no output prints −0).
-fn z(x: f64) -> f64 {
-    x + 0.0
 }
 
 /// Sensitivities as a CSV table.

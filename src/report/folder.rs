@@ -69,7 +69,8 @@ fn refuse_existing(state: &SteadyState, dir: &Path) -> Result<(), Error> {
     Err(Error::Write {
         path: dir.to_path_buf(),
         reason: format!(
-            "the folder already has {}; nothing was written. Choose a new folder, or move those files away",
+            "a file of this report already exists there ({}); nothing was written. Choose a new \
+             folder, or move those files away",
             taken.join(", ")
         ),
     })

@@ -33,7 +33,7 @@ pub(crate) struct JsonReport<'a> {
     pub(crate) verdict: Option<&'static str>,
     /// `solve --sensitivity` only.
     #[serde(skip_serializing_if = "Option::is_none")]
-    pub(crate) sensitivities: Option<super::design::JsonSensitivities<'a>>,
+    pub(crate) sensitivities: Option<JsonSensitivities<'a>>,
 }
 
 #[derive(Serialize)]
@@ -198,4 +198,54 @@ pub fn to_json(chip: &Chip, state: &SteadyState) -> String {
     // Writing into memory cannot fail; non-finite floats become null.
     let _ = write_json(&solve_report(chip, state), &mut out);
     String::from_utf8_lossy(&out).into_owned()
+}
+
+#[derive(Serialize)]
+struct JsonSens<'a> {
+    target_channel: &'a str,
+    channel: &'a str,
+    d_flow_d_width_m3_per_s_per_m: Option<f64>,
+    d_flow_d_height_m3_per_s_per_m: Option<f64>,
+    d_flow_d_length_m3_per_s_per_m: f64,
+    /// d ln Q / d ln x: % change of the target flow per % change of the dimension.
+    relative_width: Option<f64>,
+    relative_height: Option<f64>,
+    relative_length: Option<f64>,
+}
+
+/// The `sensitivities` key of `solve --sensitivity --format json`.
+#[derive(Serialize)]
+pub(crate) struct JsonSensitivities<'a> {
+    /// Rows kept per target channel when the full table was too large (largest relative
+    /// length sensitivity first); null when every row is given.
+    kept_per_target: Option<usize>,
+    rows: Vec<JsonSens<'a>>,
+}
+
+pub(crate) fn sensitivity_json<'a>(
+    network: &'a crate::network::Network,
+    t: &'a crate::outcome::SensitivityTable,
+) -> JsonSensitivities<'a> {
+    JsonSensitivities {
+        kept_per_target: t.kept_per_target,
+        rows: t
+            .rows
+            .iter()
+            .map(|x| JsonSens {
+                target_channel: &network.channels[x.target_channel].name,
+                channel: &network.channels[x.channel].name,
+                d_flow_d_width_m3_per_s_per_m: x.d_width.map(z),
+                d_flow_d_height_m3_per_s_per_m: x.d_height.map(z),
+                d_flow_d_length_m3_per_s_per_m: z(x.d_length),
+                relative_width: x.rel_width.map(z),
+                relative_height: x.rel_height.map(z),
+                relative_length: x.rel_length.map(z),
+            })
+            .collect(),
+    }
+}
+
+/// `x` with a negative zero made positive (no output prints −0).
+fn z(x: f64) -> f64 {
+    x + 0.0
 }

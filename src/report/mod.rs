@@ -20,27 +20,10 @@ pub use json::{to_json, SCHEMA_VERSION};
 pub use section::section_report;
 pub use text::{check_text, to_table};
 
-use crate::commands::Outcome;
 use crate::network::Port;
+pub use crate::outcome::Format;
+use crate::outcome::Outcome;
 use std::io::{self, Write};
-
-/// Output formats.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum Format {
-    Table,
-    Json,
-    Csv,
-}
-
-impl Format {
-    pub fn name(self) -> &'static str {
-        match self {
-            Format::Table => "table",
-            Format::Json => "json",
-            Format::Csv => "csv",
-        }
-    }
-}
 
 /// The caution printed with every human-readable result.
 pub const CAUTION: &str =
@@ -48,22 +31,7 @@ pub const CAUTION: &str =
 flow, Newtonian fluid). Real chips deform, delaminate or leak, and tubing and fittings fail under \
 pressure. Validate with your own device, and follow your lab's safety rules.";
 
-/// Format a number with about `sig` significant digits, switching to exponent form for very
-/// large or small magnitudes.
-pub fn fmt_sig(x: f64, sig: usize) -> String {
-    if x == 0.0 {
-        return "0".to_string();
-    }
-    if !x.is_finite() {
-        return format!("{x}");
-    }
-    let mag = x.abs().log10().floor() as i32;
-    if !(-3..6).contains(&mag) {
-        return format!("{:.*e}", sig.saturating_sub(1), x);
-    }
-    let decimals = (sig as i32 - 1 - mag).max(0) as usize;
-    format!("{x:.decimals$}")
-}
+pub use crate::units::display::fmt_sig;
 
 pub(crate) fn role(port: Port) -> &'static str {
     match port {
@@ -74,7 +42,7 @@ pub(crate) fn role(port: Port) -> &'static str {
 }
 
 /// The tables of a tuned or sized chip, as `solve` prints them.
-fn operating_point_table(after: &crate::commands::Changed, w: &mut dyn Write) -> io::Result<()> {
+fn operating_point_table(after: &crate::outcome::Changed, w: &mut dyn Write) -> io::Result<()> {
     w.write_all(
         b"\nOperating point of the changed chip (the copy as written, read back and solved)\n\n",
     )?;
@@ -118,7 +86,7 @@ pub fn render(outcome: &Outcome, format: Format, w: &mut dyn Write) -> io::Resul
             let mut doc = json::solve_report(chip, state);
             doc.sensitivities = sensitivities
                 .as_ref()
-                .map(|t| design::sensitivity_json(&chip.network, t));
+                .map(|t| json::sensitivity_json(&chip.network, t));
             json::write_json(&doc, w)
         }
         (

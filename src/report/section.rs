@@ -2,7 +2,7 @@
 
 use super::csv::{n, num, Tables};
 use super::fmt_sig;
-use crate::commands::SectionOutcome;
+use crate::outcome::SectionOutcome;
 use serde::Serialize;
 use std::io;
 

@@ -1,0 +1,115 @@
+//! What a command produced — data, rendered by `report` in any of the [`Format`]s — kept apart
+//! from the commands that produce it and the report that renders it, so neither depends on
+//! the other.
+
+use crate::analysis::{design, SteadyState};
+use crate::chip::Chip;
+use crate::section::numeric::NumericSection;
+use crate::section::{SectionFigures, Shape};
+use std::path::PathBuf;
+
+/// Output formats.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Format {
+    Table,
+    Json,
+    Csv,
+}
+
+impl Format {
+    pub fn name(self) -> &'static str {
+        match self {
+            Format::Table => "table",
+            Format::Json => "json",
+            Format::Csv => "csv",
+        }
+    }
+}
+
+/// What a command produced.
+#[derive(Debug)]
+pub enum Outcome {
+    /// `solve`: the steady state, and sensitivities when asked for.
+    Solved {
+        chip: Box<Chip>,
+        state: SteadyState,
+        sensitivities: Option<SensitivityTable>,
+    },
+    /// `check`: the steady state and whether every limit holds.
+    Checked {
+        chip: Box<Chip>,
+        state: SteadyState,
+        passed: bool,
+    },
+    /// `tune`: new drive settings, and the tuned chip (the copy as written, read back)
+    /// with its steady state.
+    Tuned {
+        chip: Box<Chip>,
+        result: design::TuneResult,
+        after: Box<Changed>,
+    },
+    /// `size`: new channel dimensions, and the sized chip (read back) with its steady state.
+    Sized {
+        chip: Box<Chip>,
+        result: Box<design::SizeResult>,
+        run: f64,
+        pitch: f64,
+        after: Box<Changed>,
+    },
+    /// `section`: one cross-section's figures.
+    Section(Box<SectionOutcome>),
+    /// `plot`, `report`: files written (a status line for standard error).
+    Wrote(Vec<PathBuf>),
+}
+
+impl Outcome {
+    /// Whether the command's verdict is a pass (exit 0) — a check with no limit exceeded;
+    /// every other finished command passes.
+    pub fn passed(&self) -> bool {
+        match self {
+            Outcome::Checked { passed, .. } => *passed,
+            _ => true,
+        }
+    }
+
+    /// Formats this outcome can be rendered in.
+    pub fn formats(&self) -> &'static [Format] {
+        match self {
+            Outcome::Wrote(_) => &[Format::Table],
+            _ => &[Format::Table, Format::Json, Format::Csv],
+        }
+    }
+}
+
+/// A chip changed by `tune` or `size`: the edited copy's text, the chip read back from it,
+/// and that chip's steady state.
+#[derive(Debug)]
+pub struct Changed {
+    pub text: String,
+    pub chip: Chip,
+    pub state: SteadyState,
+}
+
+/// Sensitivities of chosen channels' flows, possibly cut to the largest per target.
+#[derive(Clone, Debug)]
+pub struct SensitivityTable {
+    pub rows: Vec<design::Sensitivity>,
+    /// Rows kept per target channel when the full table would exceed
+    /// [`SENSITIVITY_ROW_LIMIT`] (the largest by relative length sensitivity); `None` when
+    /// every row is shown.
+    pub kept_per_target: Option<usize>,
+}
+
+/// One section's figures, as the `section` command reports them.
+#[derive(Clone, Debug)]
+pub struct SectionOutcome {
+    pub shape: Shape,
+    pub figures: SectionFigures,
+    pub numeric: Option<NumericSection>,
+    /// Viscosity used for the resistance [Pa·s].
+    pub viscosity: f64,
+    /// Wall-clock time of the section solve [s].
+    pub seconds: f64,
+    /// "inline section" or "section 'x' of chip.yaml".
+    pub label: String,
+}
