@@ -552,6 +552,33 @@ fn forbidden(rel: &str) -> Vec<(&'static str, &'static str, &'static str)> {
             ));
         }
     }
+    // The layers above the model import downwards only: the chip knows no file format,
+    // pictures no report, reports no command, outcomes neither.
+    let layer = |out: &mut Vec<_>, files: bool, mods: &[&'static str], why: &'static str| {
+        if files {
+            for m in mods {
+                out.push(("layers-down", *m, why));
+            }
+        }
+    };
+    layer(
+        &mut out,
+        rel.starts_with("src/chip/"),
+        &["crate::format", "crate::report", "crate::plots", "crate::commands"],
+        "the declared chip is a model, read by the file format, not the reverse",
+    );
+    layer(
+        &mut out,
+        rel.starts_with("src/plots/"),
+        &["crate::report", "crate::commands", "crate::format"],
+        "pictures draw a chip and its results; the report embeds pictures, not the reverse",
+    );
+    layer(
+        &mut out,
+        rel.starts_with("src/report/") || rel == "src/outcome.rs",
+        &["crate::commands"],
+        "reports render outcomes; commands produce them",
+    );
     out
 }
 
