@@ -243,7 +243,7 @@ pub fn ldp(f: &[Vec<f64>], k: &[f64], n: usize) -> Option<Vec<f64>> {
     }
     // r = E·u − f; feasible iff r ≠ 0, and then r_{n+1} = −‖r‖² < 0.
     let last = r[n];
-    if -last <= 1e-12 {
+    if -last <= 1e-24 {
         return None;
     }
     let z: Vec<f64> = r[..n].iter().map(|v| -v / last).collect();

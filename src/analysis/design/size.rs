@@ -15,7 +15,7 @@ use super::super::boxqp::{self, BoxLsq};
 use super::super::kirchhoff::{drive_values, FlowSolution, Solver};
 use super::adjoint::{dlog_resistance, measure_gradients};
 use super::targets::{outcomes, rows, Scales, TargetOutcome};
-use super::{Design, DesignError, SizeDim, SizeVar};
+use super::{Design, DesignError, SizeDim, SizeVar, TargetKind};
 use crate::network::{ChannelId, Network, Section, SectionId};
 use crate::section::Shape;
 use crate::units::Length;
@@ -224,14 +224,28 @@ impl Context<'_, '_> {
                 }
             })
             .collect();
-        // Jacobian d(res)/dz = √w/scale · dJ/dg_m · dg_m/dz.
+        // Jacobian d(res)/dz = √w/scale · (dJ/dg_m · dg_m/dz + ∂J/∂z). The explicit part is
+        // that of a wall-shear target on a channel whose length is sized: τ = s·|Δp|/L, so
+        // ∂τ/∂L = −τ/L. (A sized width also changes s; that part is left to the damped
+        // iteration, which accepts only steps that lower the residual.)
         let jac: Vec<Vec<f64>> = rws
             .iter()
             .zip(&grads)
             .map(|(r, gr)| {
                 vars.iter()
                     .zip(&dg_dz)
-                    .map(|(v, dg)| r.weight.sqrt() * gr[v.channel.0] * dg / r.scale)
+                    .zip(z)
+                    .map(|((v, dg), &zv)| {
+                        let explicit = match self.design.targets[r.target].kind {
+                            TargetKind::WallShear { channel, .. }
+                                if channel == v.channel && v.dim == SizeDim::Length =>
+                            {
+                                -r.measure(&state.pressures, &state.flows) / zv
+                            }
+                            _ => 0.0,
+                        };
+                        r.weight.sqrt() * (gr[v.channel.0] * dg + explicit) / r.scale
+                    })
                     .collect()
             })
             .collect();
