@@ -245,7 +245,13 @@ fn compromises_equal_an_independent_bounded_least_squares_solve() {
             w,
         )
     };
-    for (lo, hi) in [(0.0, 50_000.0), (0.0, 2_500.0), (1_000.0, 4_000.0)] {
+    let mut bounded = 0;
+    for (lo, hi) in [
+        (0.0, 50_000.0),
+        (0.0, 1_500.0),
+        (1_500.0, 4_000.0),
+        (1_000.0, 1_740.0),
+    ] {
         let design = Design {
             targets: vec![
                 flow(0, 3.0, 1.0),
@@ -304,16 +310,25 @@ fn compromises_equal_an_independent_bounded_least_squares_solve() {
             rhs.push(0.0);
         }
         let x = box_lsq_2(&a, &rhs, [lo, lo], [hi, hi]);
-        for j in 0..2 {
+        for (j, (setting, xj)) in r.settings.iter().zip(x).enumerate() {
             assert!(
-                (r.settings[j].after - x[j]).abs() <= 1e-9 * x[j].abs().max(1.0),
-                "bounds [{lo}, {hi}]: port {j}: tuned {} vs independent {}",
-                r.settings[j].after,
-                x[j]
+                (setting.after - xj).abs() <= 1e-9 * xj.abs().max(1.0),
+                "bounds [{lo}, {hi}]: port {j}: tuned {} vs independent {xj}",
+                setting.after,
             );
         }
         assert!(!r.all_targets_met);
+        bounded += r.settings.iter().filter(|s| s.at_bound != 0).count();
+        eprintln!(
+            "bounds [{lo}, {hi}]: {:?}",
+            r.settings
+                .iter()
+                .map(|s| (s.after, s.at_bound))
+                .collect::<Vec<_>>()
+        );
     }
+    // At least one of the cases has its optimum on a bound (so the bounds are exercised).
+    assert!(bounded > 0);
 }
 
 /// A mirror-symmetric tree fed by four pressure controllers: in_1, in_2 → left; in_3, in_4 →
