@@ -427,4 +427,116 @@ mod tests {
         );
         assert!(!s.feasible);
     }
+
+    /// Gaussian elimination with partial pivoting; `None` when singular.
+    fn gauss(mut m: Vec<Vec<f64>>, mut b: Vec<f64>) -> Option<Vec<f64>> {
+        let n = b.len();
+        for c in 0..n {
+            let p = (c..n).max_by(|&i, &j| m[i][c].abs().total_cmp(&m[j][c].abs()))?;
+            if m[p][c].abs() < 1e-12 {
+                return None;
+            }
+            m.swap(c, p);
+            b.swap(c, p);
+            for i in c + 1..n {
+                let f = m[i][c] / m[c][c];
+                for k in c..n {
+                    m[i][k] -= f * m[c][k];
+                }
+                b[i] -= f * b[c];
+            }
+        }
+        let mut x = vec![0.0; n];
+        for i in (0..n).rev() {
+            let s: f64 = (i + 1..n).map(|k| m[i][k] * x[k]).sum();
+            x[i] = (b[i] - s) / m[i][i];
+        }
+        Some(x)
+    }
+
+    #[test]
+    fn random_problems_match_active_set_enumeration() {
+        // Independent reference: for a full-rank A the optimum is the equality-constrained
+        // least-squares solution on some set W of active constraints (KKT; Nocedal & Wright,
+        // Numerical Optimization 2006, §16.5). Enumerate every W with |W| ≤ n, solve its KKT
+        // system [AᵀA G_Wᵀ; G_W 0], keep the feasible candidates and take the best.
+        let mut seed = 0x9E3779B97F4A7C15u64;
+        let mut rnd = move || {
+            seed ^= seed << 13;
+            seed ^= seed >> 7;
+            seed ^= seed << 17;
+            (seed >> 11) as f64 / (1u64 << 53) as f64 * 2.0 - 1.0
+        };
+        let n = 3;
+        for case in 0..200 {
+            let a: Vec<Vec<f64>> = (0..4).map(|_| (0..n).map(|_| rnd()).collect()).collect();
+            let r: Vec<f64> = (0..4).map(|_| 3.0 * rnd()).collect();
+            let mut g: Vec<Vec<f64>> = Vec::new();
+            let mut h: Vec<f64> = Vec::new();
+            for j in 0..n {
+                let mut e = vec![0.0; n];
+                e[j] = 1.0;
+                g.push(e.clone());
+                h.push(-1.0);
+                e[j] = -1.0;
+                g.push(e);
+                h.push(-1.0);
+            }
+            for _ in 0..2 {
+                g.push((0..n).map(|_| rnd()).collect());
+                h.push(-0.3 * rnd().abs()); // x = 0 stays feasible
+            }
+            let x0: Vec<f64> = (0..n).map(|_| 0.5 * rnd()).collect();
+            let got = solve(&a, &r, &g, &h, &x0);
+            assert!(got.feasible);
+            let obj = |x: &[f64]| -> f64 {
+                mat_vec(&a, x)
+                    .iter()
+                    .zip(&r)
+                    .map(|(p, q)| (p - q) * (p - q))
+                    .sum()
+            };
+            let p = g.len();
+            let mut best: Option<(f64, Vec<f64>)> = None;
+            for mask in 0u32..(1 << p) {
+                let w: Vec<usize> = (0..p).filter(|i| mask & (1 << i) != 0).collect();
+                if w.len() > n {
+                    continue;
+                }
+                let k = n + w.len();
+                let mut m = vec![vec![0.0; k]; k];
+                let mut b = vec![0.0; k];
+                for i in 0..n {
+                    for j in 0..n {
+                        m[i][j] = a.iter().map(|row| row[i] * row[j]).sum();
+                    }
+                    b[i] = a.iter().zip(&r).map(|(row, ri)| row[i] * ri).sum();
+                }
+                for (c, &wi) in w.iter().enumerate() {
+                    for j in 0..n {
+                        m[n + c][j] = g[wi][j];
+                        m[j][n + c] = g[wi][j];
+                    }
+                    b[n + c] = h[wi];
+                }
+                let Some(sol) = gauss(m, b) else { continue };
+                let x = &sol[..n];
+                let feasible = g.iter().zip(&h).all(|(gi, hi)| {
+                    gi.iter().zip(x).map(|(p, q)| p * q).sum::<f64>() >= hi - 1e-12
+                });
+                if feasible && best.as_ref().is_none_or(|(o, _)| obj(x) < *o) {
+                    best = Some((obj(x), x.to_vec()));
+                }
+            }
+            let (o, x) = best.unwrap();
+            assert!(
+                (obj(&got.x) - o).abs() <= 1e-10 * (1.0 + o),
+                "case {case}: objective {} vs {o}",
+                obj(&got.x)
+            );
+            for (p, q) in got.x.iter().zip(&x) {
+                assert!((p - q).abs() <= 1e-8, "case {case}: {:?} vs {x:?}", got.x);
+            }
+        }
+    }
 }
