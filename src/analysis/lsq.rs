@@ -429,6 +429,7 @@ mod tests {
     }
 
     /// Gaussian elimination with partial pivoting; `None` when singular.
+    #[allow(clippy::needless_range_loop)] // index form mirrors the textbook recurrences
     fn gauss(mut m: Vec<Vec<f64>>, mut b: Vec<f64>) -> Option<Vec<f64>> {
         let n = b.len();
         for c in 0..n {
@@ -455,6 +456,7 @@ mod tests {
     }
 
     #[test]
+    #[allow(clippy::needless_range_loop)]
     fn random_problems_match_active_set_enumeration() {
         // Independent reference: for a full-rank A the optimum is the equality-constrained
         // least-squares solution on some set W of active constraints (KKT; Nocedal & Wright,
