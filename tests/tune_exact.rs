@@ -94,7 +94,7 @@ fn pump_only_splitter_meets_the_flow_exactly_and_the_split_is_not_controllable()
     assert!((after - 4.0).abs() <= 1e-12 * 4.0, "{after}");
     let table = rillnet().arg("tune").arg(&chip).output().unwrap();
     let text = String::from_utf8_lossy(&table.stdout);
-    assert!(text.contains("NOT CONTROLLABLE"), "{text}");
+    assert!(text.contains("NOT MET, NOT CONTROLLABLE"), "{text}");
 }
 
 #[test]
@@ -567,4 +567,56 @@ fn tolerances_are_read_and_refused_where_they_do_not_fit() {
         let out = rillnet().arg("tune").arg(&chip).output().unwrap();
         assert_eq!(out.status.code() == Some(2), !ok, "{tol}: {:?}", out);
     }
+}
+
+#[test]
+fn badly_conditioned_directions_are_named() {
+    // Two targets on the Y: the outlet flow (weight 1) and c1's flow with weight 1e-14. The
+    // second row is √1e-14 = 1e-7 the size of the first, so the response matrix has a
+    // singular value ratio of order 1e-7 (< 1e-6): that direction is reported as weak (not
+    // free: it is still solved exactly), with both ports and both targets.
+    let net = y_network();
+    let design = Design {
+        targets: vec![
+            target(
+                TargetKind::ChannelFlow {
+                    channel: ChannelId(2),
+                    flow: 5.0 * UL_MIN,
+                },
+                1.0,
+            ),
+            target(
+                TargetKind::ChannelFlow {
+                    channel: ChannelId(0),
+                    flow: 3.0 * UL_MIN,
+                },
+                1e-14,
+            ),
+        ],
+        adjustable: vec![
+            Adjustable {
+                node: NodeId(0),
+                min: 0.0,
+                max: 50_000.0,
+            },
+            Adjustable {
+                node: NodeId(1),
+                min: 0.0,
+                max: 50_000.0,
+            },
+        ],
+        sizes: vec![],
+    };
+    let r = design::tune(&net, &design).unwrap();
+    assert_eq!(r.free_directions.len(), 1, "{:?}", r.free_directions);
+    let d = &r.free_directions[0];
+    assert!(!d.free);
+    assert!(
+        d.singular_value_ratio < 1e-6 && d.singular_value_ratio > 1e-9,
+        "{d:?}"
+    );
+    assert_eq!(d.ports, vec![NodeId(0), NodeId(1)]);
+    assert_eq!(d.targets, vec![0, 1]);
+    // Both targets are reachable, and are reached.
+    assert!(r.all_targets_met, "{:?}", r.targets);
 }

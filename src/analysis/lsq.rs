@@ -37,8 +37,9 @@ pub struct Lsi {
     pub rank: usize,
     /// Orthonormal basis of the free directions (null space of A to [`RANK_TOL`]).
     pub free: Vec<Vec<f64>>,
-    /// Singular values of A, largest first.
+    /// Singular values of A, largest first, and the matching right singular vectors.
     pub singular_values: Vec<f64>,
+    pub directions: Vec<Vec<f64>>,
     /// ‖A·x − r‖.
     pub residual_norm: f64,
 }
@@ -330,7 +331,8 @@ pub fn solve(a: &[Vec<f64>], r: &[f64], g: &[Vec<f64>], h: &[f64], x0: &[f64]) -
             .zip(r)
             .map(|(p, q)| (p - q) * (p - q))
             .sum::<f64>()
-            .sqrt();
+            .sqrt()
+            + 0.0; // an empty sum is −0
         let slack = mat_vec(g, &x).iter().zip(h).map(|(p, q)| p - q).collect();
         Lsi {
             x,
@@ -339,6 +341,7 @@ pub fn solve(a: &[Vec<f64>], r: &[f64], g: &[Vec<f64>], h: &[f64], x0: &[f64]) -
             rank,
             free: free.clone(),
             singular_values: s.clone(),
+            directions: v.clone(),
             residual_norm,
         }
     };

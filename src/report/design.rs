@@ -69,8 +69,10 @@ fn targets_text(targets: &[TargetOutcome], out: &mut String) {
         .max()
         .unwrap_or(6);
     for t in targets {
-        let verdict = if !t.controllable {
-            "  NOT CONTROLLABLE"
+        let verdict = if !t.controllable && t.met {
+            "  met (not controllable)"
+        } else if !t.controllable {
+            "  NOT MET, NOT CONTROLLABLE"
         } else if t.met {
             "  met"
         } else {
@@ -202,6 +204,10 @@ struct JsonActiveLimit<'a> {
 struct JsonFree<'a> {
     ports: Vec<&'a str>,
     targets: Vec<&'a str>,
+    /// true: the targets cannot see the direction (least change from the file's settings);
+    /// false: they barely see it (badly conditioned).
+    free: bool,
+    singular_value_ratio: f64,
 }
 
 #[derive(Serialize)]
@@ -307,6 +313,8 @@ pub(crate) fn tune_json(
                     .iter()
                     .map(|t| r.targets[*t].what.as_str())
                     .collect(),
+                free: f.free,
+                singular_value_ratio: f.singular_value_ratio,
             })
             .collect(),
         written_digits: r.written_digits,
@@ -375,12 +383,26 @@ pub fn tune_report(chip: &Chip, r: &TuneResult) -> String {
             .iter()
             .map(|t| r.targets[*t].what.as_str())
             .collect();
-        out.push_str(&format!(
-            "The targets ({}) cannot tell the ports {} apart in some direction: there the settings \
-             change least from the file's.\n",
-            if targets.is_empty() { "none".to_string() } else { targets.join(", ") },
-            ports.join(", ")
-        ));
+        let targets = if targets.is_empty() {
+            "none".to_string()
+        } else {
+            targets.join(", ")
+        };
+        if f.free {
+            out.push_str(&format!(
+                "The targets ({targets}) cannot tell the ports {} apart in some direction: there the \
+                 settings change least from the file's.\n",
+                ports.join(", ")
+            ));
+        } else {
+            out.push_str(&format!(
+                "Badly conditioned: the targets ({targets}) barely tell the ports {} apart (singular \
+                 value ratio {:.1e}); along that direction the settings follow small changes of the \
+                 targets strongly.\n",
+                ports.join(", "),
+                f.singular_value_ratio
+            ));
+        }
     }
     if let Some(d) = r.written_digits {
         out.push_str(&format!(

@@ -82,14 +82,23 @@ pub enum LimitHandling {
     Unattainable,
 }
 
-/// A set of directions in the settings that the targets cannot see (or barely: singular
-/// values below [`lsq::RANK_TOL`] of the largest).
+/// Singular values of the (scaled, weighted) response matrix below this fraction of the
+/// largest make the problem badly conditioned: their directions are reported.
+pub const WEAK_DIRECTION: f64 = 1e-6;
+
+/// Directions in the settings that the targets cannot see (free: singular values at or below
+/// [`lsq::RANK_TOL`] of the largest, taking the least change from the file's settings) or
+/// barely see (weak: below [`WEAK_DIRECTION`], badly conditioned).
 #[derive(Clone, Debug, PartialEq)]
 pub struct FreeDirection {
-    /// Ports that move along the direction.
+    /// Ports that move along the direction(s).
     pub ports: Vec<NodeId>,
-    /// Targets that depend on those ports (and cannot tell them apart).
+    /// Targets that depend on those ports (and cannot, or barely, tell them apart).
     pub targets: Vec<usize>,
+    /// Free (true) or weak (false).
+    pub free: bool,
+    /// Singular value over the largest (0 for free directions counted as such).
+    pub singular_value_ratio: f64,
 }
 
 /// Result of tuning.
@@ -550,14 +559,43 @@ impl Problem {
         lsq::solve(&self.a, &self.r, &g, &h, start)
     }
 
-    /// The free directions of the solve, with the ports that move along them and the targets
-    /// that depend on those ports.
+    /// The free directions of the solve (together) and each weak one, with the ports that
+    /// move along them and the targets that depend on those ports.
     fn free_directions(&self, lsi: &lsq::Lsi, adjustable: &[Adjustable]) -> Vec<FreeDirection> {
-        if lsi.free.is_empty() || self.a.is_empty() {
+        if self.a.is_empty() {
             return vec![];
         }
+        let top = lsi.singular_values.first().copied().unwrap_or(0.0);
+        let ratio = |i: usize| {
+            if top > 0.0 {
+                lsi.singular_values[i] / top
+            } else {
+                0.0
+            }
+        };
+        let mut out = Vec::new();
+        let weak: Vec<usize> = (0..lsi.rank)
+            .filter(|&i| ratio(i) <= WEAK_DIRECTION)
+            .collect();
+        for i in weak {
+            out.push(self.direction(&[&lsi.directions[i]], adjustable, false, ratio(i)));
+        }
+        if !lsi.free.is_empty() {
+            let vs: Vec<&Vec<f64>> = lsi.free.iter().collect();
+            out.push(self.direction(&vs, adjustable, true, 0.0));
+        }
+        out
+    }
+
+    fn direction(
+        &self,
+        vs: &[&Vec<f64>],
+        adjustable: &[Adjustable],
+        free: bool,
+        singular_value_ratio: f64,
+    ) -> FreeDirection {
         let mut ports: Vec<usize> = Vec::new();
-        for v in &lsi.free {
+        for v in vs {
             let top = v.iter().fold(0.0f64, |m, x| m.max(x.abs()));
             for (j, x) in v.iter().enumerate() {
                 if x.abs() >= 1e-3 * top && !ports.contains(&j) {
@@ -569,19 +607,20 @@ impl Problem {
         let mut targets: Vec<usize> = Vec::new();
         for (row, &t) in self.a.iter().zip(&self.row_target) {
             let top = row.iter().fold(0.0f64, |m, x| m.max(x.abs()));
-            if ports
+            let depends = ports
                 .iter()
-                .any(|&j| row[j].abs() > CONTROL_TOL * top.max(1e-300))
-                && !targets.contains(&t)
-            {
+                .any(|&j| row[j].abs() > CONTROL_TOL * top.max(1e-300));
+            if depends && !targets.contains(&t) {
                 targets.push(t);
             }
         }
         targets.sort_unstable();
-        vec![FreeDirection {
+        FreeDirection {
             ports: ports.iter().map(|&j| adjustable[j].node).collect(),
             targets,
-        }]
+            free,
+            singular_value_ratio,
+        }
     }
 }
 
