@@ -352,7 +352,8 @@ pub fn tune_report(chip: &Chip, r: &TuneResult) -> String {
         ),
         LimitHandling::Constrained => {
             out.push_str("Limits held as constraints; the settings sit on:\n");
-            for a in &r.active_limits {
+            const SHOWN: usize = 20;
+            for a in r.active_limits.iter().take(SHOWN) {
                 out.push_str(&format!(
                     "  {} {}\n",
                     match a.kind {
@@ -361,6 +362,12 @@ pub fn tune_report(chip: &Chip, r: &TuneResult) -> String {
                         LimitKind::Vacuum => "vacuum (−1 atm) at node",
                     },
                     place_name(network, a.place)
+                ));
+            }
+            if r.active_limits.len() > SHOWN {
+                out.push_str(&format!(
+                    "  … and {} more (all in the JSON output's active_limits)\n",
+                    r.active_limits.len() - SHOWN
                 ));
             }
         }

@@ -21,7 +21,7 @@
 //!   scale over the settings' range, or, for a split, every port changes the group's flows in
 //!   the same proportion as the fixed ports do) is reported not controllable and left out;
 //! - limits are held with a relative margin of [`LIMIT_MARGIN`], so that a copy written with
-//!   enough digits stays inside them.
+//!   enough digits stays inside them; a limit is reported active within [`ACTIVE_TOL`] of it.
 
 use super::super::kirchhoff::{conductances, drive_values, FlowSolution, Solver};
 use super::super::limits::STANDARD_ATMOSPHERE;
@@ -33,6 +33,11 @@ use crate::network::{ChannelId, Network, NodeId};
 
 /// Relative margin inside every limit held as a constraint.
 pub const LIMIT_MARGIN: f64 = 1e-8;
+
+/// A limit counts as active when the tuned state is within this fraction of it (beyond the
+/// margin): many channels in series can sit on their limits together, and the solve places
+/// them on it only to its own accuracy.
+pub const ACTIVE_TOL: f64 = 1e-7;
 
 /// A response below this fraction of a target's scale (over the whole range of the settings)
 /// counts as none.
@@ -224,7 +229,7 @@ pub fn tune_with_options(
     let active_limits = if limits == LimitHandling::Constrained {
         used.iter()
             .zip(&lsi.slack)
-            .filter(|(_, s)| **s <= 1e-9)
+            .filter(|(_, s)| **s <= ACTIVE_TOL)
             .filter_map(|(c, _)| c.label.limit())
             .collect()
     } else {
