@@ -43,7 +43,7 @@ use crate::network::{Network, NodeId, Port};
 #[derive(Clone, Debug, PartialEq, thiserror::Error)]
 pub enum DesignError {
     #[error(
-        "the chip has no targets; add a 'targets:' list (channel flow, split or node pressure)"
+        "the chip has no targets; add a 'targets:' list (channel flow, wall shear, split or node pressure)"
     )]
     NoTargets,
     #[error("no port is adjustable; add 'adjust: {{min: ..., max: ...}}' to the ports tuning may change")]

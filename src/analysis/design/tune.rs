@@ -549,7 +549,6 @@ impl Problem {
             r.push(-row.residual(&states[0].pressures, &states[0].flows));
             row_target.push(row.target);
         }
-        // Flow/pressure/shear rows that do respond but only below the tolerance over the range.
         Problem {
             a,
             r,
