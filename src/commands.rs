@@ -345,12 +345,77 @@ fn design_error(chip: &Chip) -> impl Fn(design::DesignError) -> Error + '_ {
     }
 }
 
-/// Tune the adjustable ports of a chip to its targets (and write the tuned copy).
+/// Significant digits tried, in order, for values written without a fabrication step: the
+/// first whose copy keeps every target met before rounding within its tolerance (and exceeds
+/// no limit the unrounded answer kept) is written.
+pub const DIGITS_TRIED: [usize; 5] = [WRITTEN_DIGITS, 8, 10, 12, 17];
+
+/// Write copies with more and more digits until the copy keeps what the unrounded answer
+/// met; returns the copy, the digits used and the targets judged on the copy.
+fn rounded_copy(
+    chip: &Chip,
+    unrounded: &[design::TargetOutcome],
+    unrounded_within_limits: bool,
+    edits: impl Fn(usize) -> Result<Vec<format::edit::Edit>, Error>,
+) -> Result<(Changed, usize, Vec<design::TargetOutcome>), Error> {
+    let mut last = None;
+    for digits in DIGITS_TRIED {
+        let after = changed(chip, &edits(digits)?)?;
+        let mut judged = design::evaluate(
+            &after.chip.network,
+            &after.chip.design,
+            &after.state.solution,
+        );
+        for (j, u) in judged.iter_mut().zip(unrounded) {
+            j.controllable = u.controllable;
+            j.not_controllable = u.not_controllable;
+            j.snapping_miss = u.snapping_miss;
+            j.judge();
+        }
+        let keeps = judged.iter().zip(unrounded).all(|(j, u)| j.met || !u.met)
+            && (!unrounded_within_limits || !after.exceeds_limits());
+        if keeps {
+            return Ok((after, digits, judged));
+        }
+        last = Some((after, digits, judged));
+    }
+    last.ok_or_else(|| Error::Write {
+        path: chip.source.origin.clone().into(),
+        reason: "no copy could be written".into(),
+    })
+}
+
+/// Whether the unrounded state of a design answer keeps every limit.
+fn within_limits(network: &crate::network::Network, solution: &analysis::FlowSolution) -> bool {
+    let state = analysis::derive(network, solution.clone());
+    !analysis::findings(network, &state)
+        .iter()
+        .any(|f| f.severity == analysis::Severity::Exceeded)
+}
+
+/// Tune the adjustable ports of a chip to its targets (and write the tuned copy). The
+/// targets are judged again on the copy as written (rounded), read back and solved.
 pub fn tune(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
     let chip = req.chip.load()?;
-    let result = design::tune(&chip.network, &chip.design).map_err(design_error(&chip))?;
-    let edits = crate::copies::tuned_edits(&chip, &result, WRITTEN_DIGITS);
-    let after = changed(&chip, &edits)?;
+    let solver = analysis::Solver::new(&chip.network).map_err(|source| Error::Solve {
+        origin: chip.source.origin.clone(),
+        source,
+    })?;
+    let mut result = design::tune_with_options(
+        &solver,
+        &chip.design,
+        design::TuneOptions {
+            ignore_limits: req.ignore_limits,
+        },
+    )
+    .map_err(design_error(&chip))?;
+    let inside = within_limits(&chip.network, &result.solution);
+    let (after, digits, judged) = rounded_copy(&chip, &result.targets, inside, |d| {
+        Ok(crate::copies::tuned_edits(&chip, &result, d))
+    })?;
+    result.written_digits = Some(digits);
+    result.all_targets_met = judged.iter().all(|t| t.met);
+    result.targets = judged;
     if let Some(out) = req.output {
         crate::copies::write_copy(&after.text, out, &req.chip.protected())?;
     }
@@ -361,12 +426,18 @@ pub fn tune(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
     })
 }
 
-/// Size the free channel dimensions of a chip to its targets (and write the sized copy).
+/// Size the free channel dimensions of a chip to its targets (and write the sized copy). The
+/// targets are judged again on the copy as written (rounded), read back and solved.
 pub fn size(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
     let chip = req.chip.load()?;
-    let result = design::size(&chip.network, &chip.design).map_err(design_error(&chip))?;
-    let edits = crate::copies::sized_edits(&chip, &result, WRITTEN_DIGITS)?;
-    let after = changed(&chip, &edits)?;
+    let mut result = design::size(&chip.network, &chip.design).map_err(design_error(&chip))?;
+    let inside = within_limits(&result.network, &result.solution);
+    let (after, digits, judged) = rounded_copy(&chip, &result.targets, inside, |d| {
+        crate::copies::sized_edits(&chip, &result, d)
+    })?;
+    result.written_digits = Some(digits);
+    result.all_targets_met = judged.iter().all(|t| t.met);
+    result.targets = judged;
     if let Some(out) = req.output {
         crate::copies::write_copy(&after.text, out, &req.chip.protected())?;
     }

@@ -63,11 +63,18 @@ pub enum Outcome {
 }
 
 impl Outcome {
-    /// Whether the command's verdict is a pass (exit 0) — a check with no limit exceeded;
-    /// every other finished command passes.
+    /// Whether the command's verdict is a pass (exit 0) — a check with no limit exceeded; a
+    /// tune or size whose written copy meets every target within its tolerance and exceeds
+    /// no limit; every other finished command passes.
     pub fn passed(&self) -> bool {
         match self {
             Outcome::Checked { passed, .. } => *passed,
+            Outcome::Tuned { result, after, .. } => {
+                result.all_targets_met && !after.exceeds_limits()
+            }
+            Outcome::Sized { result, after, .. } => {
+                result.all_targets_met && !after.exceeds_limits()
+            }
             _ => true,
         }
     }
@@ -88,6 +95,15 @@ pub struct Changed {
     pub text: String,
     pub chip: Chip,
     pub state: SteadyState,
+}
+
+impl Changed {
+    /// Whether the changed chip exceeds a limit (shear, rating, vacuum).
+    pub fn exceeds_limits(&self) -> bool {
+        crate::analysis::findings(&self.chip.network, &self.state)
+            .iter()
+            .any(|f| f.severity == crate::analysis::Severity::Exceeded)
+    }
 }
 
 /// Sensitivities of chosen channels' flows, possibly cut to the largest per target.

@@ -564,7 +564,12 @@ fn forbidden(rel: &str) -> Vec<(&'static str, &'static str, &'static str)> {
     layer(
         &mut out,
         rel.starts_with("src/chip/"),
-        &["crate::format", "crate::report", "crate::plots", "crate::commands"],
+        &[
+            "crate::format",
+            "crate::report",
+            "crate::plots",
+            "crate::commands",
+        ],
         "the declared chip is a model, read by the file format, not the reverse",
     );
     layer(

@@ -8,6 +8,7 @@ pub mod boxqp;
 pub mod design;
 pub mod kirchhoff;
 pub mod limits;
+pub mod lsq;
 
 pub use kirchhoff::{solve, FlowSolution, SolveError, Solver, RESIDUAL_LIMIT};
 pub use limits::{findings, Finding, FindingKind, Place, Severity};

@@ -18,13 +18,50 @@ pub enum TargetKind {
         node: NodeId,
         pressure: f64,
     },
+    /// Wall shear stress [Pa] in a channel: its maximum on the perimeter or its mean. For a
+    /// fixed section it is linear in the channel's flow: τ = s·(μ/K)·|Q| with s = τ_max/G or
+    /// A/P of the section (μ/K = R/L does not depend on the length).
+    WallShear {
+        channel: ChannelId,
+        shear: f64,
+        measure: ShearMeasure,
+    },
 }
 
-/// A design target with its weight.
+/// Which wall shear a [`TargetKind::WallShear`] target asks for.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum ShearMeasure {
+    /// The largest wall shear on the perimeter (what a shear limit is compared with).
+    Max,
+    /// The perimeter mean, G·A/P.
+    Mean,
+}
+
+/// Default tolerance of a target: 1e-6 relative.
+pub const DEFAULT_TOLERANCE: f64 = 1e-6;
+
+/// How close a target must come to count as met.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Tolerance {
+    /// |reached − wanted| ≤ t·scale, with the target's scale (|wanted| for flows and wall
+    /// shear, max(|wanted|, 100 Pa) for pressures, each wanted share for splits).
+    Relative(f64),
+    /// |reached − wanted| ≤ t in the target's own SI unit (not for splits).
+    Absolute(f64),
+}
+
+impl Default for Tolerance {
+    fn default() -> Self {
+        Tolerance::Relative(DEFAULT_TOLERANCE)
+    }
+}
+
+/// A design target with its weight and tolerance.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Target {
     pub kind: TargetKind,
     pub weight: f64,
+    pub tolerance: Tolerance,
 }
 
 /// A port whose setting tuning may change, within bounds (Pa or m³/s).
@@ -67,7 +104,9 @@ impl Design {
         let mut out: Vec<ChannelId> = Vec::new();
         for t in &self.targets {
             let channels: &[ChannelId] = match &t.kind {
-                TargetKind::ChannelFlow { channel, .. } => std::slice::from_ref(channel),
+                TargetKind::ChannelFlow { channel, .. } | TargetKind::WallShear { channel, .. } => {
+                    std::slice::from_ref(channel)
+                }
                 TargetKind::Split { channels, .. } => channels,
                 TargetKind::NodePressure { .. } => &[],
             };

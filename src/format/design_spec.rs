@@ -2,7 +2,9 @@
 //! file, converted into [`crate::analysis::design::Design`].
 
 use super::{at, Misplaced, Q};
-use crate::analysis::design::{Adjustable, Design, SizeDim, SizeVar, Target, TargetKind};
+use crate::analysis::design::{
+    Adjustable, Design, ShearMeasure, SizeDim, SizeVar, Target, TargetKind, Tolerance,
+};
 use crate::network::{ChannelId, Network, NodeId, Port};
 use crate::units::{parse_si, Dimension, Length, Pressure, VolumeFlow};
 use serde::de::{self, Deserializer, Visitor};
@@ -64,7 +66,14 @@ pub(crate) struct TargetSpec {
     #[serde(default)]
     pub pressure: Option<Q<Pressure>>,
     #[serde(default)]
+    pub wall_shear: Option<Q<Pressure>>,
+    #[serde(default)]
+    pub wall_shear_mean: Option<Q<Pressure>>,
+    #[serde(default)]
     pub weight: Option<f64>,
+    /// `1 %`, a plain number (relative), or a quantity in the target's unit (absolute).
+    #[serde(default)]
+    pub tolerance: Option<RawQuantity>,
 }
 
 /// Bounds of a sized dimension.
@@ -92,6 +101,47 @@ fn channel_id(net: &Network, name: &str, place: &[&str]) -> Result<ChannelId, Mi
         .ok_or_else(|| at(place, format!("unknown channel '{name}'")))
 }
 
+/// A target's tolerance: `1 %` or a plain number is relative, a quantity in the target's own
+/// unit is absolute (splits take relative tolerances only).
+fn tolerance(raw: &str, kind: &TargetKind) -> Result<Tolerance, String> {
+    let text = raw.trim();
+    let relative = |v: f64| {
+        if v.is_finite() && v > 0.0 && v < 1.0 {
+            Ok(Tolerance::Relative(v))
+        } else {
+            Err(format!(
+                "a relative tolerance lies between 0 and 1 (e.g. '1 %' or 1e-4), got '{text}'"
+            ))
+        }
+    };
+    if let Some(percent) = text.strip_suffix('%') {
+        return match percent.trim().parse::<f64>() {
+            Ok(v) => relative(v / 100.0),
+            Err(_) => Err(format!(
+                "tolerance '{text}' is not a percentage such as '1 %'"
+            )),
+        };
+    }
+    if let Ok(v) = text.parse::<f64>() {
+        return relative(v);
+    }
+    let dim = match kind {
+        TargetKind::ChannelFlow { .. } => Dimension::VolumeFlow,
+        TargetKind::NodePressure { .. } | TargetKind::WallShear { .. } => Dimension::Pressure,
+        TargetKind::Split { .. } => {
+            return Err(format!(
+                "a split's tolerance is relative (a plain number or a percentage), got '{text}'"
+            ))
+        }
+    };
+    let v = parse_si(text, dim).map_err(|e| format!("tolerance: {e}"))?;
+    if v.is_finite() && v > 0.0 {
+        Ok(Tolerance::Absolute(v))
+    } else {
+        Err(format!("tolerance must be positive, got '{text}'"))
+    }
+}
+
 /// Build the design problem once the network exists.
 pub(super) fn to_design(
     net: &Network,
@@ -110,12 +160,34 @@ pub(super) fn to_design(
                 format!("{label}: weight must be positive, got {weight}"),
             ));
         }
-        let kind = match (&t.channel, t.flow, &t.split, &t.ratio, &t.node, t.pressure) {
-            (Some(c), Some(q), None, None, None, None) => TargetKind::ChannelFlow {
-                channel: channel_id(net, c, &place).map_err(|m| at(&place, format!("{label}: {}", m.message)))?,
+        let shear = match (t.wall_shear, t.wall_shear_mean) {
+            (Some(v), None) => Some((v.0.si(), ShearMeasure::Max)),
+            (None, Some(v)) => Some((v.0.si(), ShearMeasure::Mean)),
+            (None, None) => None,
+            (Some(_), Some(_)) => {
+                return Err(at(
+                    &place,
+                    format!(
+                        "{label}: give either wall_shear (maximum) or wall_shear_mean, not both"
+                    ),
+                ))
+            }
+        };
+        let named = |c: &str| {
+            channel_id(net, c, &place).map_err(|m| at(&place, format!("{label}: {}", m.message)))
+        };
+        let kind = match (&t.channel, t.flow, shear, &t.split, &t.ratio, &t.node, t.pressure) {
+            (Some(c), Some(q), None, None, None, None, None) => TargetKind::ChannelFlow {
+                channel: named(c)?,
                 flow: q.0.si(),
             },
-            (None, None, Some(split), Some(ratio), None, None) => {
+            (Some(c), None, Some((v, measure)), None, None, None, None) => {
+                if !(v.is_finite() && v > 0.0) {
+                    return Err(at(&place, format!("{label}: a wall-shear target must be positive")));
+                }
+                TargetKind::WallShear { channel: named(c)?, shear: v, measure }
+            }
+            (None, None, None, Some(split), Some(ratio), None, None) => {
                 if split.len() < 2 || split.len() != ratio.len() {
                     return Err(at(&place, format!(
                         "{label}: a split names two or more channels and one ratio per channel, e.g. {{split: [c3, c4], ratio: [1, 2]}}"
@@ -124,13 +196,10 @@ pub(super) fn to_design(
                 if let Some(r) = ratio.iter().find(|r| !(r.is_finite() && **r > 0.0)) {
                     return Err(at(&place, format!("{label}: ratios must be positive, got {r}")));
                 }
-                let channels = split
-                    .iter()
-                    .map(|c| channel_id(net, c, &place).map_err(|m| at(&place, format!("{label}: {}", m.message))))
-                    .collect::<Result<_, _>>()?;
+                let channels = split.iter().map(|c| named(c)).collect::<Result<_, _>>()?;
                 TargetKind::Split { channels, ratio: ratio.clone() }
             }
-            (None, None, None, None, Some(n), Some(p)) => TargetKind::NodePressure {
+            (None, None, None, None, None, Some(n), Some(p)) => TargetKind::NodePressure {
                 node: net
                     .node_id(n)
                     .ok_or_else(|| at(&place, format!("{label}: unknown node '{n}'")))?,
@@ -138,12 +207,23 @@ pub(super) fn to_design(
             },
             _ => {
                 return Err(at(&place, format!(
-                    "{label}: a target is one of {{channel: c3, flow: 2 uL/min}}, {{split: [c3, c4], ratio: [1, 2]}} \
-                     or {{node: n2, pressure: 40 mbar}} (each with an optional weight)"
+                    "{label}: a target is one of {{channel: c3, flow: 2 uL/min}}, {{channel: c3, wall_shear: 0.4 Pa}} \
+                     (or wall_shear_mean), {{split: [c3, c4], ratio: [1, 2]}} or {{node: n2, pressure: 40 mbar}} \
+                     (each with an optional weight and tolerance)"
                 )))
             }
         };
-        design.targets.push(Target { kind, weight });
+        let tolerance = match &t.tolerance {
+            None => Tolerance::default(),
+            Some(raw) => {
+                tolerance(&raw.0, &kind).map_err(|m| at(&place, format!("{label}: {m}")))?
+            }
+        };
+        design.targets.push(Target {
+            kind,
+            weight,
+            tolerance,
+        });
     }
     for (name, a) in adjust {
         let id: NodeId = net

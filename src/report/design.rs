@@ -3,7 +3,11 @@
 use super::csv::{n, num, Tables};
 use super::fmt_sig;
 use super::json::SCHEMA_VERSION;
-use crate::analysis::design::{SizeDim, SizeResult, TargetOutcome, TuneResult};
+use crate::analysis::design::{
+    LimitHandling, LimitKind, NotControllable, ShearMeasure, SizeDim, SizeResult, TargetOutcome,
+    TargetQuantity, Tolerance, TuneResult,
+};
+use crate::analysis::{Place, Severity};
 use crate::chip::Chip;
 use crate::network::{Network, NodeId, Port};
 use crate::outcome::{Changed, SensitivityTable};
@@ -20,12 +24,40 @@ fn value_text(network: &Network, node: usize, v: f64) -> String {
 }
 
 fn outcome_value(o: &TargetOutcome, v: f64) -> String {
-    if o.what.starts_with("flow") {
-        format!("{} µL/min", fmt_sig(display::ul_per_min(v), 6))
-    } else if o.what.starts_with("pressure") {
-        format!("{} mbar", fmt_sig(display::mbar(v), 6))
-    } else {
-        format!("{} share", fmt_sig(v, 6))
+    match o.quantity {
+        TargetQuantity::Flow => format!("{} µL/min", fmt_sig(display::ul_per_min(v), 6)),
+        TargetQuantity::Pressure => format!("{} mbar", fmt_sig(display::mbar(v), 6)),
+        TargetQuantity::WallShear(_) => format!("{} Pa", fmt_sig(v, 6)),
+        TargetQuantity::Share => format!("{} share", fmt_sig(v, 6)),
+    }
+}
+
+fn tolerance_text(o: &TargetOutcome) -> String {
+    match o.tolerance {
+        Tolerance::Relative(t) => format!("{t:.0e} rel"),
+        Tolerance::Absolute(a) => match o.quantity {
+            TargetQuantity::Flow => format!("{} µL/min", fmt_sig(display::ul_per_min(a), 3)),
+            TargetQuantity::Pressure => format!("{} mbar", fmt_sig(display::mbar(a), 3)),
+            _ => format!("{} Pa", fmt_sig(a, 3)),
+        },
+    }
+}
+
+/// Why a target is not controllable, in words.
+fn control_text(reason: NotControllable) -> &'static str {
+    match reason {
+        NotControllable::NoResponse => "no adjustable port changes it",
+        NotControllable::FixedShares => {
+            "every adjustable port changes these flows in the same proportion, so the shares are fixed by the channels"
+        }
+    }
+}
+
+/// Machine name of a reason.
+fn control_code(reason: NotControllable) -> &'static str {
+    match reason {
+        NotControllable::NoResponse => "no_response",
+        NotControllable::FixedShares => "fixed_shares",
     }
 }
 
@@ -37,40 +69,145 @@ fn targets_text(targets: &[TargetOutcome], out: &mut String) {
         .max()
         .unwrap_or(6);
     for t in targets {
+        let verdict = if !t.controllable && t.met {
+            "  met (not controllable)"
+        } else if !t.controllable {
+            "  NOT MET, NOT CONTROLLABLE"
+        } else if t.met {
+            "  met"
+        } else {
+            "  NOT MET"
+        };
         out.push_str(&format!(
-            "  {:<w$}  wanted {:>22}  reached {:>22}  miss {:.1e}{}\n",
+            "  {:<w$}  wanted {:>22}  reached {:>22}  miss {:.1e} (tolerance {}){verdict}\n",
             t.what,
             outcome_value(t, t.wanted),
             outcome_value(t, t.reached),
             t.miss,
-            if t.miss <= crate::analysis::design::MET {
-                ""
-            } else {
-                "  NOT MET"
-            }
+            tolerance_text(t),
         ));
+        if let Some(reason) = t.not_controllable {
+            out.push_str(&format!(
+                "      not controllable: {}; left out of the problem (it does not move the settings)\n",
+                control_text(reason)
+            ));
+        }
+        if let Some(s) = t.snapping_miss {
+            out.push_str(&format!(
+                "      snapping to the fabrication steps alone causes a miss of {s:.1e}; judged against max(tolerance, that miss)\n"
+            ));
+        }
+    }
+}
+
+fn quantity_code(q: TargetQuantity) -> &'static str {
+    match q {
+        TargetQuantity::Flow => "flow",
+        TargetQuantity::Pressure => "pressure",
+        TargetQuantity::Share => "split",
+        TargetQuantity::WallShear(ShearMeasure::Max) => "wall_shear",
+        TargetQuantity::WallShear(ShearMeasure::Mean) => "wall_shear_mean",
     }
 }
 
 #[derive(Serialize)]
 struct JsonTarget<'a> {
     what: &'a str,
+    kind: &'static str,
     wanted: f64,
     reached: f64,
+    error: f64,
     relative_miss: f64,
+    tolerance_relative: Option<f64>,
+    tolerance_absolute: Option<f64>,
     met: bool,
+    controllable: bool,
+    not_controllable_reason: Option<&'static str>,
+    snapping_miss: Option<f64>,
 }
 
 fn json_targets(t: &[TargetOutcome]) -> Vec<JsonTarget<'_>> {
     t.iter()
         .map(|t| JsonTarget {
             what: &t.what,
+            kind: quantity_code(t.quantity),
             wanted: t.wanted,
             reached: t.reached,
+            error: t.error,
             relative_miss: t.miss,
-            met: t.miss <= crate::analysis::design::MET,
+            tolerance_relative: match t.tolerance {
+                Tolerance::Relative(v) => Some(v),
+                Tolerance::Absolute(_) => None,
+            },
+            tolerance_absolute: match t.tolerance {
+                Tolerance::Absolute(v) => Some(v),
+                Tolerance::Relative(_) => None,
+            },
+            met: t.met,
+            controllable: t.controllable,
+            not_controllable_reason: t.not_controllable.map(control_code),
+            snapping_miss: t.snapping_miss,
         })
         .collect()
+}
+
+/// Name of a channel or node.
+fn place_name(network: &Network, place: Place) -> &str {
+    match place {
+        Place::Channel(c) => &network.channels[c].name,
+        Place::Node(n) => &network.nodes[n].name,
+    }
+}
+
+/// Channels and nodes whose limits the changed chip exceeds.
+fn exceeded(after: &Changed) -> Vec<&str> {
+    let net = &after.chip.network;
+    let mut out: Vec<&str> = Vec::new();
+    for f in crate::analysis::findings(net, &after.state) {
+        if f.severity == Severity::Exceeded {
+            let name = place_name(net, f.kind.place());
+            if !out.contains(&name) {
+                out.push(name);
+            }
+        }
+    }
+    out
+}
+
+fn active_names(network: &Network, r: &TuneResult) -> Vec<String> {
+    let mut out: Vec<String> = Vec::new();
+    for a in &r.active_limits {
+        let name = place_name(network, a.place).to_string();
+        if !out.contains(&name) {
+            out.push(name);
+        }
+    }
+    out
+}
+
+fn limit_kind_code(k: LimitKind) -> &'static str {
+    match k {
+        LimitKind::WallShear => "wall_shear",
+        LimitKind::PressureRating => "pressure_rating",
+        LimitKind::Vacuum => "vacuum",
+    }
+}
+
+#[derive(Serialize)]
+struct JsonActiveLimit<'a> {
+    place: &'a str,
+    kind: &'static str,
+    side: &'static str,
+}
+
+#[derive(Serialize)]
+struct JsonFree<'a> {
+    ports: Vec<&'a str>,
+    targets: Vec<&'a str>,
+    /// true: the targets cannot see the direction (least change from the file's settings);
+    /// false: they barely see it (badly conditioned).
+    free: bool,
+    singular_value_ratio: f64,
 }
 
 #[derive(Serialize)]
@@ -89,10 +226,21 @@ struct JsonTune<'a> {
     schema_version: u32,
     /// The tuned chip (the copy as written, read back) solved: the `solve` document.
     operating_point: super::json::JsonReport<'a>,
+    /// Same as `all_targets_met` (kept for scripts written before it).
     feasible: bool,
+    all_targets_met: bool,
     residual_norm: f64,
     settings: Vec<JsonSetting<'a>>,
     targets: Vec<JsonTarget<'a>>,
+    /// "constrained", "ignored" (--ignore-limits) or "unattainable".
+    limits: &'static str,
+    /// Channel or node names whose limits the tuned settings sit on.
+    active_limits: Vec<String>,
+    active_limit_details: Vec<JsonActiveLimit<'a>>,
+    /// Channel or node names whose limits the tuned chip exceeds.
+    limits_exceeded: Vec<&'a str>,
+    free_directions: Vec<JsonFree<'a>>,
+    written_digits: Option<usize>,
 }
 
 fn bound_name(b: i8) -> Option<&'static str> {
@@ -114,7 +262,8 @@ pub(crate) fn tune_json(
     let j = JsonTune {
         schema_version: SCHEMA_VERSION,
         operating_point: super::json::solve_report(&after.chip, &after.state),
-        feasible: r.feasible,
+        feasible: r.all_targets_met,
+        all_targets_met: r.all_targets_met,
         residual_norm: r.residual_norm,
         settings: r
             .settings
@@ -134,6 +283,41 @@ pub(crate) fn tune_json(
             })
             .collect(),
         targets: json_targets(&r.targets),
+        limits: match r.limits {
+            LimitHandling::Constrained => "constrained",
+            LimitHandling::Ignored => "ignored",
+            LimitHandling::Unattainable => "unattainable",
+        },
+        active_limits: active_names(network, r),
+        active_limit_details: r
+            .active_limits
+            .iter()
+            .map(|a| JsonActiveLimit {
+                place: place_name(network, a.place),
+                kind: limit_kind_code(a.kind),
+                side: if a.side < 0 { "lower" } else { "upper" },
+            })
+            .collect(),
+        limits_exceeded: exceeded(after),
+        free_directions: r
+            .free_directions
+            .iter()
+            .map(|f| JsonFree {
+                ports: f
+                    .ports
+                    .iter()
+                    .map(|p| network.nodes[*p].name.as_str())
+                    .collect(),
+                targets: f
+                    .targets
+                    .iter()
+                    .map(|t| r.targets[*t].what.as_str())
+                    .collect(),
+                free: f.free,
+                singular_value_ratio: f.singular_value_ratio,
+            })
+            .collect(),
+        written_digits: r.written_digits,
     };
     super::json::write_json(&j, w)
 }
@@ -162,13 +346,83 @@ pub fn tune_report(chip: &Chip, r: &TuneResult) -> String {
         "\nWeighted residual norm: {:.3e}\n",
         r.residual_norm
     ));
-    if r.feasible {
-        out.push_str("All targets are met (to 1e-9 relative).\n");
+    match r.limits {
+        LimitHandling::Constrained if r.active_limits.is_empty() => out.push_str(
+            "Limits (wall shear, pressure rating, vacuum) were held as constraints; none is active.\n",
+        ),
+        LimitHandling::Constrained => {
+            out.push_str("Limits held as constraints; the settings sit on:\n");
+            const SHOWN: usize = 20;
+            for a in r.active_limits.iter().take(SHOWN) {
+                out.push_str(&format!(
+                    "  {} {}\n",
+                    match a.kind {
+                        LimitKind::WallShear => "wall-shear limit of channel",
+                        LimitKind::PressureRating => "pressure rating at node",
+                        LimitKind::Vacuum => "vacuum (−1 atm) at node",
+                    },
+                    place_name(network, a.place)
+                ));
+            }
+            if r.active_limits.len() > SHOWN {
+                out.push_str(&format!(
+                    "  … and {} more (all in the JSON output's active_limits)\n",
+                    r.active_limits.len() - SHOWN
+                ));
+            }
+        }
+        LimitHandling::Ignored => {
+            out.push_str("Limits were left out of the problem (--ignore-limits).\n")
+        }
+        LimitHandling::Unattainable => out.push_str(
+            "The limits cannot all hold within the bounds of the adjustable ports: the settings were \
+             found without them (see the limits exceeded below).\n",
+        ),
+    }
+    for f in &r.free_directions {
+        let ports: Vec<&str> = f
+            .ports
+            .iter()
+            .map(|p| network.nodes[*p].name.as_str())
+            .collect();
+        let targets: Vec<&str> = f
+            .targets
+            .iter()
+            .map(|t| r.targets[*t].what.as_str())
+            .collect();
+        let targets = if targets.is_empty() {
+            "none".to_string()
+        } else {
+            targets.join(", ")
+        };
+        if f.free {
+            out.push_str(&format!(
+                "The targets ({targets}) cannot tell the ports {} apart in some direction: there the \
+                 settings change least from the file's.\n",
+                ports.join(", ")
+            ));
+        } else {
+            out.push_str(&format!(
+                "Badly conditioned: the targets ({targets}) barely tell the ports {} apart (singular \
+                 value ratio {:.1e}); along that direction the settings follow small changes of the \
+                 targets strongly.\n",
+                ports.join(", "),
+                f.singular_value_ratio
+            ));
+        }
+    }
+    if let Some(d) = r.written_digits {
+        out.push_str(&format!(
+            "Settings written with {d} significant digits; the targets above are those of the written copy.\n"
+        ));
+    }
+    if r.all_targets_met {
+        out.push_str("All targets are met within their tolerances.\n");
     } else {
         out.push_str(
-            "The targets cannot all be met within the bounds: the settings above are the least-squares \
-             compromise (weighted); the misses show how close it gets. Widen a bound, change a weight, \
-             or resize channels with 'rillnet size'.\n",
+            "NOT ALL TARGETS ARE MET: the settings above are the least-squares compromise (weighted) \
+             within the bounds and limits; the misses show how close it gets. Widen a bound, change a \
+             weight, or resize channels with 'rillnet size'.\n",
         );
     }
     out
@@ -205,11 +459,18 @@ struct JsonSizing<'a> {
     schema_version: u32,
     /// The sized chip (the copy as written, read back) solved: the `solve` document.
     operating_point: super::json::JsonReport<'a>,
+    /// Same as `all_targets_met` (kept for scripts written before it).
     feasible: bool,
+    all_targets_met: bool,
     residual_norm: f64,
     iterations: usize,
     sizes: Vec<JsonSize<'a>>,
     targets: Vec<JsonTarget<'a>>,
+    /// Sizing does not hold limits as constraints: always empty.
+    active_limits: Vec<String>,
+    /// Channel or node names whose limits the sized chip exceeds.
+    limits_exceeded: Vec<&'a str>,
+    written_digits: Option<usize>,
 }
 
 /// The serpentine of a sized length longer than `run` (folded at `pitch`, with the sized
@@ -243,9 +504,13 @@ pub(crate) fn size_json(
     let j = JsonSizing {
         schema_version: SCHEMA_VERSION,
         operating_point: super::json::solve_report(&after.chip, &after.state),
-        feasible: r.feasible,
+        feasible: r.all_targets_met,
+        all_targets_met: r.all_targets_met,
         residual_norm: r.residual_norm,
         iterations: r.iterations,
+        active_limits: vec![],
+        limits_exceeded: exceeded(after),
+        written_digits: r.written_digits,
         sizes: r
             .sizes
             .iter()
@@ -329,10 +594,20 @@ pub fn size_report(chip: &Chip, r: &SizeResult, run: f64, pitch: f64) -> String 
         "\nWeighted residual norm: {:.3e}\n",
         r.residual_norm
     ));
-    out.push_str(if r.feasible {
-        "All targets are met (to 1e-9 relative).\n"
+    out.push_str(
+        "Sizing does not hold wall-shear limits or the pressure rating as constraints: limits the sized \
+         chip exceeds are reported with its operating point (and make the command fail).\n",
+    );
+    if let Some(d) = r.written_digits {
+        out.push_str(&format!(
+            "Sizes without a fabrication step written with {d} significant digits; the targets above are \
+             those of the written copy.\n"
+        ));
+    }
+    out.push_str(if r.all_targets_met {
+        "All targets are met within their tolerances.\n"
     } else {
-        "The targets cannot all be met within the bounds (and fabrication steps): the sizes above are the \
+        "NOT ALL TARGETS ARE MET within the bounds (and fabrication steps): the sizes above are the \
          least-squares compromise.\n"
     });
     out
@@ -514,6 +789,7 @@ fn targets_csv(targets: &[TargetOutcome], tables: &mut Tables<'_>) -> io::Result
             "reached",
             "relative_miss",
             "met",
+            "controllable",
         ],
         targets.iter().map(|t| {
             vec![
@@ -522,7 +798,8 @@ fn targets_csv(targets: &[TargetOutcome], tables: &mut Tables<'_>) -> io::Result
                 n(t.wanted),
                 n(t.reached),
                 n(t.miss),
-                (t.miss <= crate::analysis::design::MET).to_string(),
+                t.met.to_string(),
+                t.controllable.to_string(),
             ]
         }),
     )

@@ -1,9 +1,10 @@
 //! Design answers: drive settings for target flows (tuning), channel sizes for target splits
 //! (sizing), and sensitivities of flows to channel dimensions (adjoint method).
 //!
-//! - `targets`: targets → dimensionless residual rows, and how each target came out;
-//! - `tune`: linear least squares over the adjustable ports (unit responses on one
-//!   factorisation, [`super::boxqp`]);
+//! - `targets`: targets → dimensionless residual rows with fixed scales, and how each target
+//!   came out against its tolerance ([`evaluate`]);
+//! - `tune`: linear least squares with bounds and limits as linear inequality constraints over
+//!   the adjustable ports (unit responses on one factorisation, [`super::lsq`]);
 //! - `adjoint`: gradients of linear measures with respect to conductances, and the
 //!   sensitivities of flows to channel dimensions;
 //! - `size`: bounded, damped Gauss–Newton over channel lengths and widths;
@@ -22,12 +23,18 @@ mod size;
 mod targets;
 mod tune;
 
-pub use crate::chip::design::{Adjustable, Design, SizeDim, SizeVar, Target, TargetKind};
+pub use crate::chip::design::{
+    Adjustable, Design, ShearMeasure, SizeDim, SizeVar, Target, TargetKind, Tolerance,
+    DEFAULT_TOLERANCE,
+};
 pub use adjoint::{dlog_resistance, sensitivities, sensitivities_with, Sensitivity};
 pub use serpentine::{serpentine, Serpentine};
 pub use size::{dimension, size, size_with, with_dimension, SizeResult, SizedDim};
-pub use targets::{TargetOutcome, MET};
-pub use tune::{tune, tune_with, Setting, TuneResult};
+pub use targets::{evaluate, NotControllable, TargetOutcome, TargetQuantity};
+pub use tune::{
+    tune, tune_with, tune_with_options, ActiveLimit, FreeDirection, LimitHandling, LimitKind,
+    Setting, TuneOptions, TuneResult, LIMIT_MARGIN,
+};
 
 use super::kirchhoff::SolveError;
 use crate::network::{Network, NodeId, Port};
@@ -36,7 +43,7 @@ use crate::network::{Network, NodeId, Port};
 #[derive(Clone, Debug, PartialEq, thiserror::Error)]
 pub enum DesignError {
     #[error(
-        "the chip has no targets; add a 'targets:' list (channel flow, split or node pressure)"
+        "the chip has no targets; add a 'targets:' list (channel flow, wall shear, split or node pressure)"
     )]
     NoTargets,
     #[error("no port is adjustable; add 'adjust: {{min: ..., max: ...}}' to the ports tuning may change")]

@@ -14,12 +14,12 @@
 use super::super::boxqp::{self, BoxLsq};
 use super::super::kirchhoff::{drive_values, FlowSolution, Solver};
 use super::adjoint::{dlog_resistance, measure_gradients};
-use super::targets::{outcomes, rows, TargetOutcome, MET};
-use super::{Design, DesignError, SizeDim, SizeVar};
+use super::targets::{outcomes, rows, Scales, TargetOutcome};
+use super::{Design, DesignError, SizeDim, SizeVar, TargetKind};
 use crate::network::{ChannelId, Network, Section, SectionId};
 use crate::section::Shape;
 use crate::units::Length;
-use std::cell::Cell;
+use std::cell::{Cell, RefCell};
 
 /// Gauss–Newton iterations per descent, at most.
 const MAX_ITERATIONS: usize = 100;
@@ -43,7 +43,11 @@ pub struct SizeResult {
     /// Trial sizes evaluated (each one factorisation, one forward and one adjoint solve per
     /// target row, all on the same symbolic analysis).
     pub evaluations: usize,
-    pub feasible: bool,
+    /// Every target met within its tolerance (or the miss snapping itself causes).
+    pub all_targets_met: bool,
+    /// Significant digits of the written sizes without a fabrication step (set when a copy
+    /// is written).
+    pub written_digits: Option<usize>,
     /// The network with the new sizes.
     pub network: Network,
     /// Its checked flow state (with the refinement count and residual).
@@ -74,17 +78,33 @@ pub fn size_with(solver: &Solver<'_>, design: &Design) -> Result<SizeResult, Des
     let ctx = Context {
         solver,
         design,
+        scales: RefCell::new(None),
         evaluations: Cell::new(0),
     };
     let mut it = Iterate::start(&ctx, z)?;
     it.descend(&ctx, &vec![true; vars.len()])?;
-    if vars.iter().any(|v| v.step.is_some()) {
+    let stepped = vars.iter().any(|v| v.step.is_some());
+    let before_snap = stepped.then(|| {
+        let e = &it.eval;
+        outcomes(&e.net, &design.targets, &e.state.pressures, &e.state.flows)
+    });
+    if stepped {
         it.snap_and_resolve(&ctx)?;
     }
     let Evaluation {
         net, state, res, ..
     } = it.eval;
-    let targets = outcomes(&net, &design.targets, &state.pressures, &state.flows);
+    let mut targets = outcomes(&net, &design.targets, &state.pressures, &state.flows);
+    // After snapping to fabrication steps: a target met before snapping is judged against
+    // the miss the snapping itself causes when that is larger than its tolerance.
+    if let Some(before) = before_snap {
+        for (t, b) in targets.iter_mut().zip(&before) {
+            if b.met && !t.met {
+                t.snapping_miss = Some(t.miss);
+                t.judge();
+            }
+        }
+    }
     let sizes = vars
         .iter()
         .zip(&before)
@@ -97,7 +117,8 @@ pub fn size_with(solver: &Solver<'_>, design: &Design) -> Result<SizeResult, Des
         })
         .collect();
     Ok(SizeResult {
-        feasible: targets.iter().all(|t| t.miss <= MET),
+        all_targets_met: targets.iter().all(|t| t.met),
+        written_digits: None,
         residual_norm: norm(&res),
         sizes,
         targets,
@@ -154,6 +175,9 @@ fn current(network: &Network, v: &SizeVar) -> Result<f64, DesignError> {
 struct Context<'a, 'n> {
     solver: &'a Solver<'n>,
     design: &'a Design,
+    /// Split reference flows and shear signs, fixed at the starting sizes (the first
+    /// evaluation), so that the objective is one function of the sizes throughout.
+    scales: RefCell<Option<Scales>>,
     evaluations: Cell<usize>,
 }
 
@@ -174,11 +198,13 @@ impl Context<'_, '_> {
         let net = apply(self.solver.network(), vars, z)?;
         let factor = self.solver.factorize(self.solver.conductances_of(&net)?)?;
         let state = factor.solve(&drive_values(&net))?;
-        // The measures' coefficients do not depend on the flows (only the split scale Q_ref
-        // does), so one solve gives both the gradients and the flows for the scales.
-        let unscaled = rows(&self.design.targets, &vec![1.0; net.channels.len()]);
-        let grads = measure_gradients(&factor, &state, &unscaled)?;
-        let rws = rows(&self.design.targets, &state.flows);
+        let scales = self
+            .scales
+            .borrow_mut()
+            .get_or_insert_with(|| Scales::from_flows(&self.design.targets, &state.flows))
+            .clone();
+        let rws = rows(&net, &self.design.targets, &scales);
+        let grads = measure_gradients(&factor, &state, &rws)?;
         let res: Vec<f64> = rws
             .iter()
             .map(|r| r.residual(&state.pressures, &state.flows))
@@ -198,14 +224,28 @@ impl Context<'_, '_> {
                 }
             })
             .collect();
-        // Jacobian d(res)/dz = √w/scale · dJ/dg_m · dg_m/dz.
+        // Jacobian d(res)/dz = √w/scale · (dJ/dg_m · dg_m/dz + ∂J/∂z). The explicit part is
+        // that of a wall-shear target on a channel whose length is sized: τ = s·|Δp|/L, so
+        // ∂τ/∂L = −τ/L. (A sized width also changes s; that part is left to the damped
+        // iteration, which accepts only steps that lower the residual.)
         let jac: Vec<Vec<f64>> = rws
             .iter()
             .zip(&grads)
             .map(|(r, gr)| {
                 vars.iter()
                     .zip(&dg_dz)
-                    .map(|(v, dg)| r.weight.sqrt() * gr[v.channel.0] * dg / r.scale)
+                    .zip(z)
+                    .map(|((v, dg), &zv)| {
+                        let explicit = match self.design.targets[r.target].kind {
+                            TargetKind::WallShear { channel, .. }
+                                if channel == v.channel && v.dim == SizeDim::Length =>
+                            {
+                                -r.measure(&state.pressures, &state.flows) / zv
+                            }
+                            _ => 0.0,
+                        };
+                        r.weight.sqrt() * (gr[v.channel.0] * dg + explicit) / r.scale
+                    })
                     .collect()
             })
             .collect();

@@ -1,21 +1,31 @@
-//! Targets as dimensionless residual rows, each weighted by √weight:
-//! - channel flow:  (q − q*)/|q*|
-//! - node pressure: (p − p*)/max(|p*|, P_ref)
-//! - split c₁…cₙ in ratio r₁…rₙ: (r₁q_i − r_iq₁)/((r₁ + r_i)·Q_ref) for i = 2…n, with Q_ref the
-//!   current Σ|q| of those channels — zero exactly when the flows are in the ratio.
+//! Targets as dimensionless residual rows, each weighted by √weight, and their verdicts.
 //!
 //! Every row is a linear measure of the state (coefficients on channel flows and node
-//! pressures), which is what lets tuning superpose unit responses and the adjoint
-//! differentiate a row with one extra solve.
+//! pressures) minus its wanted value, over a scale that does not depend on the state:
+//! - channel flow:  (q − q*)/|q*|
+//! - node pressure: (p − p*)/max(|p*|, P_ref)
+//! - wall shear:    (σ·s·(p_from − p_to)/L − τ*)/τ*, with s = τ_max/G (maximum) or A/P (mean)
+//!   of the section and σ the sign of the channel's flow at the reference state (the shear is
+//!   s·|Δp|/L = s·(μ/K)·|q|; with the sign fixed it is linear);
+//! - split c₁…cₙ in ratio r₁…rₙ: one row per channel, (q_i − ρ_i·Σ_j q_j)/Q_ref with the
+//!   wanted share ρ_i = r_i/Σr, zero for every i exactly when the flows are in the ratio.
+//!   Q_ref is a constant of the problem chosen by the caller ([`Scales`]): tuning takes the
+//!   group's total flow at full scale of every adjustable port (see `tune`), sizing the
+//!   group's total flow at the starting sizes.
+//!
+//! Because every row is linear in the state with a fixed scale, tuning's weighted least-squares
+//! problem is linear and solved exactly in one go, and the adjoint differentiates a row with
+//! one extra solve.
+//!
+//! Verdicts do not depend on these scales: a target is met when its reached value is within
+//! its [`Tolerance`] of the wanted value ([`evaluate`]).
 
-use super::{Target, TargetKind};
+use super::{Design, ShearMeasure, Target, TargetKind, Tolerance};
+use crate::analysis::kirchhoff::FlowSolution;
 use crate::network::{ChannelId, Network};
 
 /// Reference pressure for pressure targets of 0 Pa.
-const P_REF: f64 = 100.0;
-
-/// Relative miss below which a target counts as met.
-pub const MET: f64 = 1e-9;
+pub const P_REF: f64 = 100.0;
 
 /// One residual row: a linear measure of the state (coefficients on channel flows and node
 /// pressures), its wanted value, and its scale.
@@ -62,8 +72,59 @@ impl Row {
     }
 }
 
-/// The residual rows of `targets`; split rows take Q_ref from `flows`.
-pub(super) fn rows(targets: &[Target], flows: &[f64]) -> Vec<Row> {
+/// The state-independent constants of the rows, per target: the reference flow Q_ref of a
+/// split and the flow sign σ of a wall-shear target (1 for the other kinds).
+#[derive(Clone, Debug)]
+pub(super) struct Scales {
+    pub(super) split_ref: Vec<f64>,
+    pub(super) shear_sign: Vec<f64>,
+}
+
+impl Scales {
+    /// Scales taken from one state: Q_ref = |Σ q| of each split group (else Σ|q|, else
+    /// 1e-18 m³/s), σ = sign of the channel's flow (+1 without flow).
+    pub(super) fn from_flows(targets: &[Target], flows: &[f64]) -> Scales {
+        let split_ref = targets
+            .iter()
+            .map(|t| match &t.kind {
+                TargetKind::Split { channels, .. } => {
+                    let total = channels.iter().map(|c| flows[c.0]).sum::<f64>().abs();
+                    let abs = channels.iter().map(|c| flows[c.0].abs()).sum::<f64>();
+                    if total > 0.0 {
+                        total
+                    } else {
+                        abs.max(1e-18)
+                    }
+                }
+                _ => 1.0,
+            })
+            .collect();
+        let shear_sign = targets
+            .iter()
+            .map(|t| match &t.kind {
+                TargetKind::WallShear { channel, .. } if flows[channel.0] < 0.0 => -1.0,
+                _ => 1.0,
+            })
+            .collect();
+        Scales {
+            split_ref,
+            shear_sign,
+        }
+    }
+}
+
+/// τ/(Δp/L) of a channel's section for the measure: τ_max/G or A/P [m].
+pub(super) fn shear_factor(network: &Network, channel: ChannelId, measure: ShearMeasure) -> f64 {
+    let fig = &network.section_of(channel).figures;
+    match measure {
+        ShearMeasure::Max => fig.max_wall_shear_per_gradient,
+        ShearMeasure::Mean => fig.mean_wall_shear_per_gradient(),
+    }
+}
+
+/// The residual rows of `targets` (one per flow, pressure and wall-shear target; one per
+/// channel of a split).
+pub(super) fn rows(network: &Network, targets: &[Target], scales: &Scales) -> Vec<Row> {
     let mut out = Vec::new();
     for (t, target) in targets.iter().enumerate() {
         match &target.kind {
@@ -83,66 +144,127 @@ pub(super) fn rows(targets: &[Target], flows: &[f64]) -> Vec<Row> {
                 weight: target.weight,
                 target: t,
             }),
+            TargetKind::WallShear {
+                channel,
+                shear,
+                measure,
+            } => {
+                let ch = &network.channels[*channel];
+                let c = scales.shear_sign[t] * shear_factor(network, *channel, *measure)
+                    / ch.length.si();
+                out.push(Row {
+                    flow_coeffs: vec![],
+                    pressure_coeffs: vec![(ch.from.0, c), (ch.to.0, -c)],
+                    wanted: *shear,
+                    scale: shear.abs().max(1e-300),
+                    weight: target.weight,
+                    target: t,
+                });
+            }
             TargetKind::Split { channels, ratio } => {
-                out.extend(split_rows(channels, ratio, flows, target.weight, t));
+                let sum: f64 = ratio.iter().sum();
+                for (i, r) in ratio.iter().enumerate() {
+                    let share = r / sum;
+                    let mut flow_coeffs: Vec<(usize, f64)> =
+                        channels.iter().map(|c| (c.0, -share)).collect();
+                    flow_coeffs.push((channels[i].0, 1.0));
+                    out.push(Row {
+                        flow_coeffs,
+                        pressure_coeffs: vec![],
+                        wanted: 0.0,
+                        scale: scales.split_ref[t],
+                        weight: target.weight,
+                        target: t,
+                    });
+                }
             }
         }
     }
     out
 }
 
-/// Rows (r₁q_i − r_iq₁)/((r₁ + r_i)·Q_ref), i = 2…n, of one split target.
-fn split_rows(
-    channels: &[ChannelId],
-    ratio: &[f64],
-    flows: &[f64],
-    weight: f64,
-    target: usize,
-) -> Vec<Row> {
-    let qref = channels
-        .iter()
-        .map(|c| flows[c.0].abs())
-        .sum::<f64>()
-        .max(1e-18);
-    (1..channels.len())
-        .map(|i| {
-            let (r1, ri) = (ratio[0], ratio[i]);
-            Row {
-                flow_coeffs: vec![
-                    (channels[i].0, r1 / (r1 + ri)),
-                    (channels[0].0, -ri / (r1 + ri)),
-                ],
-                pressure_coeffs: vec![],
-                wanted: 0.0,
-                scale: qref,
-                weight,
-                target,
-            }
-        })
-        .collect()
+/// What a target's values are.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum TargetQuantity {
+    /// A channel flow [m³/s].
+    Flow,
+    /// A node pressure [Pa].
+    Pressure,
+    /// The first channel's share of a split group's total flow.
+    Share,
+    /// A wall shear stress [Pa] (maximum or mean).
+    WallShear(ShearMeasure),
 }
 
-/// ‖weighted residual‖₂ of `targets` in the state (`pressures`, `flows`).
-pub(super) fn residual_norm(targets: &[Target], pressures: &[f64], flows: &[f64]) -> f64 {
-    rows(targets, flows)
-        .iter()
-        .map(|r| r.residual(pressures, flows).powi(2))
-        .sum::<f64>()
-        .sqrt()
+/// Why tuning cannot move a target.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum NotControllable {
+    /// No adjustable port changes the measure (its row of the response matrix is zero
+    /// relative to its scale).
+    NoResponse,
+    /// Every adjustable port changes the split channels' flows in one and the same
+    /// proportion, so the shares cannot change.
+    FixedShares,
 }
 
 /// How a target came out.
 #[derive(Clone, Debug, PartialEq)]
 pub struct TargetOutcome {
     pub target: usize,
-    /// Human description ("flow in c3", "split c3:c4", "pressure at n2").
+    /// Short description for tables ("flow in c3", "split c3:c4 in 1:2", "pressure at n2").
     pub what: String,
-    /// Wanted and reached values: flow [m³/s], pressure [Pa], or for a split the share of the
-    /// first channel in the group's total flow.
+    pub quantity: TargetQuantity,
+    /// Wanted and reached values in SI (flow, pressure, wall shear), or for a split the share
+    /// of the first channel in the group's total flow.
     pub wanted: f64,
     pub reached: f64,
-    /// Largest dimensionless residual of this target (0 = met).
+    /// |reached − wanted| in SI (for a split: the largest miss of a share).
+    pub error: f64,
+    /// The error relative to the target's scale (for a split: the largest share miss relative
+    /// to its wanted share).
     pub miss: f64,
+    pub tolerance: Tolerance,
+    /// Within the tolerance (or, after snapping to fabrication steps, within the miss the
+    /// snapping itself causes, when that is larger).
+    pub met: bool,
+    /// Whether an adjustable port can move the target (always true outside tuning).
+    pub controllable: bool,
+    pub not_controllable: Option<NotControllable>,
+    /// The relative miss caused by snapping sized dimensions to their fabrication steps, for
+    /// a target that was met before snapping.
+    pub snapping_miss: Option<f64>,
+}
+
+impl TargetOutcome {
+    /// Re-judge `met` from the error, the tolerance and the snapping allowance.
+    pub fn judge(&mut self) {
+        let within = match self.tolerance {
+            Tolerance::Relative(t) => self.miss <= t,
+            Tolerance::Absolute(a) => self.error <= a,
+        };
+        let snapped = self.snapping_miss.is_some_and(|s| self.miss <= s);
+        self.met = self.miss.is_finite() && (within || snapped);
+    }
+
+    /// The allowed relative miss, when the tolerance is relative: max(tolerance, snapping miss).
+    pub fn allowed_relative(&self) -> Option<f64> {
+        match self.tolerance {
+            Tolerance::Relative(t) => Some(self.snapping_miss.map_or(t, |s| s.max(t))),
+            Tolerance::Absolute(_) => None,
+        }
+    }
+}
+
+/// How every target of `design` came out in `solution` (a solve of `network`), judged
+/// against each target's tolerance. The same code judges the analysis result and the copy
+/// read back from the written file.
+pub fn evaluate(network: &Network, design: &Design, solution: &FlowSolution) -> Vec<TargetOutcome> {
+    outcomes(
+        network,
+        &design.targets,
+        &solution.pressures,
+        &solution.flows,
+    )
 }
 
 /// How every target came out in the state (`pressures`, `flows`).
@@ -152,45 +274,78 @@ pub(super) fn outcomes(
     pressures: &[f64],
     flows: &[f64],
 ) -> Vec<TargetOutcome> {
-    let rws = rows(targets, flows);
     targets
         .iter()
         .enumerate()
         .map(|(t, target)| {
-            let miss = rws
-                .iter()
-                .filter(|r| r.target == t)
-                .map(|r| ((r.measure(pressures, flows) - r.wanted) / r.scale).abs())
-                .fold(0.0, f64::max);
-            let (what, wanted, reached) = describe(network, &target.kind, pressures, flows);
-            TargetOutcome {
+            let (what, quantity, wanted, reached, error, miss) =
+                describe(network, &target.kind, pressures, flows);
+            let mut o = TargetOutcome {
                 target: t,
                 what,
+                quantity,
                 wanted,
                 reached,
+                error,
                 miss,
-            }
+                tolerance: target.tolerance,
+                met: false,
+                controllable: true,
+                not_controllable: None,
+                snapping_miss: None,
+            };
+            o.judge();
+            o
         })
         .collect()
 }
 
-/// A target's description, wanted value and reached value.
-fn describe(
-    network: &Network,
-    kind: &TargetKind,
-    pressures: &[f64],
-    flows: &[f64],
-) -> (String, f64, f64) {
+/// Reached shear of a channel: s·|p_from − p_to|/L.
+fn shear_of(network: &Network, channel: ChannelId, measure: ShearMeasure, p: &[f64]) -> f64 {
+    let ch = &network.channels[channel];
+    shear_factor(network, channel, measure) * (p[ch.from.0] - p[ch.to.0]).abs() / ch.length.si()
+}
+
+type Described = (String, TargetQuantity, f64, f64, f64, f64);
+
+/// A target's description, quantity, wanted and reached values, error and relative miss.
+fn describe(network: &Network, kind: &TargetKind, pressures: &[f64], flows: &[f64]) -> Described {
+    let plain = |what: String, q: TargetQuantity, wanted: f64, reached: f64, scale: f64| {
+        let error = (reached - wanted).abs();
+        (what, q, wanted, reached, error, error / scale)
+    };
     match kind {
-        TargetKind::ChannelFlow { channel, flow } => (
+        TargetKind::ChannelFlow { channel, flow } => plain(
             format!("flow in {}", network.channels[*channel].name),
+            TargetQuantity::Flow,
             *flow,
             flows[channel.0],
+            flow.abs().max(1e-18),
         ),
-        TargetKind::NodePressure { node, pressure } => (
+        TargetKind::NodePressure { node, pressure } => plain(
             format!("pressure at {}", network.nodes[*node].name),
+            TargetQuantity::Pressure,
             *pressure,
             pressures[node.0],
+            pressure.abs().max(P_REF),
+        ),
+        TargetKind::WallShear {
+            channel,
+            shear,
+            measure,
+        } => plain(
+            format!(
+                "{} wall shear in {}",
+                match measure {
+                    ShearMeasure::Max => "max",
+                    ShearMeasure::Mean => "mean",
+                },
+                network.channels[*channel].name
+            ),
+            TargetQuantity::WallShear(*measure),
+            *shear,
+            shear_of(network, *channel, *measure, pressures),
+            shear.abs().max(1e-300),
         ),
         TargetKind::Split { channels, ratio } => {
             let names: Vec<&str> = channels
@@ -199,14 +354,28 @@ fn describe(
                 .collect();
             let ratios: Vec<String> = ratio.iter().map(|r| format!("{r}")).collect();
             let total: f64 = channels.iter().map(|c| flows[c.0]).sum();
+            let sum: f64 = ratio.iter().sum();
+            let (mut error, mut miss) = (0.0f64, 0.0f64);
+            for (c, r) in channels.iter().zip(ratio) {
+                let e = if total != 0.0 {
+                    (flows[c.0] / total - r / sum).abs()
+                } else {
+                    f64::INFINITY
+                };
+                error = error.max(e);
+                miss = miss.max(e / (r / sum));
+            }
             (
                 format!("split {} in {}", names.join(":"), ratios.join(":")),
-                ratio[0] / ratio.iter().sum::<f64>(),
+                TargetQuantity::Share,
+                ratio[0] / sum,
                 if total != 0.0 {
                     flows[channels[0].0] / total
                 } else {
                     f64::NAN
                 },
+                error,
+                miss,
             )
         }
     }

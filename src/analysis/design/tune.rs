@@ -1,19 +1,47 @@
-//! Tuning: the adjustable port settings that best meet the targets, within bounds.
+//! Tuning: the adjustable port settings that best meet the targets, within bounds and limits.
 //!
 //! Tuning is linear: flows and pressures are linear in the drive settings, so the response to
 //! each adjustable port is one extra right-hand side on the same factorisation (the matrix
-//! does not depend on the drives), and the bounded least-squares problem is solved exactly
-//! ([`super::super::boxqp`]). Split rows depend on the flows through Q_ref, so the problem is
-//! re-linearised a few times (fixed-point passes).
+//! does not depend on the drives). Every target row is linear with a fixed scale (see
+//! `targets`), so the weighted least-squares problem
+//!
+//!   minimise Σ w_t·row_t(x)²  subject to  bounds, |q_k| ≤ q̄_k (wall-shear limits),
+//!   −min(rating, 1 atm) ≤ p_i ≤ rating (pressure rating and vacuum)
+//!
+//! is a linear least-squares problem with linear inequality constraints, solved exactly by
+//! [`super::super::lsq`] (Lawson & Hanson 1974: LSI → LDP → NNLS), with the least change from
+//! the file's settings in the directions the targets cannot see.
+//!
+//! Conventions:
+//! - settings are scaled to O(1): y_j = x_j/s_j with s_j = max(|min|, |max|, |file setting|);
+//! - a split's reference flow Q_ref is the group's flow at full scale of every port,
+//!   Σ_c (|q⁰_c| + Σ_j s_j·|∂q_c/∂x_j|) (q⁰: the fixed ports alone), a constant of the problem;
+//! - a wall-shear target's flow sign is the sign at the file's settings (clamped to bounds);
+//! - a target no adjustable port can move (its row of the response matrix is below 1e-9 of its
+//!   scale over the settings' range, or, for a split, every port changes the group's flows in
+//!   the same proportion as the fixed ports do) is reported not controllable and left out;
+//! - limits are held with a relative margin of [`LIMIT_MARGIN`], so that a copy written with
+//!   enough digits stays inside them; a limit is reported active within [`ACTIVE_TOL`] of it.
 
-use super::super::boxqp::{self, BoxLsq};
 use super::super::kirchhoff::{conductances, drive_values, FlowSolution, Solver};
-use super::targets::{outcomes, residual_norm, rows, TargetOutcome, MET};
-use super::{Adjustable, Design, DesignError};
-use crate::network::{Network, NodeId};
+use super::super::limits::STANDARD_ATMOSPHERE;
+use super::super::lsq;
+use super::super::Place;
+use super::targets::{outcomes, rows, NotControllable, Scales, TargetOutcome};
+use super::{Adjustable, Design, DesignError, TargetKind};
+use crate::network::{ChannelId, Network, NodeId};
 
-/// Fixed-point passes over the split scales Q_ref.
-const PASSES: usize = 4;
+/// Relative margin inside every limit held as a constraint.
+pub const LIMIT_MARGIN: f64 = 1e-8;
+
+/// A limit counts as active when the tuned state is within this fraction of it (beyond the
+/// margin): many channels in series can sit on their limits together, and the solve places
+/// them on it only to its own accuracy.
+pub const ACTIVE_TOL: f64 = 1e-7;
+
+/// A response below this fraction of a target's scale (over the whole range of the settings)
+/// counts as none.
+const CONTROL_TOL: f64 = 1e-9;
 
 /// A tuned setting.
 #[derive(Clone, Debug, PartialEq)]
@@ -27,63 +55,195 @@ pub struct Setting {
     pub at_bound: i8,
 }
 
+/// Which limit a constraint holds.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum LimitKind {
+    /// A channel's maximum wall shear against its limit.
+    WallShear,
+    /// A node's gauge pressure against the chip's pressure rating.
+    PressureRating,
+    /// A node's gauge pressure against −1 atm (vacuum).
+    Vacuum,
+}
+
+/// A limit the tuned settings sit on.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct ActiveLimit {
+    pub place: Place,
+    pub kind: LimitKind,
+    /// +1 at the upper side (flow in the channel's direction, pressure above), −1 below.
+    pub side: i8,
+}
+
+/// How limits entered the problem.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum LimitHandling {
+    /// Held as constraints.
+    Constrained,
+    /// Left out on request (`--ignore-limits`).
+    Ignored,
+    /// The limits cannot all hold within the bounds (with the fixed ports as they are); the
+    /// settings were found without them.
+    Unattainable,
+}
+
+/// Singular values of the (scaled, weighted) response matrix below this fraction of the
+/// largest make the problem badly conditioned: their directions are reported.
+pub const WEAK_DIRECTION: f64 = 1e-6;
+
+/// Directions in the settings that the targets cannot see (free: singular values at or below
+/// [`lsq::RANK_TOL`] of the largest, taking the least change from the file's settings) or
+/// barely see (weak: below [`WEAK_DIRECTION`], badly conditioned).
+#[derive(Clone, Debug, PartialEq)]
+pub struct FreeDirection {
+    /// Ports that move along the direction(s).
+    pub ports: Vec<NodeId>,
+    /// Targets that depend on those ports (and cannot, or barely, tell them apart).
+    pub targets: Vec<usize>,
+    /// Free (true) or weak (false).
+    pub free: bool,
+    /// Singular value over the largest (0 for free directions counted as such).
+    pub singular_value_ratio: f64,
+}
+
 /// Result of tuning.
 #[derive(Clone, Debug, PartialEq)]
 pub struct TuneResult {
     pub settings: Vec<Setting>,
     pub targets: Vec<TargetOutcome>,
-    /// ‖weighted residual‖ at the optimum.
+    /// ‖weighted residual‖ at the optimum (controllable targets).
     pub residual_norm: f64,
-    /// Every target met to 1e-9 relative.
-    pub feasible: bool,
+    /// Every target met within its tolerance.
+    pub all_targets_met: bool,
+    pub limits: LimitHandling,
+    /// Limits the settings sit on (constraints with no slack).
+    pub active_limits: Vec<ActiveLimit>,
+    /// Directions left to the least change from the file's settings.
+    pub free_directions: Vec<FreeDirection>,
+    /// Significant digits of the written settings (set when a copy is written).
+    pub written_digits: Option<usize>,
     /// The checked flow state at the tuned settings (with its refinement count and residual).
     pub solution: FlowSolution,
 }
 
-/// Find the adjustable port settings that best meet the targets, within bounds
+/// Options of [`tune_with_options`].
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct TuneOptions {
+    /// Leave wall-shear limits, the pressure rating and vacuum out of the problem.
+    pub ignore_limits: bool,
+}
+
+/// Find the adjustable port settings that best meet the targets, within bounds and limits
 /// ([`tune_with`] on a new [`Solver`]).
 pub fn tune(network: &Network, design: &Design) -> Result<TuneResult, DesignError> {
     check_design(design)?;
     tune_with(&Solver::new(network)?, design)
 }
 
+/// [`tune_with_options`] with the limits held.
+pub fn tune_with(solver: &Solver<'_>, design: &Design) -> Result<TuneResult, DesignError> {
+    tune_with_options(solver, design, TuneOptions::default())
+}
+
 /// [`tune`] on the network of `solver`: one factorisation ([`Solver::factorize`]) serves the
 /// unit responses ([`super::super::kirchhoff::Factor::solve_many`]) and the check at the
 /// tuned settings.
-pub fn tune_with(solver: &Solver<'_>, design: &Design) -> Result<TuneResult, DesignError> {
+pub fn tune_with_options(
+    solver: &Solver<'_>,
+    design: &Design,
+    options: TuneOptions,
+) -> Result<TuneResult, DesignError> {
     check_design(design)?;
     let network = solver.network();
     let base = drive_values(network);
     let factor = solver.factorize(conductances(network))?;
     let states = factor.solve_many(&drive_sets(&base, &design.adjustable))?;
-    let problem = Scaled::new(&base, &design.adjustable);
-    let best = fixed_point(design, &problem, &states);
-    let tuned = problem.settings(&base, &design.adjustable, &best.x);
+    let scaled = Scaled::new(&base, &design.adjustable);
+    let problem = Problem::new(network, design, &scaled, &states);
+    let bounds = bound_constraints(&scaled);
+    let mut limits = if options.ignore_limits {
+        LimitHandling::Ignored
+    } else {
+        LimitHandling::Constrained
+    };
+    let limit_rows = if options.ignore_limits {
+        vec![]
+    } else {
+        limit_constraints(network, &scaled, &states)
+    };
+    let all: Vec<Constraint> = bounds.iter().chain(&limit_rows).cloned().collect();
+    let mut lsi = problem.solve(&all, &scaled.start);
+    if !lsi.feasible {
+        limits = LimitHandling::Unattainable;
+        lsi = problem.solve(&bounds, &scaled.start);
+    }
+    let used = if limits == LimitHandling::Constrained {
+        &all
+    } else {
+        &bounds
+    };
+    let y: Vec<f64> = lsi
+        .x
+        .iter()
+        .zip(scaled.lo.iter().zip(&scaled.hi))
+        .map(|(y, (lo, hi))| y.clamp(*lo, *hi))
+        .collect();
+    let tuned = scaled.settings(&base, &design.adjustable, &y);
     let solution = factor.solve(&tuned)?;
-    let targets = outcomes(
+    let mut targets = outcomes(
         network,
         &design.targets,
         &solution.pressures,
         &solution.flows,
     );
+    for (o, c) in targets.iter_mut().zip(&problem.control) {
+        o.controllable = c.is_none();
+        o.not_controllable = *c;
+    }
+    let active = |label: &Label| {
+        used.iter()
+            .zip(&lsi.slack)
+            .any(|(c, s)| &c.label == label && *s <= 1e-9)
+    };
     let settings = design
         .adjustable
         .iter()
-        .zip(&best.active)
-        .map(|(a, &at_bound)| Setting {
+        .enumerate()
+        .map(|(j, a)| Setting {
             node: a.node,
             before: base[a.node.0],
             after: tuned[a.node.0],
             min: a.min,
             max: a.max,
-            at_bound,
+            at_bound: if a.min == a.max {
+                0
+            } else if active(&Label::Lower(j)) || y[j] <= scaled.lo[j] {
+                -1
+            } else if active(&Label::Upper(j)) || y[j] >= scaled.hi[j] {
+                1
+            } else {
+                0
+            },
         })
         .collect();
+    let active_limits = if limits == LimitHandling::Constrained {
+        used.iter()
+            .zip(&lsi.slack)
+            .filter(|(_, s)| **s <= ACTIVE_TOL)
+            .filter_map(|(c, _)| c.label.limit())
+            .collect()
+    } else {
+        vec![]
+    };
     Ok(TuneResult {
-        feasible: targets.iter().all(|t| t.miss <= MET),
-        residual_norm: residual_norm(&design.targets, &solution.pressures, &solution.flows),
+        all_targets_met: targets.iter().all(|t| t.met),
+        residual_norm: lsi.residual_norm,
+        free_directions: problem.free_directions(&lsi, &design.adjustable),
         settings,
         targets,
+        limits,
+        active_limits,
+        written_digits: None,
         solution,
     })
 }
@@ -158,54 +318,371 @@ impl Scaled {
         drives
     }
 
-    /// Flows at the scaled settings `y`, superposed from the unit responses.
-    fn flows(&self, states: &[FlowSolution], y: &[f64]) -> Vec<f64> {
-        let mut q = states[0].flows.clone();
-        for ((state, yj), s) in states[1..].iter().zip(y).zip(&self.scale) {
-            for (qi, v) in q.iter_mut().zip(&state.flows) {
-                *qi += yj * s * v;
+    /// A linear quantity of the state at the scaled settings `y`: value(fixed) + Σ y_j·s_j·
+    /// value(unit j).
+    fn superpose(
+        &self,
+        states: &[FlowSolution],
+        y: &[f64],
+        value: impl Fn(&FlowSolution) -> f64,
+    ) -> f64 {
+        value(&states[0])
+            + states[1..]
+                .iter()
+                .zip(y)
+                .zip(&self.scale)
+                .map(|((st, yj), s)| yj * s * value(st))
+                .sum::<f64>()
+    }
+}
+
+/// What a constraint row holds.
+#[derive(Clone, Copy, Debug, PartialEq)]
+enum Label {
+    Lower(usize),
+    Upper(usize),
+    Shear(ChannelId, i8),
+    Rating(NodeId, i8),
+    Vacuum(NodeId),
+}
+
+impl Label {
+    fn limit(&self) -> Option<ActiveLimit> {
+        match *self {
+            Label::Lower(_) | Label::Upper(_) => None,
+            Label::Shear(c, side) => Some(ActiveLimit {
+                place: Place::Channel(c),
+                kind: LimitKind::WallShear,
+                side,
+            }),
+            Label::Rating(n, side) => Some(ActiveLimit {
+                place: Place::Node(n),
+                kind: LimitKind::PressureRating,
+                side,
+            }),
+            Label::Vacuum(n) => Some(ActiveLimit {
+                place: Place::Node(n),
+                kind: LimitKind::Vacuum,
+                side: -1,
+            }),
+        }
+    }
+}
+
+/// One linear inequality g·y ≥ h on the scaled settings.
+#[derive(Clone, Debug)]
+struct Constraint {
+    g: Vec<f64>,
+    h: f64,
+    label: Label,
+}
+
+fn bound_constraints(scaled: &Scaled) -> Vec<Constraint> {
+    let n = scaled.scale.len();
+    let unit = |j: usize, v: f64| -> Vec<f64> {
+        let mut g = vec![0.0; n];
+        g[j] = v;
+        g
+    };
+    (0..n)
+        .flat_map(|j| {
+            [
+                Constraint {
+                    g: unit(j, 1.0),
+                    h: scaled.lo[j],
+                    label: Label::Lower(j),
+                },
+                Constraint {
+                    g: unit(j, -1.0),
+                    h: -scaled.hi[j],
+                    label: Label::Upper(j),
+                },
+            ]
+        })
+        .collect()
+}
+
+/// `lower ≤ value(y) ≤ upper` for a quantity value(y) = v₀ + a·y, each side divided by its
+/// bound's size and held with [`LIMIT_MARGIN`]; sides that no port moves are left out.
+fn two_sided(
+    out: &mut Vec<Constraint>,
+    v0: f64,
+    a: &[f64],
+    lower: Option<(f64, Label)>,
+    upper: Option<(f64, Label)>,
+) {
+    if a.iter().all(|v| *v == 0.0) {
+        return;
+    }
+    if let Some((up, label)) = upper {
+        let k = up.abs();
+        out.push(Constraint {
+            g: a.iter().map(|v| -v / k).collect(),
+            h: (v0 - up * (1.0 - LIMIT_MARGIN)) / k,
+            label,
+        });
+    }
+    if let Some((lo, label)) = lower {
+        let k = lo.abs();
+        out.push(Constraint {
+            g: a.iter().map(|v| v / k).collect(),
+            h: (lo * (1.0 - LIMIT_MARGIN) - v0) / k,
+            label,
+        });
+    }
+}
+
+/// Wall-shear limits (|q_k| ≤ q̄_k = τ_limit·K/(s·μ), s = τ_max/G of the section) and the
+/// pressure rating and vacuum at every node, as constraints on the scaled settings.
+fn limit_constraints(
+    network: &Network,
+    scaled: &Scaled,
+    states: &[FlowSolution],
+) -> Vec<Constraint> {
+    let mut out = Vec::new();
+    let mu = network.fluid.viscosity.si();
+    for (k, ch) in network.channels.iter().enumerate() {
+        let Some(limit) = ch.shear_limit.or(network.fluid.shear_limit).map(|p| p.si()) else {
+            continue;
+        };
+        let fig = &network.sections[ch.section].figures;
+        let qbar = limit * fig.conductance_factor / (fig.max_wall_shear_per_gradient * mu);
+        if !(qbar.is_finite() && qbar > 0.0) {
+            continue;
+        }
+        let a: Vec<f64> = states[1..]
+            .iter()
+            .zip(&scaled.scale)
+            .map(|(st, s)| st.flows[k] * s)
+            .collect();
+        let c = ChannelId(k);
+        two_sided(
+            &mut out,
+            states[0].flows[k],
+            &a,
+            Some((-qbar, Label::Shear(c, -1))),
+            Some((qbar, Label::Shear(c, 1))),
+        );
+    }
+    let rating = network.pressure_rating.map(|r| r.si());
+    for i in 0..network.nodes.len() {
+        let a: Vec<f64> = states[1..]
+            .iter()
+            .zip(&scaled.scale)
+            .map(|(st, s)| st.pressures[i] * s)
+            .collect();
+        let node = NodeId(i);
+        let lower = match rating {
+            Some(r) if r < STANDARD_ATMOSPHERE => (-r, Label::Rating(node, -1)),
+            _ => (-STANDARD_ATMOSPHERE, Label::Vacuum(node)),
+        };
+        two_sided(
+            &mut out,
+            states[0].pressures[i],
+            &a,
+            Some(lower),
+            rating.map(|r| (r, Label::Rating(node, 1))),
+        );
+    }
+    out
+}
+
+/// The weighted least-squares problem in the scaled settings: A·y ≈ r over the controllable
+/// targets' rows.
+struct Problem {
+    a: Vec<Vec<f64>>,
+    r: Vec<f64>,
+    /// The target of each row.
+    row_target: Vec<usize>,
+    /// Why each target is not controllable (None: it is).
+    control: Vec<Option<NotControllable>>,
+}
+
+impl Problem {
+    fn new(
+        network: &Network,
+        design: &Design,
+        scaled: &Scaled,
+        states: &[FlowSolution],
+    ) -> Problem {
+        let targets = &design.targets;
+        // Reference flows at the file's settings (clamped) for the wall-shear signs, and the
+        // split groups' flow at full scale.
+        let n_ch = network.channels.len();
+        let flows_at_start: Vec<f64> = (0..n_ch)
+            .map(|k| scaled.superpose(states, &scaled.start, |st| st.flows[k]))
+            .collect();
+        let mut scales = Scales::from_flows(targets, &flows_at_start);
+        for (t, target) in targets.iter().enumerate() {
+            if let TargetKind::Split { channels, .. } = &target.kind {
+                let full: f64 = channels
+                    .iter()
+                    .map(|c| {
+                        states[0].flows[c.0].abs()
+                            + states[1..]
+                                .iter()
+                                .zip(&scaled.scale)
+                                .map(|(st, s)| s * st.flows[c.0].abs())
+                                .sum::<f64>()
+                    })
+                    .sum();
+                scales.split_ref[t] = full.max(1e-18);
             }
         }
-        q
-    }
-}
-
-/// Bounded linear least squares, re-linearised while the split scales move (at most
-/// [`PASSES`] passes, stopping when the settings repeat to 1e-13).
-fn fixed_point(design: &Design, problem: &Scaled, states: &[FlowSolution]) -> BoxLsq {
-    let mut y = problem.start.clone();
-    let mut sol = linearised(design, problem, states, &y);
-    for _ in 1..PASSES {
-        let converged = sol
-            .x
+        let control: Vec<Option<NotControllable>> = targets
             .iter()
-            .zip(&y)
-            .all(|(a, b)| (a - b).abs() <= 1e-13 * a.abs().max(1.0));
-        if converged {
-            break;
+            .map(|t| controllability(&t.kind, scaled, states))
+            .collect();
+        let rws = rows(network, targets, &scales);
+        let mut a = Vec::new();
+        let mut r = Vec::new();
+        let mut row_target = Vec::new();
+        for row in rws.iter().filter(|row| control[row.target].is_none()) {
+            let w = row.weight.sqrt();
+            a.push(
+                states[1..]
+                    .iter()
+                    .zip(&scaled.scale)
+                    .map(|(st, s)| w * row.measure(&st.pressures, &st.flows) * s / row.scale)
+                    .collect(),
+            );
+            r.push(-row.residual(&states[0].pressures, &states[0].flows));
+            row_target.push(row.target);
         }
-        y = sol.x.clone();
-        sol = linearised(design, problem, states, &y);
+        Problem {
+            a,
+            r,
+            row_target,
+            control,
+        }
     }
-    sol
+
+    fn solve(&self, constraints: &[Constraint], start: &[f64]) -> lsq::Lsi {
+        let g: Vec<Vec<f64>> = constraints.iter().map(|c| c.g.clone()).collect();
+        let h: Vec<f64> = constraints.iter().map(|c| c.h).collect();
+        lsq::solve(&self.a, &self.r, &g, &h, start)
+    }
+
+    /// The free directions of the solve (together) and each weak one, with the ports that
+    /// move along them and the targets that depend on those ports.
+    fn free_directions(&self, lsi: &lsq::Lsi, adjustable: &[Adjustable]) -> Vec<FreeDirection> {
+        if self.a.is_empty() {
+            return vec![];
+        }
+        let top = lsi.singular_values.first().copied().unwrap_or(0.0);
+        let ratio = |i: usize| {
+            if top > 0.0 {
+                lsi.singular_values[i] / top
+            } else {
+                0.0
+            }
+        };
+        let mut out = Vec::new();
+        let weak: Vec<usize> = (0..lsi.rank)
+            .filter(|&i| ratio(i) <= WEAK_DIRECTION)
+            .collect();
+        for i in weak {
+            out.push(self.direction(&[&lsi.directions[i]], adjustable, false, ratio(i)));
+        }
+        if !lsi.free.is_empty() {
+            let vs: Vec<&Vec<f64>> = lsi.free.iter().collect();
+            out.push(self.direction(&vs, adjustable, true, 0.0));
+        }
+        out
+    }
+
+    fn direction(
+        &self,
+        vs: &[&Vec<f64>],
+        adjustable: &[Adjustable],
+        free: bool,
+        singular_value_ratio: f64,
+    ) -> FreeDirection {
+        let mut ports: Vec<usize> = Vec::new();
+        for v in vs {
+            let top = v.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+            for (j, x) in v.iter().enumerate() {
+                if x.abs() >= 1e-3 * top && !ports.contains(&j) {
+                    ports.push(j);
+                }
+            }
+        }
+        ports.sort_unstable();
+        let mut targets: Vec<usize> = Vec::new();
+        for (row, &t) in self.a.iter().zip(&self.row_target) {
+            let top = row.iter().fold(0.0f64, |m, x| m.max(x.abs()));
+            let depends = ports
+                .iter()
+                .any(|&j| row[j].abs() > CONTROL_TOL * top.max(1e-300));
+            if depends && !targets.contains(&t) {
+                targets.push(t);
+            }
+        }
+        targets.sort_unstable();
+        FreeDirection {
+            ports: ports.iter().map(|&j| adjustable[j].node).collect(),
+            targets,
+            free,
+            singular_value_ratio,
+        }
+    }
 }
 
-/// One pass: rows at the flows of `y`, columns the scaled unit responses, solved in the box.
-fn linearised(design: &Design, problem: &Scaled, states: &[FlowSolution], y: &[f64]) -> BoxLsq {
-    let rws = rows(&design.targets, &problem.flows(states, y));
-    let a: Vec<Vec<f64>> = rws
-        .iter()
-        .map(|r| {
-            states[1..]
+/// Whether any adjustable port can move the target (None) or why not.
+fn controllability(
+    kind: &TargetKind,
+    scaled: &Scaled,
+    states: &[FlowSolution],
+) -> Option<NotControllable> {
+    let units = &states[1..];
+    // Largest change of a linear quantity over the settings' range (|y_j| ≤ 1).
+    let reach = |value: &dyn Fn(&FlowSolution) -> f64| -> f64 {
+        units
+            .iter()
+            .zip(&scaled.scale)
+            .map(|(st, s)| (value(st) * s).abs())
+            .fold(0.0, f64::max)
+    };
+    match kind {
+        TargetKind::ChannelFlow { channel, flow } => {
+            let r = reach(&|st| st.flows[channel.0]);
+            (r <= CONTROL_TOL * flow.abs().max(1e-300)).then_some(NotControllable::NoResponse)
+        }
+        TargetKind::NodePressure { node, pressure } => {
+            let r = reach(&|st| st.pressures[node.0]);
+            (r <= CONTROL_TOL * pressure.abs().max(super::targets::P_REF))
+                .then_some(NotControllable::NoResponse)
+        }
+        TargetKind::WallShear { channel, .. } => {
+            // Relative to the flow at full scale (the shear is proportional to the flow).
+            let r = reach(&|st| st.flows[channel.0]);
+            let full = r + states[0].flows[channel.0].abs();
+            (r <= CONTROL_TOL * full || r == 0.0).then_some(NotControllable::NoResponse)
+        }
+        TargetKind::Split { channels, .. } => {
+            // Columns: the fixed ports' flows and each port's flows at full scale, over the
+            // group. The shares cannot move when every column is parallel to the largest.
+            let mut cols: Vec<Vec<f64>> =
+                vec![channels.iter().map(|c| states[0].flows[c.0]).collect()];
+            for (st, s) in units.iter().zip(&scaled.scale) {
+                cols.push(channels.iter().map(|c| s * st.flows[c.0]).collect());
+            }
+            let norm = |v: &[f64]| v.iter().map(|x| x * x).sum::<f64>().sqrt();
+            if cols[1..].iter().all(|c| norm(c) == 0.0) {
+                return Some(NotControllable::NoResponse);
+            }
+            let big = cols
                 .iter()
-                .zip(&problem.scale)
-                .map(|(st, s)| r.weight.sqrt() * r.measure(&st.pressures, &st.flows) * s / r.scale)
-                .collect()
-        })
-        .collect();
-    let rhs: Vec<f64> = rws
-        .iter()
-        .map(|r| -r.residual(&states[0].pressures, &states[0].flows))
-        .collect();
-    boxqp::solve(&a, &rhs, &problem.lo, &problem.hi, &problem.start)
+                .max_by(|a, b| norm(a).total_cmp(&norm(b)))
+                .cloned()
+                .unwrap_or_default();
+            let nb = norm(&big);
+            let parallel = cols.iter().all(|c| {
+                let proj = c.iter().zip(&big).map(|(a, b)| a * b).sum::<f64>() / (nb * nb);
+                let perp: Vec<f64> = c.iter().zip(&big).map(|(a, b)| a - proj * b).collect();
+                norm(&perp) <= CONTROL_TOL * nb
+            });
+            parallel.then_some(NotControllable::FixedShares)
+        }
+    }
 }
