@@ -1,11 +1,12 @@
 //! Wall shear: the consistent boundary flux turned into nodal shear by a 1-D mass solve along
-//! each wall loop, the largest wall shear as the largest wall-element mean, and the samples,
+//! each wall loop, the largest wall shear at the wall away from re-entrant corners, and the samples,
 //! perimeter and total flux along the walls.
 
 use super::assembly::{solve_symmetric, Solved};
 use super::element::{edge_mass, wall_element};
 use super::mesh::{Frame, Mesh};
 use super::{NumericError, WallSample};
+use crate::section::outline::Point;
 use std::collections::HashMap;
 
 /// The quadratic elements of a wall loop (vertex, edge node, vertex, ...; closed implicitly),
@@ -70,32 +71,70 @@ fn loop_shear(m: &Mesh, w: &[usize], r: &HashMap<usize, f64>) -> Result<Vec<f64>
     Ok(rhs)
 }
 
-/// The largest wall shear, as the largest mean over one wall element (∫τ ds / L), and the
-/// element's middle node.
+/// The largest wall shear away from re-entrant corners, where it is found and the radius of
+/// the neighbourhoods left out (all in the frame).
+#[derive(Clone, Copy, Debug)]
+pub(super) struct MaxShear {
+    pub(super) value: f64,
+    pub(super) at: Point,
+    pub(super) exclusion_radius: f64,
+}
+
+/// The largest wall shear, as the largest mean over one wall element (∫τ ds / L), away from the
+/// re-entrant corners `singular`.
+///
+/// Wall elements with a node closer than `fraction` × Dh (Dh = 4A/P of this mesh) to a
+/// re-entrant corner are left out: the wall shear grows without bound towards such a corner, so
+/// its pointwise value there only reflects the mesh.
 ///
 /// Why a mean and not the largest nodal value: every vertex of a polygonal outline (a measured
 /// profile, a polygon standing for a curve) is a corner of interior angle just under 180°,
 /// where the exact gradient dips to zero over a vanishing length; the nodal flux then
-/// alternates between vertex and edge nodes by a few tenths of a per cent while its integral
-/// stays exact. The element mean is free of that alternation and converges to the pointwise
-/// maximum of a smooth wall shear as h² (one element spans a small part of the wall).
-pub(super) fn max_wall_shear(m: &Mesh, s: &Solved) -> (f64, usize) {
-    let mut best = (
-        0.0f64,
-        m.walls
-            .first()
-            .and_then(|w| w.first().copied())
-            .unwrap_or(0),
-    );
+/// alternates between vertex and edge nodes while its integral stays exact. The element mean
+/// is free of that alternation and converges to the pointwise maximum of a smooth wall shear
+/// as h²; the refinement loop's estimate accounts for that order.
+pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction: f64) -> MaxShear {
+    let perimeter: f64 = m
+        .walls
+        .iter()
+        .flat_map(|w| wall_elements(w))
+        .map(|ids| wall_element(&m.nodes, ids, |_| 0.0).0)
+        .sum();
+    let radius = if perimeter > 0.0 {
+        fraction * 4.0 * s.area / perimeter
+    } else {
+        0.0
+    };
+    let allowed = |i: usize| {
+        let p = m.nodes[i];
+        singular
+            .iter()
+            .all(|c| (p[0] - c[0]).hypot(p[1] - c[1]) > radius)
+    };
+    let mut best: Option<(f64, usize)> = None;
+    let mut any: Option<(f64, usize)> = None;
     for w in &m.walls {
         for ids in wall_elements(w) {
             let (length, integral) = wall_element(&m.nodes, ids, |k| s.shear_at(ids[k]));
-            if length > 0.0 && integral / length > best.0 {
-                best = (integral / length, ids[1]);
+            if length <= 0.0 {
+                continue;
+            }
+            let mean = integral / length;
+            if any.is_none_or(|b| mean > b.0) {
+                any = Some((mean, ids[1]));
+            }
+            if ids.iter().all(|&i| allowed(i)) && best.is_none_or(|b| mean > b.0) {
+                best = Some((mean, ids[1]));
             }
         }
     }
-    best
+    // Every wall element near a singular corner: the plain maximum (flagged by the caller).
+    let (value, node) = best.or(any).unwrap_or((0.0, 0));
+    MaxShear {
+        value,
+        at: m.nodes.get(node).copied().unwrap_or([0.0, 0.0]),
+        exclusion_radius: radius,
+    }
 }
 
 /// The walls walked element by element.
