@@ -350,3 +350,135 @@ fn estimate_bounds_the_error_on_rough_and_re_entrant_outlines() {
     // still bound the error.
     check(&cases, false);
 }
+
+#[test]
+fn tolerance_not_reached_is_stated() {
+    // A node budget too small for the request: the solution says it did not converge and
+    // carries the estimate it reached (above the request), on the solution and the figures.
+    let (shape, _, _) = koh(120.0, 40.0);
+    let opts = NumericOptions {
+        tolerance: 1e-9,
+        shear_tolerance: 1e-3,
+        max_nodes: 5_000,
+    };
+    let s = shape.solve_numeric(&opts).unwrap();
+    assert!(!s.converged);
+    assert!(s.field.nodes.len() <= 5_000);
+    assert!(s.relative_error_estimate.is_finite() && s.relative_error_estimate > 1e-9);
+    assert_eq!(s.requested_tolerance, 1e-9);
+    let (f, _) = shape.figures_with(&opts).unwrap();
+    assert!(!f.converged);
+    assert_eq!(f.relative_error_estimate, s.relative_error_estimate);
+    // With the default budget the default request is met.
+    assert!(shape.figures().unwrap().converged);
+    // One mesh only: no estimate at all, and so no convergence.
+    let s = shape
+        .solve_numeric(&NumericOptions {
+            max_nodes: 100,
+            ..NumericOptions::default()
+        })
+        .unwrap();
+    assert!(!s.converged && s.relative_error_estimate.is_infinite());
+}
+
+#[test]
+fn section_json_states_convergence_and_no_wall_time() {
+    let run = |args: &[&str]| -> serde_json::Value {
+        let out = assert_cmd::Command::cargo_bin("rillnet")
+            .unwrap()
+            .args(args)
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let trapezoid = "{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}";
+    let v = run(&["section", trapezoid, "--format", "json"]);
+    assert_eq!(v["converged"], true);
+    assert!(v.get("seconds").is_none());
+    assert_eq!(v["max_wall_shear_singular"], false);
+    // A request beyond the node budget: converged false with the estimate reached.
+    let v = run(&[
+        "section",
+        trapezoid,
+        "--tolerance",
+        "1e-13",
+        "--format",
+        "json",
+    ]);
+    assert_eq!(v["converged"], false);
+    assert!(v["relative_error_estimate"].as_f64().unwrap() > 1e-13);
+    assert_eq!(v["requested_tolerance"].as_f64().unwrap(), 1e-13);
+    let out = assert_cmd::Command::cargo_bin("rillnet")
+        .unwrap()
+        .args(["section", trapezoid, "--tolerance", "1e-13"])
+        .output()
+        .unwrap();
+    let text = String::from_utf8_lossy(&out.stdout);
+    assert!(
+        text.contains("NOT converged to the requested tolerance"),
+        "{text}"
+    );
+    assert!(!text.contains(" ms"), "{text}");
+}
+
+#[test]
+fn re_entrant_corner_is_flagged_and_left_out_of_the_maximum() {
+    // L-shape, 100 µm arms 50 µm wide: one 270° corner at (50, 50) µm. The wall shear grows
+    // as r^(−1/3) towards it (Strang & Fix 1973, ch. 8: λ = π/α = 2/3), so the pointwise
+    // maximum is unbounded; the reported one lies on the edge of the excluded disc.
+    let shape = Shape::Polygon {
+        points: pts(&[
+            [0.0, 0.0],
+            [100e-6, 0.0],
+            [100e-6, 50e-6],
+            [50e-6, 50e-6],
+            [50e-6, 100e-6],
+            [0.0, 100e-6],
+        ]),
+    };
+    let mut taus = Vec::new();
+    for max_nodes in [60_000, 240_000] {
+        let s = shape
+            .solve_numeric(&NumericOptions {
+                max_nodes,
+                ..NumericOptions::default()
+            })
+            .unwrap();
+        assert!(s.max_wall_shear_singular);
+        assert_eq!(s.singular_corners.len(), 1);
+        let c = s.singular_corners[0];
+        assert!((c.at[0] - 50e-6).abs() < 1e-15 && (c.at[1] - 50e-6).abs() < 1e-15);
+        assert!((c.interior_angle.to_degrees() - 270.0).abs() < 1e-9);
+        // Excluded radius: 2 % of Dh = 4A/P = 75 µm.
+        assert!((s.corner_exclusion_radius - 1.5e-6).abs() < 1e-9);
+        let d = (s.max_shear_at[0] - 50e-6).hypot(s.max_shear_at[1] - 50e-6);
+        assert!(d >= s.corner_exclusion_radius * (1.0 - 1e-9), "{d}");
+        taus.push((s.max_wall_shear_per_gradient, s.shear_error_estimate));
+        let f = shape
+            .figures_with(&NumericOptions {
+                max_nodes,
+                ..NumericOptions::default()
+            })
+            .unwrap()
+            .0;
+        assert!(f.max_wall_shear_singular && f.singular_corner_count == 1);
+        assert_eq!(f.singular_corner, Some(c.at));
+    }
+    // The off-corner maximum settles: the change between the two finest levels lies within
+    // the estimate the finer one reports.
+    let (t0, _) = taus[0];
+    let (t1, e1) = taus[1];
+    assert!(((t1 - t0) / t1).abs() <= e1, "{taus:?}");
+    // A convex outline has no singular corner.
+    let (koh, _, _) = koh(120.0, 40.0);
+    assert!(
+        !koh.solve_numeric(&NumericOptions::default())
+            .unwrap()
+            .max_wall_shear_singular
+    );
+}

@@ -3,7 +3,7 @@
 //! perimeter and total flux along the walls.
 
 use super::assembly::{solve_symmetric, Solved};
-use super::element::{edge_mass, wall_element};
+use super::element::{edge_mass, edge_shape, wall_element};
 use super::mesh::{Frame, Mesh};
 use super::{NumericError, WallSample};
 use crate::section::outline::Point;
@@ -83,9 +83,12 @@ pub(super) struct MaxShear {
 /// The largest wall shear, as the largest mean over one wall element (∫τ ds / L), away from the
 /// re-entrant corners `singular`.
 ///
-/// Wall elements with a node closer than `fraction` × Dh (Dh = 4A/P of this mesh) to a
-/// re-entrant corner are left out: the wall shear grows without bound towards such a corner, so
-/// its pointwise value there only reflects the mesh.
+/// The wall within `fraction` × Dh (Dh = 4A/P of this mesh) of a re-entrant corner is left out:
+/// the wall shear grows without bound towards such a corner, so its pointwise value there only
+/// reflects the mesh. Elements wholly outside contribute their mean; an element the
+/// neighbourhood's circle cuts contributes the wall shear where the wall crosses the circle
+/// (the quadratic interpolant of the nodal flux), so the maximum next to a corner, where the
+/// shear rises towards it, is a value at a fixed place that converges with the mesh.
 ///
 /// Why a mean and not the largest nodal value: every vertex of a polygonal outline (a measured
 /// profile, a polygon standing for a curve) is a corner of interior angle just under 180°,
@@ -111,8 +114,8 @@ pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction:
             .iter()
             .all(|c| (p[0] - c[0]).hypot(p[1] - c[1]) > radius)
     };
-    let mut best: Option<(f64, usize)> = None;
-    let mut any: Option<(f64, usize)> = None;
+    let mut best: Option<(f64, Point)> = None;
+    let mut any: Option<(f64, Point)> = None;
     for w in &m.walls {
         for ids in wall_elements(w) {
             let (length, integral) = wall_element(&m.nodes, ids, |k| s.shear_at(ids[k]));
@@ -121,20 +124,71 @@ pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction:
             }
             let mean = integral / length;
             if any.is_none_or(|b| mean > b.0) {
-                any = Some((mean, ids[1]));
+                any = Some((mean, m.nodes[ids[1]]));
             }
-            if ids.iter().all(|&i| allowed(i)) && best.is_none_or(|b| mean > b.0) {
-                best = Some((mean, ids[1]));
+            let inside = ids.map(|i| !allowed(i));
+            if !inside.iter().any(|&x| x) {
+                if best.is_none_or(|b| mean > b.0) {
+                    best = Some((mean, m.nodes[ids[1]]));
+                }
+            } else if inside[0] != inside[2] {
+                // The wall enters a neighbourhood inside this element: the shear where it
+                // crosses the circle, from the quadratic interpolant of the nodal flux.
+                let (value, at) = crossing(m, s, ids, singular, radius, inside[0]);
+                if best.is_none_or(|b| value > b.0) {
+                    best = Some((value, at));
+                }
             }
         }
     }
     // Every wall element near a singular corner: the plain maximum (flagged by the caller).
-    let (value, node) = best.or(any).unwrap_or((0.0, 0));
+    let (value, at) = best.or(any).unwrap_or((0.0, [0.0, 0.0]));
     MaxShear {
         value,
-        at: m.nodes.get(node).copied().unwrap_or([0.0, 0.0]),
+        at,
         exclusion_radius: radius,
     }
+}
+
+/// Where the quadratic wall element `ids` crosses the boundary of the corner neighbourhoods
+/// (radius `radius` around `singular`; its start lies inside when `start_inside`), and the
+/// interpolated wall shear there.
+fn crossing(
+    m: &Mesh,
+    s: &Solved,
+    ids: [usize; 3],
+    singular: &[Point],
+    radius: f64,
+    start_inside: bool,
+) -> (f64, Point) {
+    let at = |t: f64| {
+        let (nn, _) = edge_shape(t);
+        let mut p = [0.0; 2];
+        for k in 0..3 {
+            p[0] += nn[k] * m.nodes[ids[k]][0];
+            p[1] += nn[k] * m.nodes[ids[k]][1];
+        }
+        p
+    };
+    let inside = |t: f64| {
+        let p = at(t);
+        singular
+            .iter()
+            .any(|c| (p[0] - c[0]).hypot(p[1] - c[1]) <= radius)
+    };
+    // Bisection between an inside and an outside parameter.
+    let (mut lo, mut hi) = if start_inside { (0.0, 1.0) } else { (1.0, 0.0) };
+    for _ in 0..60 {
+        let mid = 0.5 * (lo + hi);
+        if inside(mid) {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    let (nn, _) = edge_shape(hi);
+    let value = (0..3).map(|k| nn[k] * s.shear_at(ids[k])).sum();
+    (value, at(hi))
 }
 
 /// The walls walked element by element.
