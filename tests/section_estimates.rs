@@ -482,3 +482,58 @@ fn re_entrant_corner_is_flagged_and_left_out_of_the_maximum() {
             .max_wall_shear_singular
     );
 }
+
+#[test]
+fn shear_estimate_bounds_the_maximum_wall_shear_error() {
+    // (name, shape, true τ_max/G [m])
+    let mut cases: Vec<(String, Shape, f64)> = Vec::new();
+    // Rectangles, τ_max/(G·h) from the exact series (Shah & London 1978 series, computed).
+    for (alpha, t) in [
+        (1.0, 0.337_657_241_7),
+        (0.5, 0.465_030_134_9),
+        (0.25, 0.498_486_312_6),
+    ] {
+        let h = 50e-6;
+        cases.push((
+            format!("rectangle 1:{}", 1.0 / alpha),
+            Shape::Rectangle {
+                width: l(h / alpha),
+                height: l(h),
+            },
+            t * h,
+        ));
+    }
+    // Semicircle: τ_max/(G·r) = 4/(3π) at the middle of the flat wall (exact series, computed).
+    let r = 50e-6;
+    cases.push((
+        "semicircle".into(),
+        Shape::Semicircle {
+            diameter: l(2.0 * r),
+        },
+        4.0 / (3.0 * PI) * r,
+    ));
+    // KOH trapezoids (54.74°), independent P2 FEM reference (scikit-fem), computed.
+    for (top, depth, t) in [
+        (100.0, 25.0, 12.354_891_6),
+        (100.0, 40.0, 17.701_997_5),
+        (120.0, 40.0, 18.910_817_8),
+    ] {
+        let (shape, _, _) = koh(top, depth);
+        cases.push((format!("KOH {top}/{depth}"), shape, t * 1e-6));
+    }
+    let mut failures = Vec::new();
+    for (name, shape, t) in &cases {
+        let s = shape.solve_numeric(&NumericOptions::default()).unwrap();
+        let err = ((s.max_wall_shear_per_gradient - t) / t).abs();
+        eprintln!(
+            "{name:<24} shear estimate {:>9.2e}  true {:>9.2e}  ratio {:>7.2}",
+            s.shear_error_estimate,
+            err,
+            s.shear_error_estimate / err
+        );
+        if s.shear_error_estimate < err {
+            failures.push(name.clone());
+        }
+    }
+    assert!(failures.is_empty(), "{failures:?}");
+}
