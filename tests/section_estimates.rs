@@ -442,7 +442,7 @@ fn re_entrant_corner_is_flagged_and_left_out_of_the_maximum() {
         ]),
     };
     let mut taus = Vec::new();
-    for max_nodes in [60_000, 240_000] {
+    for max_nodes in [30_000, 120_000] {
         let s = shape
             .solve_numeric(&NumericOptions {
                 max_nodes,
@@ -469,10 +469,11 @@ fn re_entrant_corner_is_flagged_and_left_out_of_the_maximum() {
         assert!(f.max_wall_shear_singular && f.singular_corner_count == 1);
         assert_eq!(f.singular_corner, Some(c.at));
     }
-    // The off-corner maximum settles: the change between the two finest levels lies within
-    // the estimate the finer one reports.
+    // The off-corner maximum converges: it changes by less than 1e-3 between the last two
+    // levels (about 26 000 and 104 000 nodes), within the estimate the finer one reports.
     let (t0, _) = taus[0];
     let (t1, e1) = taus[1];
+    assert!(((t1 - t0) / t1).abs() < 1e-3, "{taus:?}");
     assert!(((t1 - t0) / t1).abs() <= e1, "{taus:?}");
     // A convex outline has no singular corner.
     let (koh, _, _) = koh(120.0, 40.0);

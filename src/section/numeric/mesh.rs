@@ -84,16 +84,22 @@ pub(super) struct Linear {
     arcs: Vec<ArcInfo>,
 }
 
-/// The coarsest mesh of `outline`: triangles of area at most `max_area` (in the frame), wall
-/// vertices on arcs moved onto the arcs.
+/// The coarsest mesh of `outline`: triangles of area at most `max_area` (in the frame), graded
+/// towards the re-entrant corners `singular` (frame points), wall vertices on arcs moved onto
+/// the arcs.
 pub(super) fn base(
     outline: &Outline,
     frame: &Frame,
     max_area: f64,
+    singular: &[Point],
 ) -> Result<Linear, NumericError> {
     let h = (2.0 * max_area).sqrt();
     let (raw_loops, raw_arcs) = outline.chords(h * frame.scale);
-    let loops = frame.norm_loops(&raw_loops);
+    let loops: Vec<Vec<Point>> = frame
+        .norm_loops(&raw_loops)
+        .iter()
+        .map(|l| grade(l, singular, h))
+        .collect();
     let arcs: Vec<ArcInfo> = raw_arcs
         .iter()
         .map(|a| ArcInfo {
@@ -106,6 +112,48 @@ pub(super) fn base(
     let (mut nodes, tris) = triangulate(&loops, max_area)?;
     snap_wall_vertices(&mut nodes, &edge_uses(&tris), &arcs);
     Ok(Linear { nodes, tris, arcs })
+}
+
+/// Wall points at distances h/2, h/4, ..., h/2^GRADING from every re-entrant corner along its
+/// two walls (within half of each wall segment): the quality mesher grades the elements down
+/// towards the corner, where the solution is singular, and red refinement keeps the grading.
+const GRADING: i32 = 6;
+
+/// The loop `l` with grading points added next to the corners in `singular`.
+fn grade(l: &[Point], singular: &[Point], h: f64) -> Vec<Point> {
+    let is_singular = |p: Point| {
+        singular
+            .iter()
+            .any(|c| (p[0] - c[0]).hypot(p[1] - c[1]) <= 1e-12)
+    };
+    let n = l.len();
+    let mut out = Vec::with_capacity(n);
+    for k in 0..n {
+        let (a, b) = (l[k], l[(k + 1) % n]);
+        out.push(a);
+        let len = (b[0] - a[0]).hypot(b[1] - a[1]);
+        if len == 0.0 {
+            continue;
+        }
+        let mut ts: Vec<f64> = Vec::new();
+        for j in 1..=GRADING {
+            let d = h * 0.5f64.powi(j) / len;
+            if d < 0.5 {
+                if is_singular(a) {
+                    ts.push(d);
+                }
+                if is_singular(b) {
+                    ts.push(1.0 - d);
+                }
+            }
+        }
+        ts.sort_by(f64::total_cmp);
+        out.extend(
+            ts.iter()
+                .map(|&t| [a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])]),
+        );
+    }
+    out
 }
 
 /// Uniform (red) refinement: every triangle split into four at its edge midpoints, midpoints

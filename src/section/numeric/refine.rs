@@ -61,7 +61,7 @@ pub(super) fn solve_to_tolerance(
     let singular_frame: Vec<Point> = singular.iter().map(|c| frame.norm(&c.at)).collect();
     let p_corner = corner_order(&corners);
     let max_area = (shoelace(&frame.norm_loops(&coarse)) / 60.0).max(1e-12);
-    let mut linear = mesh::base(outline, &frame, max_area)?;
+    let mut linear = mesh::base(outline, &frame, max_area, &singular_frame)?;
     let mut history: Vec<LevelSummary> = Vec::new();
     let mut refinements = 0;
     loop {
