@@ -88,6 +88,8 @@ pub struct Network {
     pub channels: IdVec<ChannelId, Channel>,
     /// Highest gauge pressure the chip is rated for, if given.
     pub pressure_rating: Option<Pressure>,
+    /// Relative error target the numerically solved sections were solved to.
+    pub section_tolerance: f64,
     graph: UnGraph<NodeId, ChannelId>,
 }
 
@@ -548,6 +550,7 @@ impl NetworkBuilder {
             sections: self.sections.into(),
             channels: self.channels.into(),
             pressure_rating: self.pressure_rating,
+            section_tolerance: self.numeric.tolerance,
             graph,
         })
     }

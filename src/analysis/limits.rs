@@ -5,7 +5,7 @@
 //! report layer only.
 
 use super::SteadyState;
-use crate::network::{ChannelId, Network, NodeId};
+use crate::network::{ChannelId, Network, NodeId, SectionId};
 
 /// Reynolds number above which inertia (separation at junctions, Dean vortices in bends)
 /// makes the linear resistance model noticeably optimistic (common practice: microfluidic
@@ -74,6 +74,20 @@ pub enum FindingKind {
         value: f64,
         limit: f64,
     },
+    /// A numerically solved section whose error estimate (`value`) did not reach the
+    /// requested tolerance (`limit`) within the mesh budget.
+    SectionNotConverged {
+        section: SectionId,
+        value: f64,
+        limit: f64,
+    },
+    /// A section with `value` re-entrant corners: the wall shear there is unbounded, and the
+    /// maximum reported excludes a disc of `limit` [m] around each.
+    SingularCorners {
+        section: SectionId,
+        value: f64,
+        limit: f64,
+    },
 }
 
 impl FindingKind {
@@ -86,6 +100,8 @@ impl FindingKind {
             FindingKind::BelowVacuum { .. } => "below_vacuum",
             FindingKind::Inertia { .. } => "inertia",
             FindingKind::ShortForEntrance { .. } => "short_for_entrance",
+            FindingKind::SectionNotConverged { .. } => "section_not_converged",
+            FindingKind::SingularCorners { .. } => "singular_corners",
         }
     }
 
@@ -97,7 +113,9 @@ impl FindingKind {
             | FindingKind::PressureNearRating { value, limit, .. }
             | FindingKind::BelowVacuum { value, limit, .. }
             | FindingKind::Inertia { value, limit, .. }
-            | FindingKind::ShortForEntrance { value, limit, .. } => (value, limit),
+            | FindingKind::ShortForEntrance { value, limit, .. }
+            | FindingKind::SectionNotConverged { value, limit, .. }
+            | FindingKind::SingularCorners { value, limit, .. } => (value, limit),
         }
     }
 
@@ -110,6 +128,8 @@ impl FindingKind {
             FindingKind::PressureOverRating { node, .. }
             | FindingKind::PressureNearRating { node, .. }
             | FindingKind::BelowVacuum { node, .. } => Place::Node(node),
+            FindingKind::SectionNotConverged { section, .. }
+            | FindingKind::SingularCorners { section, .. } => Place::Section(section),
         }
     }
 }
@@ -119,6 +139,7 @@ impl FindingKind {
 pub enum Place {
     Node(NodeId),
     Channel(ChannelId),
+    Section(SectionId),
 }
 
 /// One finding about a solved chip.
@@ -140,6 +161,29 @@ fn exceeded(kind: FindingKind) -> Finding {
         severity: Severity::Exceeded,
         kind,
     }
+}
+
+/// Notes on numerically solved sections: a tolerance not reached, singular corners.
+fn section_notes(network: &Network) -> Vec<Finding> {
+    let mut out = Vec::new();
+    for (section, s) in network.sections.iter_ids() {
+        let f = &s.figures;
+        if !f.converged {
+            out.push(note(FindingKind::SectionNotConverged {
+                section,
+                value: f.relative_error_estimate,
+                limit: network.section_tolerance,
+            }));
+        }
+        if f.max_wall_shear_singular {
+            out.push(note(FindingKind::SingularCorners {
+                section,
+                value: f.singular_corner_count as f64,
+                limit: crate::section::numeric::CORNER_EXCLUSION * f.hydraulic_diameter(),
+            }));
+        }
+    }
+    out
 }
 
 /// Every limit exceeded and every model note of the solved state, most serious first (file
@@ -173,6 +217,7 @@ pub fn findings(network: &Network, state: &SteadyState) -> Vec<Finding> {
             }));
         }
     }
+    out.extend(section_notes(network));
     for (i, &p) in state.solution.pressures.iter().enumerate() {
         let node = NodeId(i);
         if p < -STANDARD_ATMOSPHERE {

@@ -151,11 +151,12 @@ fn json_targets(t: &[TargetOutcome]) -> Vec<JsonTarget<'_>> {
         .collect()
 }
 
-/// Name of a channel or node.
+/// Name of a channel, node or section.
 fn place_name(network: &Network, place: Place) -> &str {
     match place {
         Place::Channel(c) => &network.channels[c].name,
         Place::Node(n) => &network.nodes[n].name,
+        Place::Section(s) => &network.sections[s].name,
     }
 }
 

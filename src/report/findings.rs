@@ -7,11 +7,12 @@ use crate::fluid::{FluidModelName, RangeParameter, RangeWarning};
 use crate::units::display;
 use serde::Serialize;
 
-/// The place of a finding by name: ("node" | "channel", name).
+/// The place of a finding by name: ("node" | "channel" | "section", name).
 pub(crate) fn place_name(chip: &Chip, place: Place) -> (&'static str, &str) {
     match place {
         Place::Node(n) => ("node", chip.network.nodes[n].name.as_str()),
         Place::Channel(c) => ("channel", chip.network.channels[c].name.as_str()),
+        Place::Section(s) => ("section", chip.network.sections[s].name.as_str()),
     }
 }
 
@@ -47,6 +48,17 @@ pub fn finding_text(chip: &Chip, f: &Finding) -> String {
         FindingKind::Inertia { value, .. } => format!(
             "{at}: Re = {value:.0} > {REYNOLDS_NOTE}; inertia at junctions and bends makes the \
              linear model optimistic"
+        ),
+        FindingKind::SectionNotConverged { value, limit, .. } => format!(
+            "{at}: the numerical solution reached an error estimate of {value:.1e}, not the \
+             requested {limit:.1e}, within the mesh budget; its resistance and shear are that \
+             uncertain (a smoother outline or a looser section_tolerance converges)"
+        ),
+        FindingKind::SingularCorners { value, limit, .. } => format!(
+            "{at}: {value:.0} re-entrant corner(s): the wall shear at a sharp inside corner is \
+             unbounded, so the maximum given leaves out {:.2} um around each; real walls are \
+             rounded — model the corner with a fillet radius to know the shear there",
+            limit * 1e6
         ),
         FindingKind::ShortForEntrance { value, limit, .. } => format!(
             "{at}: length {:.0} um is under {ENTRANCE_LENGTHS} entrance lengths ({:.0} um each); \

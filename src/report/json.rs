@@ -7,7 +7,7 @@ use crate::chip::Chip;
 use serde::Serialize;
 
 /// Version of the JSON documents' layout; raised whenever a key changes meaning or moves.
-pub const SCHEMA_VERSION: u32 = 2;
+pub const SCHEMA_VERSION: u32 = 3;
 
 // ---------------------------------------------------------------------------------------
 // JSON

@@ -3,6 +3,7 @@
 use super::csv::{n, num, Tables};
 use super::fmt_sig;
 use crate::outcome::SectionOutcome;
+use crate::section::numeric::CORNER_EXCLUSION;
 use serde::Serialize;
 use std::io;
 
@@ -24,7 +25,20 @@ struct JsonSection {
     relative_error_estimate: f64,
     shear_error_estimate: Option<f64>,
     mesh_nodes: Option<usize>,
-    seconds: f64,
+    /// Whether the requested tolerances were reached (always for closed forms).
+    converged: bool,
+    requested_tolerance: Option<f64>,
+    requested_shear_tolerance: Option<f64>,
+    /// Re-entrant corners make the pointwise wall shear unbounded.
+    max_wall_shear_singular: bool,
+    singular_corners: Vec<JsonCorner>,
+    corner_exclusion_radius_m: Option<f64>,
+}
+
+#[derive(Serialize)]
+struct JsonCorner {
+    at_m: [f64; 2],
+    interior_angle_deg: f64,
 }
 
 fn json_section(o: &SectionOutcome) -> JsonSection {
@@ -52,7 +66,24 @@ fn json_section(o: &SectionOutcome) -> JsonSection {
             .map(|n| n.shear_error_estimate)
             .filter(|e| e.is_finite()),
         mesh_nodes: numeric.map(|n| n.field.nodes.len()),
-        seconds: o.seconds,
+        converged: f.converged,
+        requested_tolerance: numeric.map(|n| n.requested_tolerance),
+        requested_shear_tolerance: numeric.map(|n| n.requested_shear_tolerance),
+        max_wall_shear_singular: f.max_wall_shear_singular,
+        singular_corners: numeric
+            .map(|n| {
+                n.singular_corners
+                    .iter()
+                    .map(|c| JsonCorner {
+                        at_m: c.at,
+                        interior_angle_deg: c.interior_angle.to_degrees(),
+                    })
+                    .collect()
+            })
+            .unwrap_or_default(),
+        corner_exclusion_radius_m: numeric
+            .filter(|n| n.max_wall_shear_singular)
+            .map(|n| n.corner_exclusion_radius),
     }
 }
 
@@ -84,7 +115,9 @@ pub(crate) fn section_csv(o: &SectionOutcome, tables: &mut Tables<'_>) -> io::Re
             "relative_error_estimate",
             "shear_error_estimate",
             "mesh_nodes",
-            "seconds",
+            "converged",
+            "max_wall_shear_singular",
+            "singular_corners",
         ],
         [vec![
             "section".into(),
@@ -104,20 +137,16 @@ pub(crate) fn section_csv(o: &SectionOutcome, tables: &mut Tables<'_>) -> io::Re
             n(j.relative_error_estimate),
             num(j.shear_error_estimate),
             j.mesh_nodes.map(|m| m.to_string()).unwrap_or_default(),
-            n(j.seconds),
+            j.converged.to_string(),
+            j.max_wall_shear_singular.to_string(),
+            j.singular_corners.len().to_string(),
         ]],
     )
 }
 
 /// One section's figures as a table.
 pub fn section_report(o: &SectionOutcome) -> String {
-    let (shape, f, numeric, viscosity, seconds) = (
-        &o.shape,
-        &o.figures,
-        o.numeric.as_ref(),
-        o.viscosity,
-        o.seconds,
-    );
+    let (shape, f, numeric, viscosity) = (&o.shape, &o.figures, o.numeric.as_ref(), o.viscosity);
     let um = |m: f64| fmt_sig(m * 1e6, 5);
     let mut out = String::new();
     out.push_str(&format!(
@@ -172,7 +201,7 @@ pub fn section_report(o: &SectionOutcome) -> String {
         (
             "relative error estimate (K)",
             if numeric.is_some() {
-                format!("{:.1e}", f.relative_error_estimate)
+                estimate(f.relative_error_estimate)
             } else {
                 "0 (exact)".into()
             },
@@ -181,9 +210,49 @@ pub fn section_report(o: &SectionOutcome) -> String {
     let mut rows = rows;
     if let Some(n) = numeric {
         rows.push((
-            "relative change of max shear",
-            format!("{:.1e}", n.shear_error_estimate),
+            "relative error estimate (max shear)",
+            estimate(n.shear_error_estimate),
         ));
+        if !n.converged {
+            rows.push((
+                "convergence",
+                format!(
+                    "NOT converged to the requested tolerance (K {:.1e}, max shear {:.1e}) \
+                     within the node budget",
+                    n.requested_tolerance, n.requested_shear_tolerance
+                ),
+            ));
+        }
+        if n.max_wall_shear_singular {
+            let shown: Vec<String> = n
+                .singular_corners
+                .iter()
+                .take(4)
+                .map(|c| {
+                    format!(
+                        "({}, {}) µm, {}°",
+                        fmt_sig(c.at[0] * 1e6, 4),
+                        fmt_sig(c.at[1] * 1e6, 4),
+                        fmt_sig(c.interior_angle.to_degrees(), 4)
+                    )
+                })
+                .collect();
+            let more = n.singular_corners.len().saturating_sub(shown.len());
+            rows.push((
+                "re-entrant corners",
+                format!(
+                    "{}{}: wall shear unbounded there; maximum taken {} µm ({} % of Dh) away",
+                    shown.join("; "),
+                    if more > 0 {
+                        format!(" and {more} more")
+                    } else {
+                        String::new()
+                    },
+                    fmt_sig(n.corner_exclusion_radius * 1e6, 3),
+                    fmt_sig(CORNER_EXCLUSION * 100.0, 3)
+                ),
+            ));
+        }
         rows.push((
             "mesh",
             format!(
@@ -193,7 +262,6 @@ pub fn section_report(o: &SectionOutcome) -> String {
             ),
         ));
     }
-    rows.push(("time", format!("{:.1} ms", seconds * 1e3)));
     let width = rows.iter().map(|r| r.0.chars().count()).max().unwrap_or(0);
     for (k, v) in rows {
         out.push_str(&format!("  {k:<width$}  {v}\n"));
@@ -202,4 +270,13 @@ pub fn section_report(o: &SectionOutcome) -> String {
         "\nG is the pressure drop per length; multiply by G for stresses, by G/μ for velocities.\n",
     );
     out
+}
+
+/// An error estimate in words: one significant digit, or "not available" (one mesh only).
+fn estimate(e: f64) -> String {
+    if e.is_finite() {
+        format!("{e:.1e}")
+    } else {
+        "not available".into()
+    }
 }

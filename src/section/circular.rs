@@ -13,7 +13,7 @@ pub(super) fn circle(a: f64) -> SectionFigures {
         perimeter: 2.0 * PI * a,
         conductance_factor: PI * a.powi(4) / 8.0,
         max_wall_shear_per_gradient: a / 2.0,
-        relative_error_estimate: 0.0,
+        ..SectionFigures::CLOSED_FORM
     }
 }
 
@@ -28,7 +28,7 @@ pub(super) fn ellipse(a: f64, b: f64) -> SectionFigures {
         perimeter: 4.0 * a * elliptic_e(e),
         conductance_factor: PI * a.powi(3) * b.powi(3) / (4.0 * (a * a + b * b)),
         max_wall_shear_per_gradient: a * a * b / (a * a + b * b),
-        relative_error_estimate: 0.0,
+        ..SectionFigures::CLOSED_FORM
     }
 }
 
@@ -45,7 +45,7 @@ pub(super) fn annulus(ro: f64, ri: f64) -> SectionFigures {
         perimeter: 2.0 * PI * (ro + ri),
         conductance_factor: PI / 8.0 * (ro.powi(4) - ri.powi(4) - (ro * ro - ri * ri).powi(2) / ln),
         max_wall_shear_per_gradient: tau_o.max(tau_i),
-        relative_error_estimate: 0.0,
+        ..SectionFigures::CLOSED_FORM
     }
 }
 

@@ -2,6 +2,7 @@
 //! conductance factor, maximum wall shear, error estimate) and the figures derived from them.
 
 use super::numeric::NumericSection;
+use super::outline::Point;
 
 /// Laminar figures of one cross-section, all SI.
 #[derive(Clone, Copy, Debug, PartialEq)]
@@ -16,6 +17,35 @@ pub struct SectionFigures {
     pub max_wall_shear_per_gradient: f64,
     /// Relative error estimate of K (0 for closed forms).
     pub relative_error_estimate: f64,
+    /// Relative error estimate of the maximum wall shear (0 for closed forms).
+    pub shear_error_estimate: f64,
+    /// Whether the numerical solution reached the requested tolerances (true for closed forms).
+    pub converged: bool,
+    /// True when the outline has re-entrant corners (interior angle above 180°): the pointwise
+    /// wall shear is unbounded there, and `max_wall_shear_per_gradient` is the maximum away
+    /// from them (see [`super::numeric::CORNER_EXCLUSION`]).
+    pub max_wall_shear_singular: bool,
+    /// Number of re-entrant corners.
+    pub singular_corner_count: usize,
+    /// The re-entrant corner with the largest interior angle [m] (all of them are listed in
+    /// [`NumericSection::singular_corners`]).
+    pub singular_corner: Option<Point>,
+}
+
+impl SectionFigures {
+    /// The fields a closed form does not set: exact, converged, no singular corner.
+    pub(super) const CLOSED_FORM: SectionFigures = SectionFigures {
+        area: 0.0,
+        perimeter: 0.0,
+        conductance_factor: 0.0,
+        max_wall_shear_per_gradient: 0.0,
+        relative_error_estimate: 0.0,
+        shear_error_estimate: 0.0,
+        converged: true,
+        max_wall_shear_singular: false,
+        singular_corner_count: 0,
+        singular_corner: None,
+    };
 }
 
 impl SectionFigures {
@@ -27,6 +57,15 @@ impl SectionFigures {
             conductance_factor: sol.conductance_factor,
             max_wall_shear_per_gradient: sol.max_wall_shear_per_gradient,
             relative_error_estimate: sol.relative_error_estimate,
+            shear_error_estimate: sol.shear_error_estimate,
+            converged: sol.converged,
+            max_wall_shear_singular: sol.max_wall_shear_singular,
+            singular_corner_count: sol.singular_corners.len(),
+            singular_corner: sol
+                .singular_corners
+                .iter()
+                .max_by(|a, b| a.interior_angle.total_cmp(&b.interior_angle))
+                .map(|c| c.at),
         }
     }
 

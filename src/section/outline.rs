@@ -154,3 +154,91 @@ impl Outline {
         (loops, arcs)
     }
 }
+
+/// A corner of an outline: where two pieces of a loop meet at an angle.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Corner {
+    /// Where the pieces meet [m].
+    pub at: Point,
+    /// Interior angle on the fluid side [rad]: below π convex, above π re-entrant.
+    pub interior_angle: f64,
+}
+
+impl Corner {
+    /// Whether the fluid surrounds the corner (interior angle above 180°): the wall gradient
+    /// there grows without bound as r^(π/α − 1) (α the interior angle, r the distance).
+    pub fn is_re_entrant(&self) -> bool {
+        self.interior_angle > PI + CORNER_ANGLE_TOLERANCE
+    }
+}
+
+/// Junctions whose direction changes by less than this [rad] are smooth (a tangent arc, a
+/// collinear point), not corners.
+const CORNER_ANGLE_TOLERANCE: f64 = 1e-7;
+
+impl Outline {
+    /// Every corner of the outline: the junctions between pieces where the wall direction
+    /// jumps (arcs are smooth inside; a tangent junction is no corner), with the interior
+    /// angle on the fluid side (inside the outer loop, outside the holes).
+    pub fn corners(&self) -> Vec<Corner> {
+        let (chords, _) = self.chords(f64::INFINITY);
+        let mut out = Vec::new();
+        for (li, l) in self.loops.iter().enumerate() {
+            let signed: f64 = chords.get(li).map_or(0.0, |c| signed_area(c));
+            // Fluid on the left of the direction of travel?
+            let fluid_left = (signed > 0.0) == (li == 0);
+            // (start point, tangent at start, tangent at end) of every piece of non-zero length.
+            let mut from = l.start;
+            let mut ends: Vec<(Point, [f64; 2], [f64; 2])> = Vec::new();
+            for piece in &l.pieces {
+                let to = piece.end();
+                if to != from {
+                    let (t0, t1) = match *piece {
+                        Piece::Line { to } => {
+                            let d = [to[0] - from[0], to[1] - from[1]];
+                            (d, d)
+                        }
+                        Piece::Arc { to, center, ccw } => {
+                            let tangent = |p: Point| {
+                                let (dx, dy) = (p[0] - center[0], p[1] - center[1]);
+                                if ccw {
+                                    [-dy, dx]
+                                } else {
+                                    [dy, -dx]
+                                }
+                            };
+                            (tangent(from), tangent(to))
+                        }
+                    };
+                    ends.push((from, t0, t1));
+                }
+                from = to;
+            }
+            let n = ends.len();
+            for k in 0..n {
+                let (at, out_dir, _) = ends[k];
+                let in_dir = ends[(k + n - 1) % n].2;
+                let cross = in_dir[0] * out_dir[1] - in_dir[1] * out_dir[0];
+                let dot = in_dir[0] * out_dir[0] + in_dir[1] * out_dir[1];
+                let turn = cross.atan2(dot); // left turn positive
+                if turn.abs() <= CORNER_ANGLE_TOLERANCE {
+                    continue;
+                }
+                let interior_angle = if fluid_left { PI - turn } else { PI + turn };
+                out.push(Corner { at, interior_angle });
+            }
+        }
+        out
+    }
+}
+
+/// Signed area of a closed polygon (positive counter-clockwise).
+fn signed_area(p: &[Point]) -> f64 {
+    (0..p.len())
+        .map(|k| {
+            let (a, b) = (p[k], p[(k + 1) % p.len()]);
+            a[0] * b[1] - a[1] * b[0]
+        })
+        .sum::<f64>()
+        / 2.0
+}

@@ -36,7 +36,7 @@ pub(super) fn rectangle(width: f64, height: f64) -> SectionFigures {
         perimeter: 2.0 * (w + h),
         conductance_factor: k,
         max_wall_shear_per_gradient: h / 2.0 - 4.0 * h / (PI * PI) * sech2,
-        relative_error_estimate: 0.0,
+        ..SectionFigures::CLOSED_FORM
     }
 }
 
@@ -73,7 +73,7 @@ pub(super) fn plates(h: f64, w: f64) -> SectionFigures {
         perimeter: 2.0 * w,
         conductance_factor: w * h.powi(3) / 12.0,
         max_wall_shear_per_gradient: h / 2.0,
-        relative_error_estimate: 0.0,
+        ..SectionFigures::CLOSED_FORM
     }
 }
 

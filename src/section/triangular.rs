@@ -13,7 +13,7 @@ pub(super) fn triangle(a: f64) -> SectionFigures {
         perimeter: 3.0 * a,
         conductance_factor: 3f64.sqrt() * a.powi(4) / 320.0,
         max_wall_shear_per_gradient: h / 4.0,
-        relative_error_estimate: 0.0,
+        ..SectionFigures::CLOSED_FORM
     }
 }
 

@@ -137,10 +137,11 @@ pub fn recover_stiff(
 /// The node whose net flow misses the balance most, relative to the flows through it, and
 /// that relative miss; `None` when every imposed node balances to [`FLOW_LIMIT`].
 ///
-/// A miss within the rounding of the flows computed from pressures at that node,
-/// 64·ε·Σ g_k·(|p_i| + |p_j|) over its channels whose flow came from pressures (not `stiff`
-/// ones, whose flows came from the balance), or within 64·ε of the largest flow of the chip,
-/// is no miss: where nothing flows, flows are that rounding.
+/// A miss within the rounding of the flows computed from pressures, 64·ε·Σ g_k·(|p_i| + |p_j|)
+/// over every channel whose flow came from pressures (not the `stiff` ones, whose flows came
+/// from the balance), is no miss: where nothing flows, or far down a leaky line where flows
+/// decay below the smallest normal double, flows are that rounding. (A normwise floor, in
+/// the spirit of Arioli, Demmel & Duff 1989.)
 pub fn worst_flow_imbalance(
     network: &Network,
     pressures: &[f64],
@@ -152,28 +153,21 @@ pub fn worst_flow_imbalance(
     let n = network.nodes.len();
     let mut net = vec![0.0; n];
     let mut through = vec![0.0f64; n];
-    let mut noise = vec![0.0; n];
+    let mut noise = 0.0;
     for (k, (c, &q)) in network.channels.iter().zip(flows).enumerate() {
         net[c.from.0] += q;
         net[c.to.0] -= q;
         through[c.from.0] = through[c.from.0].max(q.abs());
         through[c.to.0] = through[c.to.0].max(q.abs());
         if !stiff[k] {
-            let size = g[k] * (pressures[c.from.0].abs() + pressures[c.to.0].abs());
-            noise[c.from.0] += size;
-            noise[c.to.0] += size;
+            noise += g[k] * (pressures[c.from.0].abs() + pressures[c.to.0].abs());
         }
     }
-    // Far down a leaky line flows decay below the smallest normal double; a miss that small
-    // beside the largest flow of the chip is rounding too.
-    let largest = flows
-        .iter()
-        .chain(injection)
-        .fold(0.0f64, |m, q| m.max(q.abs()));
+    let floor = 64.0 * f64::EPSILON * noise;
     let mut worst: Option<(NodeId, f64)> = None;
     for i in network.nodes.ids().filter(|&i| imposed(network, i)) {
         let miss = (net[i.0] - injection[i.0]).abs();
-        if miss <= 64.0 * f64::EPSILON * noise[i.0].max(largest) {
+        if miss <= floor {
             continue;
         }
         let relative = miss / through[i.0].max(injection[i.0].abs());

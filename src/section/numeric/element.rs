@@ -112,7 +112,7 @@ pub(super) fn element_matrices(xy: &[Point; 6]) -> ElementMatrices {
 }
 
 /// Quadratic 1-D shape functions (end 0, middle, end 2) and their derivatives at t ∈ [0, 1].
-fn edge_shape(t: f64) -> ([f64; 3], [f64; 3]) {
+pub(super) fn edge_shape(t: f64) -> ([f64; 3], [f64; 3]) {
     let nn = [
         (1.0 - t) * (1.0 - 2.0 * t),
         4.0 * t * (1.0 - t),

@@ -1,6 +1,7 @@
 //! Mesh generation for the numerical solver: the unit-size frame the mesher and assembly work
-//! in, the constrained-Delaunay quality mesh of the outline's chord polygons (spade), arc walls
-//! moved back onto their arcs, the quadratic elements' edge nodes, and the wall loops.
+//! in, the constrained-Delaunay quality mesh of the outline's chord polygons (spade) as the
+//! base, uniform red refinement of it (nested levels), arc walls moved back onto their arcs,
+//! the quadratic elements' edge nodes, and the wall loops.
 
 use super::NumericError;
 use crate::section::outline::{ArcInfo, Outline, Point};
@@ -75,16 +76,30 @@ fn edge(a: usize, b: usize) -> Edge {
     (a.min(b), a.max(b))
 }
 
-/// Mesh `outline` with triangles of area at most `max_area` (in the frame). Arc chords follow
-/// the element size, so curved walls sharpen as the mesh refines.
-pub(super) fn generate(
+/// A linear triangle mesh (in the frame) with its walls on the outline: the base of each
+/// refinement level.
+pub(super) struct Linear {
+    nodes: Vec<Point>,
+    tris: Vec<[usize; 3]>,
+    arcs: Vec<ArcInfo>,
+}
+
+/// The coarsest mesh of `outline`: triangles of area at most `max_area` (in the frame), graded
+/// towards the re-entrant corners `singular` (frame points), wall vertices on arcs moved onto
+/// the arcs.
+pub(super) fn base(
     outline: &Outline,
     frame: &Frame,
     max_area: f64,
-) -> Result<Mesh, NumericError> {
+    singular: &[Point],
+) -> Result<Linear, NumericError> {
     let h = (2.0 * max_area).sqrt();
     let (raw_loops, raw_arcs) = outline.chords(h * frame.scale);
-    let loops = frame.norm_loops(&raw_loops);
+    let loops: Vec<Vec<Point>> = frame
+        .norm_loops(&raw_loops)
+        .iter()
+        .map(|l| grade(l, singular, h))
+        .collect();
     let arcs: Vec<ArcInfo> = raw_arcs
         .iter()
         .map(|a| ArcInfo {
@@ -94,23 +109,89 @@ pub(super) fn generate(
             ..*a
         })
         .collect();
-    mesh(&loops, &arcs, max_area)
+    let (mut nodes, tris) = triangulate(&loops, max_area)?;
+    snap_wall_vertices(&mut nodes, &edge_uses(&tris), &arcs);
+    Ok(Linear { nodes, tris, arcs })
 }
 
-/// Mesh the (normalised) chord polygons at `max_area`, then curve the arc walls.
-fn mesh(loops: &[Vec<Point>], arcs: &[ArcInfo], max_area: f64) -> Result<Mesh, NumericError> {
-    let (mut nodes, tri3) = triangulate(loops, max_area)?;
-    // Edges: count uses; boundary edges are used once.
+/// Wall points at distances h/2, h/4, ..., h/2^GRADING from every re-entrant corner along its
+/// two walls (within half of each wall segment): the quality mesher grades the elements down
+/// towards the corner, where the solution is singular, and red refinement keeps the grading.
+const GRADING: i32 = 6;
+
+/// The loop `l` with grading points added next to the corners in `singular`.
+fn grade(l: &[Point], singular: &[Point], h: f64) -> Vec<Point> {
+    let is_singular = |p: Point| {
+        singular
+            .iter()
+            .any(|c| (p[0] - c[0]).hypot(p[1] - c[1]) <= 1e-12)
+    };
+    let n = l.len();
+    let mut out = Vec::with_capacity(n);
+    for k in 0..n {
+        let (a, b) = (l[k], l[(k + 1) % n]);
+        out.push(a);
+        let len = (b[0] - a[0]).hypot(b[1] - a[1]);
+        if len == 0.0 {
+            continue;
+        }
+        let mut ts: Vec<f64> = Vec::new();
+        for j in 1..=GRADING {
+            let d = h * 0.5f64.powi(j) / len;
+            if d < 0.5 {
+                if is_singular(a) {
+                    ts.push(d);
+                }
+                if is_singular(b) {
+                    ts.push(1.0 - d);
+                }
+            }
+        }
+        ts.sort_by(f64::total_cmp);
+        out.extend(
+            ts.iter()
+                .map(|&t| [a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1])]),
+        );
+    }
+    out
+}
+
+/// Uniform (red) refinement: every triangle split into four at its edge midpoints, midpoints
+/// of arc walls placed on the arc. The refined spaces are nested and every element near a
+/// corner is replaced by similar ones, so successive levels converge at one steady rate.
+pub(super) fn red(lin: &Linear) -> Linear {
+    let mut nodes = lin.nodes.clone();
+    let (six, _) = add_edge_nodes(&mut nodes, &lin.tris, &edge_uses(&lin.tris), &lin.arcs);
+    let mut tris = Vec::with_capacity(4 * six.len());
+    for t in six {
+        let [a, b, c, ab, bc, ca] = t;
+        tris.extend([[a, ab, ca], [ab, b, bc], [ca, bc, c], [ab, bc, ca]]);
+    }
+    Linear {
+        nodes,
+        tris,
+        arcs: lin.arcs.clone(),
+    }
+}
+
+/// The quadratic mesh on `lin`: edge nodes added, wall loops traced.
+pub(super) fn quadratic(lin: &Linear) -> Mesh {
+    let mut nodes = lin.nodes.clone();
+    let edge_use = edge_uses(&lin.tris);
+    let (tris, edge_node) = add_edge_nodes(&mut nodes, &lin.tris, &edge_use, &lin.arcs);
+    let walls = trace_walls(&edge_use, &edge_node);
+    Mesh { nodes, tris, walls }
+}
+
+/// How many triangles use each edge (wall edges: one).
+fn edge_uses(tris: &[[usize; 3]]) -> HashMap<Edge, u8> {
     let mut edge_use: HashMap<Edge, u8> = HashMap::new();
-    for t in &tri3 {
+    for t in tris {
         for k in 0..3 {
             *edge_use.entry(edge(t[k], t[(k + 1) % 3])).or_insert(0) += 1;
         }
     }
-    snap_wall_vertices(&mut nodes, &edge_use, arcs);
-    let (tris, edge_node) = add_edge_nodes(&mut nodes, &tri3, &edge_use, arcs);
-    let walls = trace_walls(&edge_use, &edge_node);
-    Ok(Mesh { nodes, tris, walls })
+    edge_use
 }
 
 /// The linear quality mesh of the chord polygons: vertices and triangles inside the outline
@@ -164,7 +245,31 @@ fn triangulate(
     if tri3.is_empty() {
         return Err(NumericError::Mesh("the outline encloses no area".into()));
     }
-    Ok((nodes, tri3))
+    Ok(drop_unused(nodes, tri3))
+}
+
+/// Keep only the vertices of some triangle (a wall point the mesher left outside every kept
+/// triangle would otherwise be an unknown without an equation), renumbered in order.
+fn drop_unused(nodes: Vec<Point>, mut tri3: Vec<[usize; 3]>) -> (Vec<Point>, Vec<[usize; 3]>) {
+    let mut new_index = vec![usize::MAX; nodes.len()];
+    for t in &tri3 {
+        for &i in t {
+            new_index[i] = 0;
+        }
+    }
+    let mut kept = Vec::with_capacity(nodes.len());
+    for (i, p) in nodes.into_iter().enumerate() {
+        if new_index[i] == 0 {
+            new_index[i] = kept.len();
+            kept.push(p);
+        }
+    }
+    for t in &mut tri3 {
+        for i in t.iter_mut() {
+            *i = new_index[*i];
+        }
+    }
+    (kept, tri3)
 }
 
 /// Move wall vertices that lie on (a chord of) an arc onto the arc.

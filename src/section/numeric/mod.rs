@@ -3,16 +3,24 @@
 //! Problem: ∇²φ = −1 in the section, φ = 0 on the wall; then u = (G/μ)·φ, the conductance
 //! factor is K = ∫φ dA (Q = K·G/μ) and the wall shear per unit gradient is τ/G = |∂φ/∂n|.
 //!
-//! Method: quadratic (P2) isoparametric triangles on a constrained-Delaunay quality mesh
-//! (spade; minimum angle 25°), edge nodes of curved walls placed on the true arc; stiffness and
-//! load by the 6-point degree-4 Dunavant rule; the sparse system by faer's Cholesky through
-//! [`crate::solver`]. For smooth solutions P2 converges as h⁴ in K and h² in the wall gradient.
+//! Method: quadratic (P2) isoparametric triangles on a constrained-Delaunay quality base mesh
+//! (spade; minimum angle 25°) graded towards re-entrant corners, refined uniformly by splitting
+//! every triangle into four (nested levels); edge nodes of curved walls placed on the true arc;
+//! stiffness and load by the 6-point degree-4 Dunavant rule; the sparse system by faer's
+//! Cholesky through [`crate::solver`]. For smooth solutions P2 converges as h⁴ in K and h² in
+//! the wall gradient; a corner of interior angle α limits K to h^(2π/α).
 //!
-//! Error control: the mesh is refined (maximum triangle area ÷ 4 per step, so h halves) until
-//! the error estimate of K is below the tolerance. The estimate compares successive levels:
-//! with three levels whose changes shrink by a factor r ≥ 2, it is the Richardson estimate
-//! change/(r − 1) (observed order, so corner singularities that slow convergence are accounted
-//! for); otherwise it is the plain change between the last two levels.
+//! Error control: each level halves h everywhere, until the error estimates of K and of the
+//! maximum wall shear are within tolerance; see the `refine` module for the estimate (three
+//! levels, observed order capped by the element's and the sharpest corner's, safety factor
+//! [`SAFETY_FACTOR`]). Measured against closed forms, published tables and independent
+//! references on 19 shapes at the default tolerance, the K estimate lay 3.1 to 5.2 times above
+//! the true error. When the node budget runs out first, the result says so
+//! ([`NumericSection::converged`] is false) and carries the estimate it reached.
+//!
+//! Re-entrant corners (interior angle above 180°) make the pointwise wall shear unbounded; the
+//! maximum wall shear is taken away from them, outside a disc of radius
+//! [`CORNER_EXCLUSION`] × Dh around each, and the corners are listed.
 //!
 //! Wall shear is the consistent boundary flux: the residual r = A·φ − f at wall nodes is the
 //! flux weighted by the wall shape functions, and a 1-D P2 mass solve along each wall loop
@@ -30,7 +38,13 @@ mod mesh;
 mod refine;
 mod wall;
 
+pub use super::outline::Corner;
 use super::outline::{Outline, Point};
+pub use refine::SAFETY_FACTOR;
+
+/// Radius of the neighbourhood of a re-entrant corner left out of the maximum wall shear, as a
+/// fraction of the hydraulic diameter Dh = 4A/P.
+pub const CORNER_EXCLUSION: f64 = 0.02;
 use crate::solver::SolverError;
 
 /// Accuracy and effort settings.
@@ -38,8 +52,8 @@ use crate::solver::SolverError;
 pub struct NumericOptions {
     /// Target relative error estimate on the conductance factor (and so the resistance).
     pub tolerance: f64,
-    /// Target relative change of the maximum wall shear between the last two meshes (wall
-    /// gradients converge one order slower than K, so this is looser).
+    /// Target relative error estimate of the maximum wall shear (wall gradients converge more
+    /// slowly than K, so this is looser).
     pub shear_tolerance: f64,
     /// Refinement stops (with a larger estimate reported) beyond this many nodes.
     pub max_nodes: usize,
@@ -92,13 +106,31 @@ pub struct NumericSection {
     pub area: f64,
     pub perimeter: f64,
     pub conductance_factor: f64,
+    /// Largest wall shear per unit gradient τ/G [m], away from re-entrant corners (see
+    /// [`CORNER_EXCLUSION`]); the largest over the whole wall when there are none.
     pub max_wall_shear_per_gradient: f64,
     pub max_shear_at: Point,
     /// ∮(τ/G) ds / P, which force balance says equals A/P: a consistency check.
     pub mean_wall_shear_per_gradient_from_flux: f64,
+    /// Estimated bound on the relative error of K (infinite when fewer than two meshes were
+    /// solved).
     pub relative_error_estimate: f64,
-    /// Relative change of the maximum wall shear between the last two meshes.
+    /// Estimated bound on the relative error of the maximum wall shear.
     pub shear_error_estimate: f64,
+    /// Whether both estimates are within the requested tolerances, from three meshes that
+    /// each refined the whole section (wall included). False when the node budget ran out.
+    pub converged: bool,
+    /// The tolerances that were asked for (K, maximum wall shear).
+    pub requested_tolerance: f64,
+    pub requested_shear_tolerance: f64,
+    /// Re-entrant corners of the outline (interior angle above 180°), where the pointwise wall
+    /// shear is unbounded.
+    pub singular_corners: Vec<Corner>,
+    /// True when the outline has re-entrant corners: the pointwise maximum of the wall shear
+    /// is unbounded, and `max_wall_shear_per_gradient` is the maximum away from them.
+    pub max_wall_shear_singular: bool,
+    /// Radius around each re-entrant corner left out of the maximum wall shear [m].
+    pub corner_exclusion_radius: f64,
     pub wall: Vec<WallSample>,
     pub field: FieldMesh,
     pub refinements: usize,

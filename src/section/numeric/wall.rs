@@ -1,11 +1,12 @@
 //! Wall shear: the consistent boundary flux turned into nodal shear by a 1-D mass solve along
-//! each wall loop, the largest wall shear as the largest wall-element mean, and the samples,
+//! each wall loop, the largest wall shear at the wall away from re-entrant corners, and the samples,
 //! perimeter and total flux along the walls.
 
 use super::assembly::{solve_symmetric, Solved};
-use super::element::{edge_mass, wall_element};
+use super::element::{edge_mass, edge_shape, wall_element};
 use super::mesh::{Frame, Mesh};
 use super::{NumericError, WallSample};
+use crate::section::outline::Point;
 use std::collections::HashMap;
 
 /// The quadratic elements of a wall loop (vertex, edge node, vertex, ...; closed implicitly),
@@ -70,32 +71,124 @@ fn loop_shear(m: &Mesh, w: &[usize], r: &HashMap<usize, f64>) -> Result<Vec<f64>
     Ok(rhs)
 }
 
-/// The largest wall shear, as the largest mean over one wall element (∫τ ds / L), and the
-/// element's middle node.
+/// The largest wall shear away from re-entrant corners, where it is found and the radius of
+/// the neighbourhoods left out (all in the frame).
+#[derive(Clone, Copy, Debug)]
+pub(super) struct MaxShear {
+    pub(super) value: f64,
+    pub(super) at: Point,
+    pub(super) exclusion_radius: f64,
+}
+
+/// The largest wall shear, as the largest mean over one wall element (∫τ ds / L), away from the
+/// re-entrant corners `singular`.
+///
+/// The wall within `fraction` × Dh (Dh = 4A/P of this mesh) of a re-entrant corner is left out:
+/// the wall shear grows without bound towards such a corner, so its pointwise value there only
+/// reflects the mesh. Elements wholly outside contribute their mean; an element the
+/// neighbourhood's circle cuts contributes the wall shear where the wall crosses the circle
+/// (the quadratic interpolant of the nodal flux), so the maximum next to a corner, where the
+/// shear rises towards it, is a value at a fixed place that converges with the mesh.
 ///
 /// Why a mean and not the largest nodal value: every vertex of a polygonal outline (a measured
 /// profile, a polygon standing for a curve) is a corner of interior angle just under 180°,
 /// where the exact gradient dips to zero over a vanishing length; the nodal flux then
-/// alternates between vertex and edge nodes by a few tenths of a per cent while its integral
-/// stays exact. The element mean is free of that alternation and converges to the pointwise
-/// maximum of a smooth wall shear as h² (one element spans a small part of the wall).
-pub(super) fn max_wall_shear(m: &Mesh, s: &Solved) -> (f64, usize) {
-    let mut best = (
-        0.0f64,
-        m.walls
-            .first()
-            .and_then(|w| w.first().copied())
-            .unwrap_or(0),
-    );
+/// alternates between vertex and edge nodes while its integral stays exact. The element mean
+/// is free of that alternation and converges to the pointwise maximum of a smooth wall shear
+/// as h²; the refinement loop's estimate accounts for that order.
+pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction: f64) -> MaxShear {
+    let perimeter: f64 = m
+        .walls
+        .iter()
+        .flat_map(|w| wall_elements(w))
+        .map(|ids| wall_element(&m.nodes, ids, |_| 0.0).0)
+        .sum();
+    let radius = if perimeter > 0.0 {
+        fraction * 4.0 * s.area / perimeter
+    } else {
+        0.0
+    };
+    let allowed = |i: usize| {
+        let p = m.nodes[i];
+        singular
+            .iter()
+            .all(|c| (p[0] - c[0]).hypot(p[1] - c[1]) > radius)
+    };
+    let mut best: Option<(f64, Point)> = None;
+    let mut any: Option<(f64, Point)> = None;
     for w in &m.walls {
         for ids in wall_elements(w) {
             let (length, integral) = wall_element(&m.nodes, ids, |k| s.shear_at(ids[k]));
-            if length > 0.0 && integral / length > best.0 {
-                best = (integral / length, ids[1]);
+            if length <= 0.0 {
+                continue;
+            }
+            let mean = integral / length;
+            if any.is_none_or(|b| mean > b.0) {
+                any = Some((mean, m.nodes[ids[1]]));
+            }
+            let inside = ids.map(|i| !allowed(i));
+            if !inside.iter().any(|&x| x) {
+                if best.is_none_or(|b| mean > b.0) {
+                    best = Some((mean, m.nodes[ids[1]]));
+                }
+            } else if inside[0] != inside[2] {
+                // The wall enters a neighbourhood inside this element: the shear where it
+                // crosses the circle, from the quadratic interpolant of the nodal flux.
+                let (value, at) = crossing(m, s, ids, singular, radius, inside[0]);
+                if best.is_none_or(|b| value > b.0) {
+                    best = Some((value, at));
+                }
             }
         }
     }
-    best
+    // Every wall element near a singular corner: the plain maximum (flagged by the caller).
+    let (value, at) = best.or(any).unwrap_or((0.0, [0.0, 0.0]));
+    MaxShear {
+        value,
+        at,
+        exclusion_radius: radius,
+    }
+}
+
+/// Where the quadratic wall element `ids` crosses the boundary of the corner neighbourhoods
+/// (radius `radius` around `singular`; its start lies inside when `start_inside`), and the
+/// interpolated wall shear there.
+fn crossing(
+    m: &Mesh,
+    s: &Solved,
+    ids: [usize; 3],
+    singular: &[Point],
+    radius: f64,
+    start_inside: bool,
+) -> (f64, Point) {
+    let at = |t: f64| {
+        let (nn, _) = edge_shape(t);
+        let mut p = [0.0; 2];
+        for k in 0..3 {
+            p[0] += nn[k] * m.nodes[ids[k]][0];
+            p[1] += nn[k] * m.nodes[ids[k]][1];
+        }
+        p
+    };
+    let inside = |t: f64| {
+        let p = at(t);
+        singular
+            .iter()
+            .any(|c| (p[0] - c[0]).hypot(p[1] - c[1]) <= radius)
+    };
+    // Bisection between an inside and an outside parameter.
+    let (mut lo, mut hi) = if start_inside { (0.0, 1.0) } else { (1.0, 0.0) };
+    for _ in 0..60 {
+        let mid = 0.5 * (lo + hi);
+        if inside(mid) {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    let (nn, _) = edge_shape(hi);
+    let value = (0..3).map(|k| nn[k] * s.shear_at(ids[k])).sum();
+    (value, at(hi))
 }
 
 /// The walls walked element by element.
