@@ -164,3 +164,35 @@ fn a_report_into_a_folder_with_an_old_page_writes_nothing() {
         "old"
     );
 }
+
+#[test]
+fn design_inputs_are_checked_and_weights_do_not_change_the_verdict() {
+    let chip = std::fs::read_to_string("networks/perfusion_tuning.yaml").unwrap();
+    for (to, needle) in [
+        ("ratio: [1, 1], weight: 1e308}", "weight must be between"),
+        ("ratio: [1, 1], weight: 0}", "weight must be between"),
+    ] {
+        let text = chip.replace("ratio: [1, 1]}", to);
+        let (code, _, err) = run_on("chip.yaml", text.as_bytes(), &["tune"]);
+        assert_eq!(code, 2, "{to}: {err}");
+        assert!(
+            err.contains(needle) && !err.contains("00000000000"),
+            "{err}"
+        );
+    }
+    let text = chip.replace(
+        "split: [chamber_left, chamber_right]",
+        "split: [chamber_left, chamber_left]",
+    );
+    let (code, _, err) = run_on("chip.yaml", text.as_bytes(), &["tune"]);
+    assert_eq!(code, 2);
+    assert!(err.contains("listed twice"), "{err}");
+    // A feasible chip stays feasible whatever the weights' magnitude.
+    for w in ["1e-5", "1e5"] {
+        let text = chip.replace("ratio: [1, 1]}", &format!("ratio: [1, 1], weight: {w}}}"));
+        let (code, out, err) = run_on("chip.yaml", text.as_bytes(), &["tune", "--format", "json"]);
+        assert_eq!(code, 0, "weight {w}: {err}");
+        let v: serde_json::Value = serde_json::from_str(&out).unwrap();
+        assert_eq!(v["all_targets_met"], true, "weight {w}");
+    }
+}

@@ -142,6 +142,11 @@ fn tolerance(raw: &str, kind: &TargetKind) -> Result<Tolerance, String> {
     }
 }
 
+/// Smallest and largest target weight accepted: weights compare targets with each other, and a
+/// ratio beyond 1e12 between them would leave the lighter target below rounding.
+const MIN_WEIGHT: f64 = 1e-6;
+const MAX_WEIGHT: f64 = 1e6;
+
 /// Build the design problem once the network exists.
 pub(super) fn to_design(
     net: &Network,
@@ -154,10 +159,13 @@ pub(super) fn to_design(
         let place = ["targets"];
         let label = format!("targets[{i}]");
         let weight = t.weight.unwrap_or(1.0);
-        if !(weight.is_finite() && weight > 0.0) {
+        if !(weight.is_finite() && (MIN_WEIGHT..=MAX_WEIGHT).contains(&weight)) {
             return Err(at(
                 &place,
-                format!("{label}: weight must be positive, got {weight}"),
+                format!(
+                    "{label}: weight must be between {MIN_WEIGHT:e} and {MAX_WEIGHT:e} (weights \
+                     only compare targets with each other), got {weight:e}"
+                ),
             ));
         }
         let shear = match (t.wall_shear, t.wall_shear_mean) {
@@ -196,7 +204,14 @@ pub(super) fn to_design(
                 if let Some(r) = ratio.iter().find(|r| !(r.is_finite() && **r > 0.0)) {
                     return Err(at(&place, format!("{label}: ratios must be positive, got {r}")));
                 }
-                let channels = split.iter().map(|c| named(c)).collect::<Result<_, _>>()?;
+                let channels: Vec<ChannelId> =
+                    split.iter().map(|c| named(c)).collect::<Result<_, _>>()?;
+                if let Some(k) = (1..channels.len()).find(|&k| channels[..k].contains(&channels[k])) {
+                    return Err(at(&place, format!(
+                        "{label}: channel '{}' is listed twice in the split; list each channel once",
+                        split[k]
+                    )));
+                }
                 TargetKind::Split { channels, ratio: ratio.clone() }
             }
             (None, None, None, None, None, Some(n), Some(p)) => TargetKind::NodePressure {
@@ -224,6 +239,12 @@ pub(super) fn to_design(
             weight,
             tolerance,
         });
+    }
+    // Only the weights' proportions matter: scale the largest to 1, so the verdict cannot
+    // depend on their magnitude.
+    let largest = design.targets.iter().map(|t| t.weight).fold(0.0, f64::max);
+    for t in &mut design.targets {
+        t.weight /= largest;
     }
     for (name, a) in adjust {
         let id: NodeId = net
