@@ -4,16 +4,10 @@
 
 mod common;
 
-use common::{channel_flow, json_of, rillnet, run_json};
+use common::{channel_flow, json_of, rillnet, run_json, write_file};
 use std::path::Path;
 
 const UL_MIN: f64 = 1e-9 / 60.0;
-
-fn write(dir: &Path, name: &str, text: &str) -> std::path::PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
 
 /// The perfusion chip with a description that mentions a setting in the chip's own syntax.
 fn trap_chip() -> String {
@@ -28,7 +22,7 @@ fn trap_chip() -> String {
 #[test]
 fn tuned_copy_changes_only_the_settings_and_delivers_the_targets() {
     let dir = tempfile::tempdir().unwrap();
-    let chip = write(dir.path(), "chip.yaml", &trap_chip());
+    let chip = write_file(dir.path(), "chip.yaml", &trap_chip());
     let tuned = dir.path().join("tuned.yaml");
     let out = rillnet()
         .args(["tune", "--format", "json", "--output"])
@@ -139,7 +133,7 @@ fn sized_copy_has_rounded_values_and_delivers_the_split() {
 fn json_chip_copies_are_edited_in_json() {
     let dir = tempfile::tempdir().unwrap();
     let value = perfusion_json();
-    let chip = write(
+    let chip = write_file(
         dir.path(),
         "chip.json",
         &serde_json::to_string_pretty(&value).unwrap(),

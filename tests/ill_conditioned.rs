@@ -4,16 +4,10 @@
 
 mod common;
 
-use common::{channel_flow, rillnet};
+use common::{channel_flow, rillnet, write_file};
 use std::f64::consts::PI;
 
 const MU: f64 = 1.0e-3;
-
-fn write(dir: &std::path::Path, name: &str, text: &str) -> std::path::PathBuf {
-    let p = dir.join(name);
-    std::fs::write(&p, text).unwrap();
-    p
-}
 
 fn solve_json(path: &std::path::Path) -> (i32, serde_json::Value, String) {
     let out = rillnet()
@@ -58,7 +52,7 @@ fn series_pairs_give_the_series_flow_at_every_resistance_ratio() {
     let r = |l: f64, a: f64| 8.0 * MU * l / (PI * a.powi(4));
     // Resistance ratios 1e-8, 1e-12, 1e-16.
     for short in [1e-7, 1e-11, 1e-15] {
-        let p = write(
+        let p = write_file(
             dir.path(),
             &format!("pair{short:e}.yaml"),
             &series_pair(short),
@@ -87,7 +81,7 @@ fn a_pump_behind_a_negligible_channel_delivers_its_setting() {
     let dir = tempfile::tempdir().unwrap();
     for short in [1e-9, 1e-12, 1e-15] {
         let text = series_pair(short).replace("in: {pressure: 100 mbar}", "in: {flow: 5 uL/min}");
-        let p = write(dir.path(), &format!("pump{short:e}.yaml"), &text);
+        let p = write_file(dir.path(), &format!("pump{short:e}.yaml"), &text);
         let (code, v, err) = solve_json(&p);
         // The pump's own pressure is then ill-determined (the system's condition number is the
         // resistance ratio): either the flows are right, or the run is refused naming the
@@ -125,7 +119,7 @@ fn a_loop_of_negligible_channels_is_refused_by_name() {
             "  out: {pressure: 0 Pa}\n",
             "  m2: {}\n  out: {pressure: 0 Pa}\n",
         );
-    let p = write(dir.path(), "loop.yaml", &text);
+    let p = write_file(dir.path(), "loop.yaml", &text);
     let (code, _, err) = solve_json(&p);
     // Either resolved exactly (flows split 2:1 by the balance of their own junction is not
     // possible: both end at a pressure port) or refused naming them; never a wrong flow.
@@ -163,7 +157,7 @@ fn a_long_leaky_line_is_solved() {
             "  leak{i}: {{from: j{i}, to: drain, section: s, length: 1 mm}}\n"
         ));
     }
-    let p = write(dir.path(), "comb.yaml", &t);
+    let p = write_file(dir.path(), "comb.yaml", &t);
     let (code, v, err) = solve_json(&p);
     assert_eq!(code, 0, "{err}");
     let (qin, qout) = (port_flow(&v, "in"), port_flow(&v, "drain"));

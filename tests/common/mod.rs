@@ -46,3 +46,10 @@ pub fn channel_flow(report: &serde_json::Value, name: &str) -> f64 {
         .as_f64()
         .unwrap()
 }
+
+/// Write `text` to `dir/name`; the path.
+pub fn write_file(dir: &Path, name: &str, text: &str) -> std::path::PathBuf {
+    let p = dir.join(name);
+    std::fs::write(&p, text).unwrap();
+    p
+}
