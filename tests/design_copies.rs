@@ -5,7 +5,6 @@
 mod common;
 
 use common::{channel_flow, json_of, rillnet, run_json, write_file};
-use std::path::Path;
 
 const UL_MIN: f64 = 1e-9 / 60.0;
 
