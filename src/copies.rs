@@ -80,8 +80,10 @@ pub fn tuned_edits(chip: &Chip, r: &TuneResult, digits: usize) -> Vec<Edit> {
         .collect()
 }
 
-/// Fields of a closed-form section in the chip-file syntax, in µm; the width (or diameter)
-/// is rounded to `step` when one is given.
+/// Fields of a sizable section in the chip-file syntax, in µm; the sized width (diameter,
+/// trapezoid top, d-shape mask width) is rounded to `step` when one is given. A trapezoid's
+/// bottom is written as top minus the sidewall offset sizing kept, so the rounded top keeps
+/// the sidewall angle.
 fn section_fields(
     shape: &section::Shape,
     step: Option<f64>,
@@ -105,6 +107,32 @@ fn section_fields(
         section::Shape::Plates { gap, width: w } => {
             vec![("gap", um(gap)), ("width", width(w))]
         }
+        section::Shape::Trapezoid { top, bottom, depth } => {
+            let offset = top.si() - bottom.si();
+            let top_text = width(top);
+            let top_written = match step {
+                Some(s) if s > 0.0 => (top.si() / s).round() * s,
+                _ => top.si(),
+            };
+            let bottom_len = units::Length::from_si(top_written - offset);
+            vec![
+                ("top", top_text),
+                ("bottom", um(&bottom_len)),
+                ("depth", um(depth)),
+            ]
+        }
+        section::Shape::DShape { mask_width, depth } => {
+            vec![("mask_width", width(mask_width)), ("depth", um(depth))]
+        }
+        section::Shape::RoundedRectangle {
+            width: w,
+            height: h,
+            corner_radius,
+        } => vec![
+            ("width", width(w)),
+            ("height", um(h)),
+            ("corner_radius", um(corner_radius)),
+        ],
         _ => return None,
     };
     fields.extend(dims.into_iter().map(|(k, v)| (k.to_string(), v)));
@@ -140,8 +168,9 @@ fn rewrite_failed(chip: &Chip, what: &str) -> Error {
     Error::Write {
         path: chip.source.origin.clone().into(),
         reason: format!(
-            "cannot rewrite {what} in a copy of the chip: only closed-form sections (circle, \
-             rectangle, ellipse, plates) can be written back"
+            "cannot rewrite {what} in a copy of the chip: only sections with a sizable width \
+             (circle, rectangle, ellipse, plates, trapezoid, d-shape, rounded-rectangle) can be \
+             written back"
         ),
     }
 }

@@ -27,7 +27,10 @@ pub use crate::chip::design::{
     Adjustable, Design, ShearMeasure, SizeDim, SizeVar, Target, TargetKind, Tolerance,
     DEFAULT_TOLERANCE,
 };
-pub use adjoint::{dlog_resistance, sensitivities, sensitivities_with, Sensitivity};
+pub use adjoint::{
+    dlog_resistance, dlog_resistance_numeric, sensitivities, sensitivities_with, NumericDerivative,
+    Sensitivity, DERIVATIVE_TOLERANCE,
+};
 pub use serpentine::{serpentine, Serpentine};
 pub use size::{dimension, size, size_with, with_dimension, SizeResult, SizedDim};
 pub use targets::{evaluate, NotControllable, TargetOutcome, TargetQuantity};
@@ -50,11 +53,13 @@ pub enum DesignError {
     NoAdjustable,
     #[error("no channel dimension is free; add 'size: {{length: {{min: ..., max: ...}}}}' (or width) to a channel")]
     NoSizes,
-    #[error("channel '{channel}': width sizing needs a closed-form section (circle, rectangle, ellipse, plates); its section is a {shape}")]
+    #[error("channel '{channel}': width sizing needs a section with a width (circle, rectangle, ellipse, plates, trapezoid, d-shape, rounded-rectangle); its section is a {shape}")]
     WidthUnsupported {
         channel: String,
         shape: &'static str,
     },
+    #[error("channel '{channel}': the section at the sized width cannot be solved ({reason}); narrow the width's min/max")]
+    SizedSection { channel: String, reason: String },
     #[error(transparent)]
     Solve(#[from] SolveError),
 }

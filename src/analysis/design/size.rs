@@ -4,7 +4,11 @@
 //! damped, bounded, in relative units Δz_j = z_j·δ_j; [`super::super::boxqp`]) with exact
 //! derivatives: the adjoint of the Kirchhoff system (see `adjoint`) gives dq/dg for every
 //! channel conductance g with one extra solve per target row, and dg/dL = −g/L,
-//! dg/dw = −g·(dR'/dw)/R' (central difference of the closed-form R', [`dlog_resistance`]).
+//! dg/dw = −g·(dR'/dw)/R' (central difference of the closed-form R', [`dlog_resistance`]; for
+//! a numerically solved section — trapezoid top, d-shape mask width, rounded-rectangle width —
+//! a central difference of two converged solves with the step chosen against the solver's
+//! error estimate, [`dlog_resistance_numeric`]). Numerical figures and derivatives are kept
+//! per section geometry for the run, so a trial size seen before is not solved again.
 //! Dimensions with a fabrication step are then snapped to it and the others re-solved.
 //!
 //! A sized width gives the channel a section of its own, but the nodes, ports and channel
@@ -13,13 +17,15 @@
 
 use super::super::boxqp::{self, BoxLsq};
 use super::super::kirchhoff::{drive_values, FlowSolution, Solver};
-use super::adjoint::{dlog_resistance, measure_gradients};
+use super::adjoint::{dlog_resistance, dlog_resistance_numeric, measure_gradients};
 use super::targets::{outcomes, rows, Scales, TargetOutcome};
 use super::{Design, DesignError, SizeDim, SizeVar, TargetKind};
-use crate::network::{ChannelId, Network, Section, SectionId};
-use crate::section::Shape;
+use crate::network::{Network, Section, SectionId};
+use crate::section::numeric::NumericOptions;
+use crate::section::{GeometryKey, SectionFigures, Shape};
 use crate::units::Length;
 use std::cell::{Cell, RefCell};
+use std::collections::HashMap;
 
 /// Gauss–Newton iterations per descent, at most.
 const MAX_ITERATIONS: usize = 100;
@@ -80,6 +86,7 @@ pub fn size_with(solver: &Solver<'_>, design: &Design) -> Result<SizeResult, Des
         design,
         scales: RefCell::new(None),
         evaluations: Cell::new(0),
+        numeric: NumericCache::default(),
     };
     let mut it = Iterate::start(&ctx, z)?;
     it.descend(&ctx, &vec![true; vars.len()])?;
@@ -161,12 +168,10 @@ fn current(network: &Network, v: &SizeVar) -> Result<f64, DesignError> {
         SizeDim::Length => ch.length.si(),
         SizeDim::Width => {
             let shape = &network.sections[ch.section].shape;
-            dimension(shape, "width")
-                .filter(|_| shape.analytic_figures().is_some())
-                .ok_or_else(|| DesignError::WidthUnsupported {
-                    channel: ch.name.clone(),
-                    shape: shape.kind(),
-                })?
+            dimension(shape, "width").ok_or_else(|| DesignError::WidthUnsupported {
+                channel: ch.name.clone(),
+                shape: shape.kind(),
+            })?
         }
     })
 }
@@ -179,6 +184,51 @@ struct Context<'a, 'n> {
     /// evaluation), so that the objective is one function of the sizes throughout.
     scales: RefCell<Option<Scales>>,
     evaluations: Cell<usize>,
+    /// Numerical figures and width derivatives per section geometry, for this run.
+    numeric: NumericCache,
+}
+
+/// Numerical section figures and d ln R'/dw per geometry, solved once per sizing run.
+#[derive(Default)]
+struct NumericCache {
+    figures: RefCell<HashMap<GeometryKey, SectionFigures>>,
+    dlog_width: RefCell<HashMap<GeometryKey, f64>>,
+}
+
+impl NumericCache {
+    /// Figures of `shape`: closed form, else solved to `tolerance` (once per geometry).
+    fn figures(&self, shape: &Shape, tolerance: f64) -> Result<SectionFigures, String> {
+        if let Some(f) = shape.analytic_figures() {
+            return Ok(f);
+        }
+        let key = shape.geometry_key();
+        if let Some(f) = self.figures.borrow().get(&key) {
+            return Ok(*f);
+        }
+        let opts = NumericOptions {
+            tolerance,
+            ..NumericOptions::default()
+        };
+        let (f, _) = shape.figures_with(&opts).map_err(|e| e.to_string())?;
+        self.figures.borrow_mut().insert(key, f);
+        Ok(f)
+    }
+
+    /// d ln R'/dw of `shape`: closed form, else two converged solves (once per geometry).
+    fn dlog_width(&self, shape: &Shape, tolerance: f64) -> Result<f64, String> {
+        if shape.analytic_figures().is_some() {
+            return Ok(dlog_resistance(shape, "width").unwrap_or(0.0));
+        }
+        let key = shape.geometry_key();
+        if let Some(d) = self.dlog_width.borrow().get(&key) {
+            return Ok(*d);
+        }
+        let d = dlog_resistance_numeric(shape, "width", tolerance)
+            .map_err(|e| e.to_string())?
+            .map_or(0.0, |d| d.value);
+        self.dlog_width.borrow_mut().insert(key, d);
+        Ok(d)
+    }
 }
 
 /// The network at trial sizes, its checked state, its residuals and their Jacobian.
@@ -186,7 +236,10 @@ struct Evaluation {
     net: Network,
     state: FlowSolution,
     res: Vec<f64>,
-    jac: Vec<Vec<f64>>,
+    /// Per residual row and size variable: the factor of dg/dz and the explicit ∂/∂z.
+    jac_parts: Vec<Vec<(f64, f64)>>,
+    /// Conductances of the sized variables' channels.
+    g_sized: Vec<f64>,
 }
 
 impl Context<'_, '_> {
@@ -195,7 +248,7 @@ impl Context<'_, '_> {
     fn evaluate(&self, z: &[f64]) -> Result<Evaluation, DesignError> {
         self.evaluations.set(self.evaluations.get() + 1);
         let vars = &self.design.sizes;
-        let net = apply(self.solver.network(), vars, z)?;
+        let net = apply(self.solver.network(), vars, z, &self.numeric)?;
         let factor = self.solver.factorize(self.solver.conductances_of(&net)?)?;
         let state = factor.solve(&drive_values(&net))?;
         let scales = self
@@ -210,32 +263,20 @@ impl Context<'_, '_> {
             .map(|r| r.residual(&state.pressures, &state.flows))
             .collect();
         let g = factor.conductances();
-        let dg_dz: Vec<f64> = vars
-            .iter()
-            .zip(z)
-            .map(|(v, &zv)| {
-                let m = v.channel.0;
-                match v.dim {
-                    SizeDim::Length => -g[m] / zv,
-                    SizeDim::Width => {
-                        let shape = &net.sections[net.channels[ChannelId(m)].section].shape;
-                        -g[m] * dlog_resistance(shape, "width").unwrap_or(0.0)
-                    }
-                }
-            })
-            .collect();
-        // Jacobian d(res)/dz = √w/scale · (dJ/dg_m · dg_m/dz + ∂J/∂z). The explicit part is
-        // that of a wall-shear target on a channel whose length is sized: τ = s·|Δp|/L, so
+        // Jacobian d(res)/dz = √w/scale · (dJ/dg_m · dg_m/dz + ∂J/∂z), kept here as the
+        // factor of dg_m/dz and the explicit part; dg_m/dz itself is formed only for the
+        // iterates a step starts from ([`Context::jacobian`]), since for a numerically solved
+        // width it costs two converged section solves. The explicit part is that of a
+        // wall-shear target on a channel whose length is sized: τ = s·|Δp|/L, so
         // ∂τ/∂L = −τ/L. (A sized width also changes s; that part is left to the damped
         // iteration, which accepts only steps that lower the residual.)
-        let jac: Vec<Vec<f64>> = rws
+        let jac_parts: Vec<Vec<(f64, f64)>> = rws
             .iter()
             .zip(&grads)
             .map(|(r, gr)| {
                 vars.iter()
-                    .zip(&dg_dz)
                     .zip(z)
-                    .map(|((v, dg), &zv)| {
+                    .map(|(v, &zv)| {
                         let explicit = match self.design.targets[r.target].kind {
                             TargetKind::WallShear { channel, .. }
                                 if channel == v.channel && v.dim == SizeDim::Length =>
@@ -244,17 +285,57 @@ impl Context<'_, '_> {
                             }
                             _ => 0.0,
                         };
-                        r.weight.sqrt() * (gr[v.channel.0] * dg + explicit) / r.scale
+                        let c = r.weight.sqrt() / r.scale;
+                        (c * gr[v.channel.0], c * explicit)
                     })
                     .collect()
             })
             .collect();
+        let g_sized: Vec<f64> = vars.iter().map(|v| g[v.channel.0]).collect();
         Ok(Evaluation {
             net,
             state,
             res,
-            jac,
+            jac_parts,
+            g_sized,
         })
+    }
+
+    /// d(res)/dz of an evaluation at sizes `z`: dg/dL = −g/L, dg/dw = −g·d ln R'/dw.
+    fn jacobian(&self, e: &Evaluation, z: &[f64]) -> Result<Vec<Vec<f64>>, DesignError> {
+        let dg_dz: Vec<f64> = self
+            .design
+            .sizes
+            .iter()
+            .zip(z)
+            .zip(&e.g_sized)
+            .map(|((v, &zv), &g)| {
+                Ok(match v.dim {
+                    SizeDim::Length => -g / zv,
+                    SizeDim::Width => {
+                        let ch = &e.net.channels[v.channel];
+                        let shape = &e.net.sections[ch.section].shape;
+                        let d = self
+                            .numeric
+                            .dlog_width(shape, e.net.section_tolerance)
+                            .map_err(|reason| DesignError::SizedSection {
+                                channel: ch.name.clone(),
+                                reason,
+                            })?;
+                        -g * d
+                    }
+                })
+            })
+            .collect::<Result<_, DesignError>>()?;
+        Ok(e.jac_parts
+            .iter()
+            .map(|row| {
+                row.iter()
+                    .zip(&dg_dz)
+                    .map(|((c, explicit), dg)| c * dg + explicit)
+                    .collect()
+            })
+            .collect())
     }
 }
 
@@ -287,7 +368,8 @@ impl Iterate {
                 break;
             }
             self.iterations += 1;
-            let step = self.step(vars, free);
+            let jac = ctx.jacobian(&self.eval, &self.z)?;
+            let step = self.step(&jac, vars, free);
             let trial: Vec<f64> = vars
                 .iter()
                 .zip(&self.z)
@@ -318,12 +400,10 @@ impl Iterate {
 
     /// The bounded, damped least-squares step in relative units: minimise
     /// ‖J·diag(z)·δ + res‖² + μ‖δ‖² with min/z − 1 ≤ δ ≤ max/z − 1 (δ = 0 where not free).
-    fn step(&self, vars: &[SizeVar], free: &[bool]) -> BoxLsq {
+    fn step(&self, jac: &[Vec<f64>], vars: &[SizeVar], free: &[bool]) -> BoxLsq {
         let n = vars.len();
         let z = &self.z;
-        let mut a: Vec<Vec<f64>> = self
-            .eval
-            .jac
+        let mut a: Vec<Vec<f64>> = jac
             .iter()
             .map(|row| {
                 (0..n)
@@ -374,13 +454,18 @@ impl Iterate {
 
 /// Apply sizes `z` to a copy of the network. A sized width gives its channel a section of its
 /// own, so shared sections stay as they were; nodes and channel ends do not change.
-fn apply(network: &Network, vars: &[SizeVar], z: &[f64]) -> Result<Network, DesignError> {
+fn apply(
+    network: &Network,
+    vars: &[SizeVar],
+    z: &[f64],
+    cache: &NumericCache,
+) -> Result<Network, DesignError> {
     let mut net = network.clone();
     for (v, &val) in vars.iter().zip(z) {
         match v.dim {
             SizeDim::Length => net.channels[v.channel].length = Length::from_si(val),
             SizeDim::Width => {
-                let section = sized_section(&net, v, val)?;
+                let section = sized_section(&net, v, val, cache)?;
                 net.sections.push(section);
                 net.channels[v.channel].section = SectionId(net.sections.len() - 1);
             }
@@ -389,8 +474,14 @@ fn apply(network: &Network, vars: &[SizeVar], z: &[f64]) -> Result<Network, Desi
     Ok(net)
 }
 
-/// The section of `v`'s channel with its width set to `value`, with its closed-form figures.
-fn sized_section(net: &Network, v: &SizeVar, value: f64) -> Result<Section, DesignError> {
+/// The section of `v`'s channel with its width set to `value`, with its figures (closed form,
+/// else solved to the network's section tolerance).
+fn sized_section(
+    net: &Network,
+    v: &SizeVar,
+    value: f64,
+    cache: &NumericCache,
+) -> Result<Section, DesignError> {
     let ch = &net.channels[v.channel];
     let unsupported = |shape: &Shape| DesignError::WidthUnsupported {
         channel: ch.name.clone(),
@@ -398,7 +489,12 @@ fn sized_section(net: &Network, v: &SizeVar, value: f64) -> Result<Section, Desi
     };
     let shape = &net.sections[ch.section].shape;
     let new = with_dimension(shape, "width", value).ok_or_else(|| unsupported(shape))?;
-    let figures = new.analytic_figures().ok_or_else(|| unsupported(&new))?;
+    let figures = cache
+        .figures(&new, net.section_tolerance)
+        .map_err(|reason| DesignError::SizedSection {
+            channel: ch.name.clone(),
+            reason,
+        })?;
     Ok(Section {
         name: format!("{}.section", ch.name),
         named: false,
@@ -408,10 +504,33 @@ fn sized_section(net: &Network, v: &SizeVar, value: f64) -> Result<Section, Desi
 }
 
 /// The shape with its width (or a circle's diameter) or height set to `value`, when the shape
-/// has a closed form with that dimension.
+/// has that dimension. The width of a trapezoid is its top (at the lid), changed with the
+/// sidewall angle kept (the bottom moves by as much as the top); of a d-shape its mask width;
+/// of a rounded rectangle its width.
 pub fn with_dimension(shape: &Shape, dim: &str, value: f64) -> Option<Shape> {
     let v = Length::from_si(value);
     Some(match (shape, dim) {
+        (Shape::Trapezoid { top, bottom, depth }, "width") => Shape::Trapezoid {
+            top: v,
+            bottom: Length::from_si(value - (top.si() - bottom.si())),
+            depth: *depth,
+        },
+        (Shape::DShape { depth, .. }, "width") => Shape::DShape {
+            mask_width: v,
+            depth: *depth,
+        },
+        (
+            Shape::RoundedRectangle {
+                height,
+                corner_radius,
+                ..
+            },
+            "width",
+        ) => Shape::RoundedRectangle {
+            width: v,
+            height: *height,
+            corner_radius: *corner_radius,
+        },
         (Shape::Rectangle { height, .. }, "width") => Shape::Rectangle {
             width: v,
             height: *height,
@@ -453,6 +572,9 @@ pub fn dimension(shape: &Shape, dim: &str) -> Option<f64> {
         (Shape::Rectangle { height, .. } | Shape::Ellipse { height, .. }, "height") => height.si(),
         (Shape::Plates { gap, .. }, "height") => gap.si(),
         (Shape::Circle { diameter }, "width") => diameter.si(),
+        (Shape::Trapezoid { top, .. }, "width") => top.si(),
+        (Shape::DShape { mask_width, .. }, "width") => mask_width.si(),
+        (Shape::RoundedRectangle { width, .. }, "width") => width.si(),
         _ => return None,
     })
 }
