@@ -29,18 +29,6 @@ pub fn locate(text: &str, path: &[&str]) -> Option<(usize, usize)> {
     found.map(|i| line_col(text, i))
 }
 
-/// Byte offset of the key `path` ends with, only if every key of the path is found.
-pub fn locate_offset(text: &str, path: &[&str]) -> Option<usize> {
-    let mut pos = 0;
-    let mut found = None;
-    for key in path {
-        let i = find_key(text, key, pos)?;
-        found = Some(i);
-        pos = i + key.len();
-    }
-    found
-}
-
 fn find_key(text: &str, key: &str, from: usize) -> Option<usize> {
     if key.is_empty() {
         return None;

@@ -33,7 +33,7 @@ mod yaml_guard;
 // only Chip and the domain types they convert into.
 pub(crate) use design_spec::{AdjustSpec, SizeSpec, TargetSpec};
 pub(crate) use fluid_spec::FluidSpec;
-pub use locate::{locate, locate_offset};
+pub use locate::locate;
 pub(crate) use named::Named;
 pub(crate) use quantity::Q;
 pub(crate) use section_spec::SectionSpec;
