@@ -203,20 +203,23 @@ impl NetworkError {
     }
 }
 
+/// What a character hides, if it is a control, invisible or direction-changing character that
+/// would hide or reorder printed text; `None` for an ordinary character.
+pub fn hidden_char(c: char) -> Option<&'static str> {
+    match c {
+        c if c.is_control() => Some("a control character"),
+        '\u{200B}'..='\u{200F}' | '\u{2060}' | '\u{FEFF}' => Some("an invisible character"),
+        '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}' => {
+            Some("a character that changes the text direction")
+        }
+        _ => None,
+    }
+}
+
 /// Refuse names with control, zero-width or direction-changing characters: printed in a
 /// table they would hide or reorder text.
 fn check_name(kind: &'static str, name: &str) -> Result<(), NetworkError> {
-    let hidden = |c: char| -> Option<&'static str> {
-        match c {
-            c if c.is_control() => Some("a control character"),
-            '\u{200B}'..='\u{200F}' | '\u{2060}' | '\u{FEFF}' => Some("an invisible character"),
-            '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}' => {
-                Some("a character that changes the text direction")
-            }
-            _ => None,
-        }
-    };
-    match name.chars().find_map(|c| hidden(c).map(|w| (c, w))) {
+    match name.chars().find_map(|c| hidden_char(c).map(|w| (c, w))) {
         None => Ok(()),
         Some((c, what)) => Err(NetworkError::BadName {
             kind,

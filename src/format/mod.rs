@@ -55,12 +55,7 @@ pub fn visible(text: &str) -> String {
     text.chars()
         .map(|c| match c {
             '\n' | '\t' => c.to_string(),
-            c if c.is_control()
-                || matches!(c, '\u{200B}'..='\u{200F}' | '\u{2060}' | '\u{FEFF}')
-                || matches!(c, '\u{202A}'..='\u{202E}' | '\u{2066}'..='\u{2069}') =>
-            {
-                c.escape_unicode().to_string()
-            }
+            c if crate::network::hidden_char(c).is_some() => c.escape_unicode().to_string(),
             c => c.to_string(),
         })
         .collect()
