@@ -21,6 +21,8 @@ struct JsonSection {
     fre_fanning: f64,
     max_wall_shear_per_gradient_m: f64,
     max_wall_shear_at_m: Option<[f64; 2]>,
+    /// What the coordinates of `max_wall_shear_at_m` and of corners are measured from.
+    position_origin: Option<&'static str>,
     mean_wall_shear_per_gradient_m: f64,
     relative_error_estimate: f64,
     shear_error_estimate: Option<f64>,
@@ -60,6 +62,7 @@ fn json_section(o: &SectionOutcome) -> JsonSection {
         fre_fanning: f.f_re(),
         max_wall_shear_per_gradient_m: f.max_wall_shear_per_gradient,
         max_wall_shear_at_m: numeric.map(|n| n.max_shear_at),
+        position_origin: numeric.map(|_| position_origin(shape.kind())),
         mean_wall_shear_per_gradient_m: f.mean_wall_shear_per_gradient(),
         relative_error_estimate: f.relative_error_estimate,
         shear_error_estimate: numeric
@@ -87,6 +90,16 @@ fn json_section(o: &SectionOutcome) -> JsonSection {
     }
 }
 
+/// What positions on a numerically solved outline are measured from, by shape kind (see
+/// `Shape::outline`: the lid at y = 0 and the channel below it).
+fn position_origin(kind: &str) -> &'static str {
+    match kind {
+        "polygon" => "the polygon's own coordinates, as given",
+        "profile" => "x = the profile's own position, y = minus the depth (lid at y = 0)",
+        _ => "x from the centre line, y from the lid (y = 0; the channel lies at y < 0)",
+    }
+}
+
 /// One section's figures as JSON.
 pub(crate) fn section_json(o: &SectionOutcome, w: &mut dyn io::Write) -> io::Result<()> {
     super::json::write_json(&json_section(o), w)
@@ -111,6 +124,7 @@ pub(crate) fn section_csv(o: &SectionOutcome, tables: &mut Tables<'_>) -> io::Re
             "max_wall_shear_per_gradient_m",
             "max_wall_shear_at_x_m",
             "max_wall_shear_at_y_m",
+            "position_origin",
             "mean_wall_shear_per_gradient_m",
             "relative_error_estimate",
             "shear_error_estimate",
@@ -133,6 +147,7 @@ pub(crate) fn section_csv(o: &SectionOutcome, tables: &mut Tables<'_>) -> io::Re
             n(j.max_wall_shear_per_gradient_m),
             num(at(0)),
             num(at(1)),
+            j.position_origin.unwrap_or_default().into(),
             n(j.mean_wall_shear_per_gradient_m),
             n(j.relative_error_estimate),
             num(j.shear_error_estimate),
@@ -209,6 +224,13 @@ pub fn section_report(o: &SectionOutcome) -> String {
     ];
     let mut rows = rows;
     if let Some(n) = numeric {
+        rows.insert(
+            rows.len() - 1,
+            (
+                "positions measured from",
+                position_origin(shape.kind()).into(),
+            ),
+        );
         rows.push((
             "relative error estimate (max shear)",
             estimate(n.shear_error_estimate),
