@@ -97,6 +97,45 @@ pub(super) struct MaxShear {
 /// is free of that alternation and converges to the pointwise maximum of a smooth wall shear
 /// as h²; the refinement loop's estimate accounts for that order.
 pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction: f64) -> MaxShear {
+    let (values, radius) = element_values(m, s, singular, fraction);
+    // Every wall element near a singular corner: the plain maximum (flagged by the caller).
+    let pick = |v: &[ElementValue], counted: bool| {
+        v.iter()
+            .filter(|e| e.counted || !counted)
+            .map(|e| (e.value, e.at))
+            .fold(None, |best: Option<(f64, Point)>, x| match best {
+                Some(b) if b.0 >= x.0 => Some(b),
+                _ => Some(x),
+            })
+    };
+    let (value, at) = pick(&values, true)
+        .or(pick(&values, false))
+        .unwrap_or((0.0, [0.0, 0.0]));
+    MaxShear {
+        value,
+        at,
+        exclusion_radius: radius,
+    }
+}
+
+/// The value one wall element contributes to the maximum wall shear.
+struct ElementValue {
+    /// The wall element's edge node (unique to it).
+    middle: usize,
+    value: f64,
+    at: Point,
+    /// Whether it counts towards the maximum (outside the corner neighbourhoods).
+    counted: bool,
+}
+
+/// Each wall element's contribution to the maximum (see [`max_wall_shear`]), and the radius of
+/// the corner neighbourhoods.
+fn element_values(
+    m: &Mesh,
+    s: &Solved,
+    singular: &[Point],
+    fraction: f64,
+) -> (Vec<ElementValue>, f64) {
     let perimeter: f64 = m
         .walls
         .iter()
@@ -114,8 +153,7 @@ pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction:
             .iter()
             .all(|c| (p[0] - c[0]).hypot(p[1] - c[1]) > radius)
     };
-    let mut best: Option<(f64, Point)> = None;
-    let mut any: Option<(f64, Point)> = None;
+    let mut out = Vec::new();
     for w in &m.walls {
         for ids in wall_elements(w) {
             let (length, integral) = wall_element(&m.nodes, ids, |k| s.shear_at(ids[k]));
@@ -123,31 +161,57 @@ pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction:
                 continue;
             }
             let mean = integral / length;
-            if any.is_none_or(|b| mean > b.0) {
-                any = Some((mean, m.nodes[ids[1]]));
-            }
             let inside = ids.map(|i| !allowed(i));
-            if !inside.iter().any(|&x| x) {
-                if best.is_none_or(|b| mean > b.0) {
-                    best = Some((mean, m.nodes[ids[1]]));
-                }
+            let (value, at, counted) = if !inside.iter().any(|&x| x) {
+                (mean, m.nodes[ids[1]], true)
             } else if inside[0] != inside[2] {
                 // The wall enters a neighbourhood inside this element: the shear where it
                 // crosses the circle, from the quadratic interpolant of the nodal flux.
                 let (value, at) = crossing(m, s, ids, singular, radius, inside[0]);
-                if best.is_none_or(|b| value > b.0) {
-                    best = Some((value, at));
-                }
-            }
+                (value, at, true)
+            } else {
+                (mean, m.nodes[ids[1]], false)
+            };
+            out.push(ElementValue {
+                middle: ids[1],
+                value,
+                at,
+                counted,
+            });
         }
     }
-    // Every wall element near a singular corner: the plain maximum (flagged by the caller).
-    let (value, at) = best.or(any).unwrap_or((0.0, [0.0, 0.0]));
-    MaxShear {
-        value,
-        at,
-        exclusion_radius: radius,
+    (out, radius)
+}
+
+/// The triangles with a wall edge whose contribution to the maximum wall shear lies within
+/// the fraction `band` of `max`: refined on every level, so that h halves there each time and
+/// the maximum converges as the element allows wherever else the indicator refines.
+pub(super) fn near_maximum(
+    m: &Mesh,
+    s: &Solved,
+    singular: &[Point],
+    fraction: f64,
+    band: f64,
+) -> Vec<bool> {
+    let (values, _) = element_values(m, s, singular, fraction);
+    let max = values
+        .iter()
+        .filter(|e| e.counted)
+        .map(|e| e.value)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let mut owner = vec![usize::MAX; m.nodes.len()];
+    for (ti, t) in m.tris.iter().enumerate() {
+        for &i in &t[3..] {
+            owner[i] = ti;
+        }
     }
+    let mut marked = vec![false; m.tris.len()];
+    for e in values {
+        if e.counted && e.value >= (1.0 - band) * max && owner[e.middle] != usize::MAX {
+            marked[owner[e.middle]] = true;
+        }
+    }
+    marked
 }
 
 /// Where the quadratic wall element `ids` crosses the boundary of the corner neighbourhoods
