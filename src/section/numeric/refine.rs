@@ -79,6 +79,11 @@ pub(super) fn solve_to_tolerance(
         .copied()
         .collect();
     let singular_frame: Vec<Point> = singular.iter().map(|c| frame.norm(&c.at)).collect();
+    let corner_frame: Vec<Point> = corners.iter().map(|c| frame.norm(&c.at)).collect();
+    let wall_corners = wall::Corners {
+        singular: &singular_frame,
+        all: &corner_frame,
+    };
     let p_corner = corner_order(&corners);
     let area = shoelace(&frame.norm_loops(&coarse));
     check_proportions(&coarse, area * frame.scale * frame.scale, opts.max_nodes)?;
@@ -89,7 +94,7 @@ pub(super) fn solve_to_tolerance(
     loop {
         let m = mesh::quadratic(&linear);
         let s = solve_on(&m)?;
-        let max_shear = wall::max_wall_shear(&m, &s, &singular_frame, CORNER_EXCLUSION);
+        let max_shear = wall::max_wall_shear(&m, &s, &wall_corners, CORNER_EXCLUSION);
         history.push(LevelSummary {
             nodes: m.nodes.len(),
             k: s.k,
@@ -105,8 +110,7 @@ pub(super) fn solve_to_tolerance(
             None
         } else {
             let eta2 = indicator::indicators(&m, &s);
-            let near_max =
-                wall::near_maximum(&m, &s, &singular_frame, CORNER_EXCLUSION, SHEAR_BAND);
+            let near_max = wall::near_maximum(&m, &s, &wall_corners, CORNER_EXCLUSION, SHEAR_BAND);
             let next = next_level(&linear, &eta2, &near_max, m.nodes.len());
             (mesh::quadratic_node_count(&next) <= opts.max_nodes).then_some(next)
         };

@@ -80,24 +80,28 @@ pub(super) struct MaxShear {
     pub(super) exclusion_radius: f64,
 }
 
-/// The largest wall shear, as the largest mean over one wall element (∫τ ds / L), away from the
-/// re-entrant corners `singular`.
+/// The largest wall shear, pointwise, away from the re-entrant corners `corners.singular`.
+///
+/// On each wall element the nodal flux distribution is a quadratic in the element's parameter
+/// (the consistent boundary flux, see [`consistent_shear`]); its largest value on the element
+/// (at an end or at the vertex of the parabola) is the element's contribution, so the maximum
+/// is a value at the wall, not an average over one element.
+///
+/// Exception, the known vertex/edge-node alternation: at a corner of the outline (any angle,
+/// e.g. every vertex of a polygon standing for a curve or of a measured profile), the exact
+/// gradient dips to zero (convex) or peaks (re-entrant) over a vanishing length, and the
+/// nodal flux next to it alternates between vertex and edge nodes while its integral stays
+/// exact. An element with an outline corner at an end therefore contributes its mean
+/// (∫τ ds / L), which is free of the alternation; the others their pointwise maximum.
 ///
 /// The wall within `fraction` × Dh (Dh = 4A/P of this mesh) of a re-entrant corner is left out:
 /// the wall shear grows without bound towards such a corner, so its pointwise value there only
-/// reflects the mesh. Elements wholly outside contribute their mean; an element the
-/// neighbourhood's circle cuts contributes the wall shear where the wall crosses the circle
-/// (the quadratic interpolant of the nodal flux), so the maximum next to a corner, where the
-/// shear rises towards it, is a value at a fixed place that converges with the mesh.
-///
-/// Why a mean and not the largest nodal value: every vertex of a polygonal outline (a measured
-/// profile, a polygon standing for a curve) is a corner of interior angle just under 180°,
-/// where the exact gradient dips to zero over a vanishing length; the nodal flux then
-/// alternates between vertex and edge nodes while its integral stays exact. The element mean
-/// is free of that alternation and converges to the pointwise maximum of a smooth wall shear
-/// as h²; the refinement loop's estimate accounts for that order.
-pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction: f64) -> MaxShear {
-    let (values, radius) = element_values(m, s, singular, fraction);
+/// reflects the mesh. An element the neighbourhood's circle cuts contributes the wall shear
+/// where the wall crosses the circle (the quadratic interpolant of the nodal flux), so the
+/// maximum next to a corner, where the shear rises towards it, is a value at a fixed place that
+/// converges with the mesh.
+pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, corners: &Corners, fraction: f64) -> MaxShear {
+    let (values, radius) = element_values(m, s, corners, fraction);
     // Every wall element near a singular corner: the plain maximum (flagged by the caller).
     let pick = |v: &[ElementValue], counted: bool| {
         v.iter()
@@ -118,6 +122,47 @@ pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction:
     }
 }
 
+/// The outline's corners in the frame: the re-entrant ones, and all of them.
+pub(super) struct Corners<'a> {
+    pub(super) singular: &'a [Point],
+    pub(super) all: &'a [Point],
+}
+
+/// A wall node this close to a corner (in the frame) is the corner.
+const CORNER_MATCH: f64 = 1e-9;
+
+/// The largest value on [0, 1] of the quadratic through `v` (at 0, ½, 1), and where.
+fn polynomial_max(v: [f64; 3]) -> (f64, f64) {
+    let p = |t: f64| {
+        let (nn, _) = edge_shape(t);
+        nn[0] * v[0] + nn[1] * v[1] + nn[2] * v[2]
+    };
+    let mut best = if v[0] >= v[2] {
+        (v[0], 0.0)
+    } else {
+        (v[2], 1.0)
+    };
+    let curvature = v[0] - 2.0 * v[1] + v[2];
+    if curvature < 0.0 {
+        let t = (3.0 * v[0] - 4.0 * v[1] + v[2]) / (4.0 * curvature);
+        if t > 0.0 && t < 1.0 && p(t) > best.0 {
+            best = (p(t), t);
+        }
+    }
+    best
+}
+
+/// The point at parameter `t` along the quadratic wall element `ids`.
+fn point_at(m: &Mesh, ids: [usize; 3], t: f64) -> Point {
+    let (nn, _) = edge_shape(t);
+    let mut p = [0.0; 2];
+    for k in 0..3 {
+        p[0] += nn[k] * m.nodes[ids[k]][0];
+        p[1] += nn[k] * m.nodes[ids[k]][1];
+    }
+    p
+}
+
 /// The value one wall element contributes to the maximum wall shear.
 struct ElementValue {
     /// The wall element's edge node (unique to it).
@@ -133,9 +178,10 @@ struct ElementValue {
 fn element_values(
     m: &Mesh,
     s: &Solved,
-    singular: &[Point],
+    corners: &Corners,
     fraction: f64,
 ) -> (Vec<ElementValue>, f64) {
+    let (singular, corners) = (corners.singular, corners.all);
     let perimeter: f64 = m
         .walls
         .iter()
@@ -153,6 +199,14 @@ fn element_values(
             .iter()
             .all(|c| (p[0] - c[0]).hypot(p[1] - c[1]) > radius)
     };
+    let touches = |ids: [usize; 3]| {
+        [ids[0], ids[2]].iter().any(|&i| {
+            let p = m.nodes[i];
+            corners
+                .iter()
+                .any(|c| (p[0] - c[0]).hypot(p[1] - c[1]) <= CORNER_MATCH)
+        })
+    };
     let mut out = Vec::new();
     for w in &m.walls {
         for ids in wall_elements(w) {
@@ -163,7 +217,12 @@ fn element_values(
             let mean = integral / length;
             let inside = ids.map(|i| !allowed(i));
             let (value, at, counted) = if !inside.iter().any(|&x| x) {
-                (mean, m.nodes[ids[1]], true)
+                if touches(ids) {
+                    (mean, m.nodes[ids[1]], true)
+                } else {
+                    let (value, t) = polynomial_max(ids.map(|i| s.shear_at(i)));
+                    (value, point_at(m, ids, t), true)
+                }
             } else if inside[0] != inside[2] {
                 // The wall enters a neighbourhood inside this element: the shear where it
                 // crosses the circle, from the quadratic interpolant of the nodal flux.
@@ -189,11 +248,11 @@ fn element_values(
 pub(super) fn near_maximum(
     m: &Mesh,
     s: &Solved,
-    singular: &[Point],
+    corners: &Corners,
     fraction: f64,
     band: f64,
 ) -> Vec<bool> {
-    let (values, _) = element_values(m, s, singular, fraction);
+    let (values, _) = element_values(m, s, corners, fraction);
     let max = values
         .iter()
         .filter(|e| e.counted)
