@@ -174,7 +174,7 @@ pub(super) fn edge_shape(t: f64) -> ([f64; 3], [f64; 3]) {
 }
 
 /// Tangent (dx/dt, dy/dt) of the quadratic curve through `p` for shape derivatives `dn`.
-fn edge_tangent(p: [Point; 3], dn: [f64; 3]) -> (f64, f64) {
+pub(super) fn edge_tangent(p: [Point; 3], dn: [f64; 3]) -> (f64, f64) {
     let dx = dn[0] * p[0][0] + dn[1] * p[1][0] + dn[2] * p[2][0];
     let dy = dn[0] * p[0][1] + dn[1] * p[1][1] + dn[2] * p[2][1];
     (dx, dy)

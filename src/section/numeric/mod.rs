@@ -50,6 +50,10 @@ pub use refine::SAFETY_FACTOR;
 /// Radius of the neighbourhood of a re-entrant corner left out of the maximum wall shear, as a
 /// fraction of the hydraulic diameter Dh = 4A/P.
 pub const CORNER_EXCLUSION: f64 = 0.02;
+
+/// Fraction of the wall length left out of the robust maximum of the wall shear
+/// ([`NumericSection::robust_max_wall_shear_per_gradient`]).
+pub const ROBUST_EXCLUDED_FRACTION: f64 = 0.01;
 use crate::solver::SolverError;
 
 /// Accuracy and effort settings.
@@ -123,10 +127,25 @@ pub struct NumericSection {
     pub area: f64,
     pub perimeter: f64,
     pub conductance_factor: f64,
-    /// Largest wall shear per unit gradient τ/G [m], away from re-entrant corners (see
-    /// [`CORNER_EXCLUSION`]); the largest over the whole wall when there are none.
+    /// Largest wall shear per unit gradient τ/G [m], pointwise at the wall, away from
+    /// re-entrant corners (see [`CORNER_EXCLUSION`]); the largest over the whole wall when
+    /// there are none. On rough walls it is resolution-dependent (it sits on the tip of some
+    /// bump, and moves as the mesh resolves the bumps); see
+    /// [`Self::robust_max_wall_shear_per_gradient`].
     pub max_wall_shear_per_gradient: f64,
     pub max_shear_at: Point,
+    /// Robust maximum of the wall shear per unit gradient τ/G [m]: the level that the wall
+    /// shear exceeds on only [`ROBUST_EXCLUDED_FRACTION`] (1 %) of the wall length (its 99th
+    /// percentile by wall length), over all walls, the neighbourhoods of re-entrant corners
+    /// included, sampled at eight points per wall element. On a rough wall (a measured
+    /// profile, every vertex a corner) the pointwise maximum
+    /// [`Self::max_wall_shear_per_gradient`] depends on the resolution: on how finely the
+    /// profile was sampled, on which corners are re-entrant and so left out, and on the size of
+    /// the discs left out (set by Dh, not by the roughness). The robust maximum is a property
+    /// of the wall-shear distribution instead; as it includes the high shear next to the
+    /// re-entrant corners, it can exceed the pointwise maximum there. No error estimate is
+    /// attached to it.
+    pub robust_max_wall_shear_per_gradient: f64,
     /// ∮(τ/G) ds / P, which force balance says equals A/P: a consistency check.
     pub mean_wall_shear_per_gradient_from_flux: f64,
     /// Estimated bound on the relative error of K (infinite when fewer than two meshes were

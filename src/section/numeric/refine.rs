@@ -39,6 +39,7 @@ use super::assembly::{solve_on, Solved};
 use super::mesh::{self, Frame, Linear, Mesh};
 use super::{
     indicator, wall, FieldMesh, NumericError, NumericOptions, NumericSection, CORNER_EXCLUSION,
+    ROBUST_EXCLUDED_FRACTION,
 };
 use crate::section::outline::{Corner, Outline, Point};
 use std::f64::consts::PI;
@@ -319,6 +320,8 @@ fn finish(level: Level, frame: &Frame, status: Status, singular: Vec<Corner>) ->
         conductance_factor: s.k * scale.powi(4),
         max_wall_shear_per_gradient: max_shear.value * scale,
         max_shear_at: frame.si(max_shear.at),
+        robust_max_wall_shear_per_gradient: wall::robust_max(&m, &s, ROBUST_EXCLUDED_FRACTION)
+            * scale,
         mean_wall_shear_per_gradient_from_flux: walk.flux / walk.perimeter * scale,
         relative_error_estimate: status.estimate,
         shear_error_estimate: status.shear_estimate,

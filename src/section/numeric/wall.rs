@@ -3,7 +3,7 @@
 //! perimeter and total flux along the walls.
 
 use super::assembly::{solve_symmetric, Solved};
-use super::element::{edge_mass, edge_shape, wall_element};
+use super::element::{edge_mass, edge_shape, edge_tangent, wall_element};
 use super::mesh::{Frame, Mesh};
 use super::{NumericError, WallSample};
 use crate::section::outline::Point;
@@ -312,6 +312,41 @@ fn crossing(
     let (nn, _) = edge_shape(hi);
     let value = (0..3).map(|k| nn[k] * s.shear_at(ids[k])).sum();
     (value, at(hi))
+}
+
+/// Sub-intervals per wall element at whose midpoints the robust maximum samples the wall shear.
+const ROBUST_SAMPLES: usize = 8;
+
+/// The robust maximum of the wall shear (see [`super::ROBUST_EXCLUDED_FRACTION`]): the wall
+/// shear is sampled at the midpoints of [`ROBUST_SAMPLES`] equal parameter intervals of every
+/// quadratic wall element (the quadratic interpolant of the nodal flux), each sample standing
+/// for its interval's length; the result is the largest sample value v such that the samples
+/// above v stand for at most the fraction `excluded` of the total wall length.
+pub(super) fn robust_max(m: &Mesh, s: &Solved, excluded: f64) -> f64 {
+    let mut samples: Vec<(f64, f64)> = Vec::new();
+    let dt = 1.0 / ROBUST_SAMPLES as f64;
+    for w in &m.walls {
+        for ids in wall_elements(w) {
+            let p = ids.map(|i| m.nodes[i]);
+            for j in 0..ROBUST_SAMPLES {
+                let t = (j as f64 + 0.5) * dt;
+                let (nn, dn) = edge_shape(t);
+                let (dx, dy) = edge_tangent(p, dn);
+                let value = (0..3).map(|k| nn[k] * s.shear_at(ids[k])).sum::<f64>();
+                samples.push((value, dx.hypot(dy) * dt));
+            }
+        }
+    }
+    let total: f64 = samples.iter().map(|x| x.1).sum();
+    samples.sort_by(|a, b| b.0.total_cmp(&a.0));
+    let mut above = 0.0;
+    for (value, length) in samples.iter().copied() {
+        if above + length > excluded * total {
+            return value;
+        }
+        above += length;
+    }
+    samples.last().map_or(0.0, |x| x.0)
 }
 
 /// The walls walked element by element.
