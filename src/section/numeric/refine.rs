@@ -186,7 +186,8 @@ fn check_proportions(
         })
         .sum();
     if area.is_nan() || area <= 0.0 {
-        return Err(NumericError::Mesh("the outline encloses no area".into()));
+        // No area to judge (e.g. a polygon that crosses itself): the mesher says what is wrong.
+        return Ok(());
     }
     let predicted = NODES_PER_P2_OVER_A * perimeter * perimeter / area;
     if predicted > max_nodes as f64 {
