@@ -1,6 +1,7 @@
 //! Wall shear: the consistent boundary flux turned into nodal shear by a 1-D mass solve along
-//! each wall loop, the largest wall shear at the wall away from re-entrant corners, and the samples,
-//! perimeter and total flux along the walls.
+//! each wall loop, the largest wall shear (pointwise) away from re-entrant corners and the wall
+//! next to it (refined on every level), the robust maximum (99th percentile by wall length),
+//! and the samples, perimeter and total flux along the walls.
 
 use super::assembly::{solve_symmetric, Solved};
 use super::element::{edge_mass, edge_shape, edge_tangent, wall_element};
