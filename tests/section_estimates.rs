@@ -292,10 +292,11 @@ fn estimate_bounds_the_error_against_independent_references() {
 
 #[test]
 fn estimate_bounds_the_error_on_rough_and_re_entrant_outlines() {
-    // No published value exists for these: the reference is a solve of our own on the same
-    // base mesh refined once more (4× the nodes). The levels are nested conforming spaces, so
-    // K grows with every level and stays below the true K: the finer K less the default one
-    // is a lower bound on the default solve's true error, and the estimate must lie above it.
+    // No published value exists for these: the reference is a solve of our own that carries
+    // the same refinement sequence further (up to 8× the nodes, at least one more level). The
+    // levels are nested conforming spaces, so K grows with every level and stays below the
+    // true K: the finer K less the default one is a lower bound on the default solve's true
+    // error, and the estimate must lie above it.
     let mut cases = Vec::new();
     let l_shape = Shape::Polygon {
         points: pts(&[
@@ -342,13 +343,16 @@ fn estimate_bounds_the_error_on_rough_and_re_entrant_outlines() {
                 max_nodes: 8 * default.field.nodes.len(),
             },
         );
-        assert_eq!(fine.refinements, default.refinements + 1, "{name}");
+        assert!(fine.refinements > default.refinements, "{name}");
+        assert!(
+            fine.conductance_factor >= default.conductance_factor,
+            "{name}"
+        );
         cases.push(case(name, &shape, fine.conductance_factor));
     }
-    // The ±1 µm profile does not reach 1e-4 within the default node budget by uniform
-    // refinement (its bumps are re-entrant corners); it must say so, and its estimate must
-    // still bound the error.
-    check(&cases, false);
+    // Every one of them, the ±1 µm profile included (its bumps are re-entrant corners, which
+    // the adaptive refinement resolves), converges within the default node budget.
+    check(&cases, true);
 }
 
 #[test]
@@ -469,8 +473,8 @@ fn re_entrant_corner_is_flagged_and_left_out_of_the_maximum() {
         assert!(f.max_wall_shear_singular && f.singular_corner_count == 1);
         assert_eq!(f.singular_corner, Some(c.at));
     }
-    // The off-corner maximum converges: it changes by less than 1e-3 between the last two
-    // levels (about 26 000 and 104 000 nodes), within the estimate the finer one reports.
+    // The off-corner maximum converges: it changes by less than 1e-3 between the two
+    // solves (node budgets 30 000 and 120 000), within the estimate the finer one reports.
     let (t0, _) = taus[0];
     let (t1, e1) = taus[1];
     assert!(((t1 - t0) / t1).abs() < 1e-3, "{taus:?}");

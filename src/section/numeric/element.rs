@@ -77,6 +77,57 @@ fn physical(xy: &[Point; 6], xi: f64, eta: f64) -> ([f64; 6], [[f64; 2]; 6], f64
     (n, g, det.abs())
 }
 
+/// The gradient of the P2 function with nodal values `phi` on the triangle `xy` at the
+/// reference point (ξ, η).
+pub(super) fn gradient(xy: &[Point; 6], phi: &[f64; 6], xi: f64, eta: f64) -> [f64; 2] {
+    let (_, g, _) = physical(xy, xi, eta);
+    let mut out = [0.0; 2];
+    for k in 0..6 {
+        out[0] += phi[k] * g[k][0];
+        out[1] += phi[k] * g[k][1];
+    }
+    out
+}
+
+/// The Laplacian of the P2 function with nodal values `phi` on the triangle `xy`, taking the
+/// triangle as straight-sided (its vertices' affine map; exact off curved walls, where it is
+/// constant).
+pub(super) fn laplacian(xy: &[Point; 6], phi: &[f64; 6]) -> f64 {
+    // ∂ξ_c/∂x_r from the vertices.
+    let j = [
+        [xy[1][0] - xy[0][0], xy[2][0] - xy[0][0]],
+        [xy[1][1] - xy[0][1], xy[2][1] - xy[0][1]],
+    ];
+    let det = j[0][0] * j[1][1] - j[0][1] * j[1][0];
+    if det == 0.0 {
+        return 0.0;
+    }
+    let inv = [
+        [j[1][1] / det, -j[0][1] / det],
+        [-j[1][0] / det, j[0][0] / det],
+    ];
+    // M = J⁻¹J⁻ᵀ: Δφ = Σ_cd (∂²φ/∂ξ_c∂ξ_d) M_cd.
+    let m = |c: usize, d: usize| inv[c][0] * inv[d][0] + inv[c][1] * inv[d][1];
+    let dl = [[-1.0, -1.0], [1.0, 0.0], [0.0, 1.0]];
+    // Second derivatives of λ_i(2λ_i − 1) and 4λ_iλ_j in (ξ, η): constants.
+    let pairs = [(0, 0), (1, 1), (2, 2), (0, 1), (1, 2), (2, 0)];
+    let mut lap = 0.0;
+    for (k, &(a, b)) in pairs.iter().enumerate() {
+        let scale = if a == b { 2.0 } else { 4.0 };
+        for c in 0..2 {
+            for d in 0..2 {
+                let h = if a == b {
+                    scale * 2.0 * dl[a][c] * dl[a][d]
+                } else {
+                    scale * (dl[a][c] * dl[b][d] + dl[b][c] * dl[a][d])
+                };
+                lap += phi[k] * h * m(c, d);
+            }
+        }
+    }
+    lap
+}
+
 /// The matrices of one P2 triangle for ∇²φ = −1.
 pub(super) struct ElementMatrices {
     /// Stiffness k_ab = ∫ ∇N_a·∇N_b dA.
@@ -123,7 +174,7 @@ pub(super) fn edge_shape(t: f64) -> ([f64; 3], [f64; 3]) {
 }
 
 /// Tangent (dx/dt, dy/dt) of the quadratic curve through `p` for shape derivatives `dn`.
-fn edge_tangent(p: [Point; 3], dn: [f64; 3]) -> (f64, f64) {
+pub(super) fn edge_tangent(p: [Point; 3], dn: [f64; 3]) -> (f64, f64) {
     let dx = dn[0] * p[0][0] + dn[1] * p[1][0] + dn[2] * p[2][0];
     let dy = dn[0] * p[0][1] + dn[1] * p[1][1] + dn[2] * p[2][1];
     (dx, dy)

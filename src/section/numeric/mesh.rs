@@ -1,6 +1,6 @@
 //! Mesh generation for the numerical solver: the unit-size frame the mesher and assembly work
 //! in, the constrained-Delaunay quality mesh of the outline's chord polygons (spade) as the
-//! base, uniform red refinement of it (nested levels), arc walls moved back onto their arcs,
+//! base, newest-vertex bisection of marked triangles (nested, conforming levels), arc walls moved back onto their arcs,
 //! the quadratic elements' edge nodes, and the wall loops.
 
 use super::NumericError;
@@ -109,14 +109,15 @@ pub(super) fn base(
             ..*a
         })
         .collect();
-    let (mut nodes, tris) = triangulate(&loops, max_area)?;
+    let (mut nodes, mut tris) = triangulate(&loops, max_area)?;
     snap_wall_vertices(&mut nodes, &edge_uses(&tris), &arcs);
+    longest_edge_first(&nodes, &mut tris);
     Ok(Linear { nodes, tris, arcs })
 }
 
 /// Wall points at distances h/2, h/4, ..., h/2^GRADING from every re-entrant corner along its
 /// two walls (within half of each wall segment): the quality mesher grades the elements down
-/// towards the corner, where the solution is singular, and red refinement keeps the grading.
+/// towards the corner, where the solution is singular, and the refinement keeps the grading.
 const GRADING: i32 = 6;
 
 /// The loop `l` with grading points added next to the corners in `singular`.
@@ -156,21 +157,112 @@ fn grade(l: &[Point], singular: &[Point], h: f64) -> Vec<Point> {
     out
 }
 
-/// Uniform (red) refinement: every triangle split into four at its edge midpoints, midpoints
-/// of arc walls placed on the arc. The refined spaces are nested and every element near a
-/// corner is replaced by similar ones, so successive levels converge at one steady rate.
-pub(super) fn red(lin: &Linear) -> Linear {
+/// Newest-vertex bisection of the triangles `marked` (Mitchell 1991, "Adaptive refinement for
+/// arbitrary finite-element spaces with hierarchical bases", J. Comput. Appl. Math. 36; the
+/// closure as in Bänsch 1991, "Local mesh refinement in 2 and 3 dimensions", IMPACT Comput.
+/// Sci. Eng. 3): every edge of a marked triangle is bisected; a triangle with a bisected edge
+/// has its refinement edge (opposite its newest vertex, `tris[t][0]`) bisected too, until no
+/// triangle needs more; then each triangle is split on its refinement edge and its children on
+/// theirs where bisected (at most four children). The result is conforming, nested in the
+/// input (every old triangle is a union of new ones) and of bounded shape: bisection produces
+/// finitely many similarity classes per base triangle. Midpoints of arc walls go on the arc.
+pub(super) fn bisect(lin: &Linear, marked: &[bool]) -> Linear {
+    let mut split: HashSet<Edge> = HashSet::new();
+    for (t, _) in lin.tris.iter().zip(marked).filter(|(_, &m)| m) {
+        for k in 0..3 {
+            split.insert(edge(t[k], t[(k + 1) % 3]));
+        }
+    }
+    loop {
+        let mut added = false;
+        for t in &lin.tris {
+            let has = (0..3).any(|k| split.contains(&edge(t[k], t[(k + 1) % 3])));
+            if has && split.insert(edge(t[1], t[2])) {
+                added = true;
+            }
+        }
+        if !added {
+            break;
+        }
+    }
+    let edge_use = edge_uses(&lin.tris);
     let mut nodes = lin.nodes.clone();
-    let (six, _) = add_edge_nodes(&mut nodes, &lin.tris, &edge_uses(&lin.tris), &lin.arcs);
-    let mut tris = Vec::with_capacity(4 * six.len());
-    for t in six {
-        let [a, b, c, ab, bc, ca] = t;
-        tris.extend([[a, ab, ca], [ab, b, bc], [ca, bc, c], [ab, bc, ca]]);
+    let mut mid: HashMap<Edge, usize> = HashMap::new();
+    let mut midpoint = |a: usize, b: usize, nodes: &mut Vec<Point>| -> usize {
+        let key = edge(a, b);
+        *mid.entry(key).or_insert_with(|| {
+            let p = edge_midpoint(nodes, key, &edge_use, &lin.arcs);
+            nodes.push(p);
+            nodes.len() - 1
+        })
+    };
+    let mut tris = Vec::with_capacity(lin.tris.len() * 2);
+    for &t in &lin.tris {
+        if !split.contains(&edge(t[1], t[2])) {
+            tris.push(t);
+            continue;
+        }
+        let m = midpoint(t[1], t[2], &mut nodes);
+        for child in [[m, t[0], t[1]], [m, t[2], t[0]]] {
+            if split.contains(&edge(child[1], child[2])) {
+                let m2 = midpoint(child[1], child[2], &mut nodes);
+                tris.push([m2, child[0], child[1]]);
+                tris.push([m2, child[2], child[0]]);
+            } else {
+                tris.push(child);
+            }
+        }
     }
     Linear {
         nodes,
         tris,
         arcs: lin.arcs.clone(),
+    }
+}
+
+/// The number of nodes of the quadratic mesh on `lin` (vertices and edges).
+pub(super) fn quadratic_node_count(lin: &Linear) -> usize {
+    lin.nodes.len() + edge_uses(&lin.tris).len()
+}
+
+/// The number of triangles of `lin`.
+pub(super) fn triangle_count(lin: &Linear) -> usize {
+    lin.tris.len()
+}
+
+/// The middle of edge `key`: on the arc when it is a wall edge with both ends on one arc.
+fn edge_midpoint(
+    nodes: &[Point],
+    key: Edge,
+    edge_use: &HashMap<Edge, u8>,
+    arcs: &[ArcInfo],
+) -> Point {
+    let (pa, pb) = (nodes[key.0], nodes[key.1]);
+    let m = [(pa[0] + pb[0]) / 2.0, (pa[1] + pb[1]) / 2.0];
+    if edge_use.get(&key) == Some(&1) {
+        if let Some(arc) = arcs
+            .iter()
+            .find(|arc| lies_on_arc(arc, pa) && lies_on_arc(arc, pb))
+        {
+            return arc.project(m);
+        }
+    }
+    m
+}
+
+/// Each triangle turned so that its longest edge is its refinement edge (vertices 1, 2): the
+/// usual first choice for newest-vertex bisection, which then halves the longest edges first.
+fn longest_edge_first(nodes: &[Point], tris: &mut [[usize; 3]]) {
+    let len2 = |a: usize, b: usize| {
+        let (p, q) = (nodes[a], nodes[b]);
+        (p[0] - q[0]).powi(2) + (p[1] - q[1]).powi(2)
+    };
+    for t in tris.iter_mut() {
+        let opposite = [len2(t[1], t[2]), len2(t[2], t[0]), len2(t[0], t[1])];
+        let k = (0..3)
+            .max_by(|&i, &j| opposite[i].total_cmp(&opposite[j]))
+            .unwrap_or(0);
+        t.rotate_left(k);
     }
 }
 
@@ -317,16 +409,7 @@ fn add_edge_nodes(
             let (a, b) = (t[k], t[(k + 1) % 3]);
             let key = edge(a, b);
             let id = *edge_node.entry(key).or_insert_with(|| {
-                let (pa, pb) = (nodes[a], nodes[b]);
-                let mut m = [(pa[0] + pb[0]) / 2.0, (pa[1] + pb[1]) / 2.0];
-                if edge_use.get(&key) == Some(&1) {
-                    if let Some(arc) = arcs
-                        .iter()
-                        .find(|arc| lies_on_arc(arc, pa) && lies_on_arc(arc, pb))
-                    {
-                        m = arc.project(m);
-                    }
-                }
+                let m = edge_midpoint(nodes, key, edge_use, arcs);
                 nodes.push(m);
                 nodes.len() - 1
             });

@@ -1,9 +1,10 @@
 //! Wall shear: the consistent boundary flux turned into nodal shear by a 1-D mass solve along
-//! each wall loop, the largest wall shear at the wall away from re-entrant corners, and the samples,
-//! perimeter and total flux along the walls.
+//! each wall loop, the largest wall shear (pointwise) away from re-entrant corners and the wall
+//! next to it (refined on every level), the robust maximum (99th percentile by wall length),
+//! and the samples, perimeter and total flux along the walls.
 
 use super::assembly::{solve_symmetric, Solved};
-use super::element::{edge_mass, edge_shape, wall_element};
+use super::element::{edge_mass, edge_shape, edge_tangent, wall_element};
 use super::mesh::{Frame, Mesh};
 use super::{NumericError, WallSample};
 use crate::section::outline::Point;
@@ -80,23 +81,108 @@ pub(super) struct MaxShear {
     pub(super) exclusion_radius: f64,
 }
 
-/// The largest wall shear, as the largest mean over one wall element (∫τ ds / L), away from the
-/// re-entrant corners `singular`.
+/// The largest wall shear, pointwise, away from the re-entrant corners `corners.singular`.
+///
+/// On each wall element the nodal flux distribution is a quadratic in the element's parameter
+/// (the consistent boundary flux, see [`consistent_shear`]); its largest value on the element
+/// (at an end or at the vertex of the parabola) is the element's contribution, so the maximum
+/// is a value at the wall, not an average over one element.
+///
+/// Exception, the known vertex/edge-node alternation: at a corner of the outline (any angle,
+/// e.g. every vertex of a polygon standing for a curve or of a measured profile), the exact
+/// gradient dips to zero (convex) or peaks (re-entrant) over a vanishing length, and the
+/// nodal flux next to it alternates between vertex and edge nodes while its integral stays
+/// exact. An element with an outline corner at an end therefore contributes its mean
+/// (∫τ ds / L), which is free of the alternation; the others their pointwise maximum.
 ///
 /// The wall within `fraction` × Dh (Dh = 4A/P of this mesh) of a re-entrant corner is left out:
 /// the wall shear grows without bound towards such a corner, so its pointwise value there only
-/// reflects the mesh. Elements wholly outside contribute their mean; an element the
-/// neighbourhood's circle cuts contributes the wall shear where the wall crosses the circle
-/// (the quadratic interpolant of the nodal flux), so the maximum next to a corner, where the
-/// shear rises towards it, is a value at a fixed place that converges with the mesh.
-///
-/// Why a mean and not the largest nodal value: every vertex of a polygonal outline (a measured
-/// profile, a polygon standing for a curve) is a corner of interior angle just under 180°,
-/// where the exact gradient dips to zero over a vanishing length; the nodal flux then
-/// alternates between vertex and edge nodes while its integral stays exact. The element mean
-/// is free of that alternation and converges to the pointwise maximum of a smooth wall shear
-/// as h²; the refinement loop's estimate accounts for that order.
-pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction: f64) -> MaxShear {
+/// reflects the mesh. An element the neighbourhood's circle cuts contributes the wall shear
+/// where the wall crosses the circle (the quadratic interpolant of the nodal flux), so the
+/// maximum next to a corner, where the shear rises towards it, is a value at a fixed place that
+/// converges with the mesh.
+pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, corners: &Corners, fraction: f64) -> MaxShear {
+    let (values, radius) = element_values(m, s, corners, fraction);
+    // Every wall element near a singular corner: the plain maximum (flagged by the caller).
+    let pick = |v: &[ElementValue], counted: bool| {
+        v.iter()
+            .filter(|e| e.counted || !counted)
+            .map(|e| (e.value, e.at))
+            .fold(None, |best: Option<(f64, Point)>, x| match best {
+                Some(b) if b.0 >= x.0 => Some(b),
+                _ => Some(x),
+            })
+    };
+    let (value, at) = pick(&values, true)
+        .or(pick(&values, false))
+        .unwrap_or((0.0, [0.0, 0.0]));
+    MaxShear {
+        value,
+        at,
+        exclusion_radius: radius,
+    }
+}
+
+/// The outline's corners in the frame: the re-entrant ones, and all of them.
+pub(super) struct Corners<'a> {
+    pub(super) singular: &'a [Point],
+    pub(super) all: &'a [Point],
+}
+
+/// A wall node this close to a corner (in the frame) is the corner.
+const CORNER_MATCH: f64 = 1e-9;
+
+/// The largest value on [0, 1] of the quadratic through `v` (at 0, ½, 1), and where.
+fn polynomial_max(v: [f64; 3]) -> (f64, f64) {
+    let p = |t: f64| {
+        let (nn, _) = edge_shape(t);
+        nn[0] * v[0] + nn[1] * v[1] + nn[2] * v[2]
+    };
+    let mut best = if v[0] >= v[2] {
+        (v[0], 0.0)
+    } else {
+        (v[2], 1.0)
+    };
+    let curvature = v[0] - 2.0 * v[1] + v[2];
+    if curvature < 0.0 {
+        let t = (3.0 * v[0] - 4.0 * v[1] + v[2]) / (4.0 * curvature);
+        if t > 0.0 && t < 1.0 && p(t) > best.0 {
+            best = (p(t), t);
+        }
+    }
+    best
+}
+
+/// The point at parameter `t` along the quadratic wall element `ids`.
+fn point_at(m: &Mesh, ids: [usize; 3], t: f64) -> Point {
+    let (nn, _) = edge_shape(t);
+    let mut p = [0.0; 2];
+    for k in 0..3 {
+        p[0] += nn[k] * m.nodes[ids[k]][0];
+        p[1] += nn[k] * m.nodes[ids[k]][1];
+    }
+    p
+}
+
+/// The value one wall element contributes to the maximum wall shear.
+struct ElementValue {
+    /// The wall element's edge node (unique to it).
+    middle: usize,
+    value: f64,
+    at: Point,
+    /// Whether it counts towards the maximum (outside the corner neighbourhoods).
+    counted: bool,
+}
+
+/// Each wall element's contribution to the maximum (see [`max_wall_shear`]), and the radius of
+/// the corner neighbourhoods.
+fn element_values(
+    m: &Mesh,
+    s: &Solved,
+    corners: &Corners,
+    fraction: f64,
+) -> (Vec<ElementValue>, f64) {
+    let (singular, corners) = (corners.singular, corners.all);
     let perimeter: f64 = m
         .walls
         .iter()
@@ -114,8 +200,15 @@ pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction:
             .iter()
             .all(|c| (p[0] - c[0]).hypot(p[1] - c[1]) > radius)
     };
-    let mut best: Option<(f64, Point)> = None;
-    let mut any: Option<(f64, Point)> = None;
+    let touches = |ids: [usize; 3]| {
+        [ids[0], ids[2]].iter().any(|&i| {
+            let p = m.nodes[i];
+            corners
+                .iter()
+                .any(|c| (p[0] - c[0]).hypot(p[1] - c[1]) <= CORNER_MATCH)
+        })
+    };
+    let mut out = Vec::new();
     for w in &m.walls {
         for ids in wall_elements(w) {
             let (length, integral) = wall_element(&m.nodes, ids, |k| s.shear_at(ids[k]));
@@ -123,31 +216,62 @@ pub(super) fn max_wall_shear(m: &Mesh, s: &Solved, singular: &[Point], fraction:
                 continue;
             }
             let mean = integral / length;
-            if any.is_none_or(|b| mean > b.0) {
-                any = Some((mean, m.nodes[ids[1]]));
-            }
             let inside = ids.map(|i| !allowed(i));
-            if !inside.iter().any(|&x| x) {
-                if best.is_none_or(|b| mean > b.0) {
-                    best = Some((mean, m.nodes[ids[1]]));
+            let (value, at, counted) = if !inside.iter().any(|&x| x) {
+                if touches(ids) {
+                    (mean, m.nodes[ids[1]], true)
+                } else {
+                    let (value, t) = polynomial_max(ids.map(|i| s.shear_at(i)));
+                    (value, point_at(m, ids, t), true)
                 }
             } else if inside[0] != inside[2] {
                 // The wall enters a neighbourhood inside this element: the shear where it
                 // crosses the circle, from the quadratic interpolant of the nodal flux.
                 let (value, at) = crossing(m, s, ids, singular, radius, inside[0]);
-                if best.is_none_or(|b| value > b.0) {
-                    best = Some((value, at));
-                }
-            }
+                (value, at, true)
+            } else {
+                (mean, m.nodes[ids[1]], false)
+            };
+            out.push(ElementValue {
+                middle: ids[1],
+                value,
+                at,
+                counted,
+            });
         }
     }
-    // Every wall element near a singular corner: the plain maximum (flagged by the caller).
-    let (value, at) = best.or(any).unwrap_or((0.0, [0.0, 0.0]));
-    MaxShear {
-        value,
-        at,
-        exclusion_radius: radius,
+    (out, radius)
+}
+
+/// The triangles with a wall edge whose contribution to the maximum wall shear lies within
+/// the fraction `band` of `max`: refined on every level, so that h halves there each time and
+/// the maximum converges as the element allows wherever else the indicator refines.
+pub(super) fn near_maximum(
+    m: &Mesh,
+    s: &Solved,
+    corners: &Corners,
+    fraction: f64,
+    band: f64,
+) -> Vec<bool> {
+    let (values, _) = element_values(m, s, corners, fraction);
+    let max = values
+        .iter()
+        .filter(|e| e.counted)
+        .map(|e| e.value)
+        .fold(f64::NEG_INFINITY, f64::max);
+    let mut owner = vec![usize::MAX; m.nodes.len()];
+    for (ti, t) in m.tris.iter().enumerate() {
+        for &i in &t[3..] {
+            owner[i] = ti;
+        }
     }
+    let mut marked = vec![false; m.tris.len()];
+    for e in values {
+        if e.counted && e.value >= (1.0 - band) * max && owner[e.middle] != usize::MAX {
+            marked[owner[e.middle]] = true;
+        }
+    }
+    marked
 }
 
 /// Where the quadratic wall element `ids` crosses the boundary of the corner neighbourhoods
@@ -189,6 +313,41 @@ fn crossing(
     let (nn, _) = edge_shape(hi);
     let value = (0..3).map(|k| nn[k] * s.shear_at(ids[k])).sum();
     (value, at(hi))
+}
+
+/// Sub-intervals per wall element at whose midpoints the robust maximum samples the wall shear.
+const ROBUST_SAMPLES: usize = 8;
+
+/// The robust maximum of the wall shear (see [`super::ROBUST_EXCLUDED_FRACTION`]): the wall
+/// shear is sampled at the midpoints of [`ROBUST_SAMPLES`] equal parameter intervals of every
+/// quadratic wall element (the quadratic interpolant of the nodal flux), each sample standing
+/// for its interval's length; the result is the largest sample value v such that the samples
+/// above v stand for at most the fraction `excluded` of the total wall length.
+pub(super) fn robust_max(m: &Mesh, s: &Solved, excluded: f64) -> f64 {
+    let mut samples: Vec<(f64, f64)> = Vec::new();
+    let dt = 1.0 / ROBUST_SAMPLES as f64;
+    for w in &m.walls {
+        for ids in wall_elements(w) {
+            let p = ids.map(|i| m.nodes[i]);
+            for j in 0..ROBUST_SAMPLES {
+                let t = (j as f64 + 0.5) * dt;
+                let (nn, dn) = edge_shape(t);
+                let (dx, dy) = edge_tangent(p, dn);
+                let value = (0..3).map(|k| nn[k] * s.shear_at(ids[k])).sum::<f64>();
+                samples.push((value, dx.hypot(dy) * dt));
+            }
+        }
+    }
+    let total: f64 = samples.iter().map(|x| x.1).sum();
+    samples.sort_by(|a, b| b.0.total_cmp(&a.0));
+    let mut above = 0.0;
+    for (value, length) in samples.iter().copied() {
+        if above + length > excluded * total {
+            return value;
+        }
+        above += length;
+    }
+    samples.last().map_or(0.0, |x| x.0)
 }
 
 /// The walls walked element by element.
