@@ -203,3 +203,73 @@ fn a_pressure_rating_holds_and_the_target_is_reported_missed() {
     assert_eq!(names(&v, "limits_exceeded"), ["pump"]);
     assert_eq!(check_code(&out2), Some(1));
 }
+
+/// A chip with one channel of `section` whose width is sized within `min`..`max`; the
+X
+fn width_chip(section: &str, min: &str, max: &str) -> String {
+    format!(
+        "name: width bounds
+fluid: {{model: water, temperature: 20 degC}}
+nodes:
+  source: {{pressure: 50 mbar}}
+  waste: {{pressure: 0 Pa}}
+channels:
+  a:
+    from: source
+    to: waste
+    length: 10 mm
+    section: {section}
+    size:
+      width: {{min: {min},
+               max: {max}}}
+targets:
+  - {{channel: a, flow: 5 uL/min}}
+"
+    )
+}
+
+/// `rillnet check CHIP`: (exit code, standard error).
+fn refused(text: &str) -> (Option<i32>, String) {
+    let dir = tempfile::tempdir().unwrap();
+    let chip = write_file(dir.path(), "chip.yaml", text);
+    let o = rillnet().arg("check").arg(&chip).output().unwrap();
+    (o.status.code(), String::from_utf8_lossy(&o.stderr).into_owned())
+}
+
+#[test]
+fn a_trapezoid_width_bound_below_its_sidewall_offset_is_refused_at_read_time() {
+    // top 200 um, bottom 130 um: the sidewall offset is 70 um, so a 60 um top would leave a
+    // negative bottom (sizing keeps the sidewall angle).
+    let trap = "{shape: trapezoid, top: 200 um, bottom: 130 um, depth: 50 um}";
+    let (code, err) = refused(&width_chip(trap, "60 um", "300 um"));
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("chip.yaml:13:"), "{err}");
+    assert!(err.contains("channels.a.size.width.min"), "{err}");
+    assert!(err.contains("bottom"), "{err}");
+    assert!(err.contains("70.00 um"), "{err}");
+    // A valid bound is accepted.
+    let (code, err) = refused(&width_chip(trap, "150 um", "300 um"));
+    assert_ne!(code, Some(2), "{err}");
+}
+
+#[test]
+fn a_rounded_rectangle_width_bound_below_twice_its_corner_radius_is_refused() {
+    let rr = "{shape: rounded-rectangle, width: 100 um, height: 50 um, corner_radius: 20 um}";
+    let (code, err) = refused(&width_chip(rr, "30 um", "200 um"));
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("chip.yaml:13:"), "{err}");
+    assert!(err.contains("channels.a.size.width.min"), "{err}");
+    assert!(err.contains("corner_radius"), "{err}");
+    assert!(err.contains("40.00 um"), "{err}");
+    let (code, err) = refused(&width_chip(rr, "40 um", "200 um"));
+    assert_ne!(code, Some(2), "{err}");
+}
+
+#[test]
+fn a_d_shape_mask_width_bound_of_zero_is_refused() {
+    let d = "{shape: d-shape, mask_width: 50 um, depth: 30 um}";
+    let (code, err) = refused(&width_chip(d, "0 um", "200 um"));
+    assert_eq!(code, Some(2), "{err}");
+    assert!(err.contains("channels.a.size.width"), "{err}");
+    assert!(err.contains("0 < min"), "{err}");
+}
