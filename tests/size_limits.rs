@@ -205,7 +205,7 @@ fn a_pressure_rating_holds_and_the_target_is_reported_missed() {
 }
 
 /// A chip with one channel of `section` whose width is sized within `min`..`max`; the
-X
+/// `min` key is on line 13, `max` on line 14.
 fn width_chip(section: &str, min: &str, max: &str) -> String {
     format!(
         "name: width bounds
