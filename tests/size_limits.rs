@@ -233,7 +233,10 @@ fn refused(text: &str) -> (Option<i32>, String) {
     let dir = tempfile::tempdir().unwrap();
     let chip = write_file(dir.path(), "chip.yaml", text);
     let o = rillnet().arg("check").arg(&chip).output().unwrap();
-    (o.status.code(), String::from_utf8_lossy(&o.stderr).into_owned())
+    (
+        o.status.code(),
+        String::from_utf8_lossy(&o.stderr).into_owned(),
+    )
 }
 
 #[test]

@@ -6,9 +6,9 @@ use crate::analysis::design::{
     with_dimension, Adjustable, Design, ShearMeasure, SizeDim, SizeVar, Target, TargetKind,
     Tolerance,
 };
+use crate::network::{ChannelId, Network, NodeId, Port};
 use crate::section::Shape;
 use crate::units::display::fmt_sig;
-use crate::network::{ChannelId, Network, NodeId, Port};
 use crate::units::{parse_si, Dimension, Length, Pressure, VolumeFlow};
 use serde::de::{self, Deserializer, Visitor};
 use serde::Deserialize;

@@ -59,7 +59,7 @@ pub enum DesignError {
     NoAdjustable,
     #[error("no channel dimension is free; add 'size: {{length: {{min: ..., max: ...}}}}' (or width) to a channel")]
     NoSizes,
-    #[error("channel '{channel}': width sizing needs a section with a width (circle, rectangle, ellipse, plates, trapezoid, d-shape, rounded-rectangle); its section is a {shape}")]
+    #[error("channel '{channel}': width sizing needs a section with a width (circle, rectangle, ellipse, plates, trapezoid, d-shape, rounded-rectangle, profile); its section is a {shape}")]
     WidthUnsupported {
         channel: String,
         shape: &'static str,

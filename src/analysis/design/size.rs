@@ -5,7 +5,8 @@
 //! derivatives: the adjoint of the Kirchhoff system (see `adjoint`) gives dq/dg for every
 //! channel conductance g with one extra solve per target row, and dg/dL = −g/L,
 //! dg/dw = −g·(dR'/dw)/R' (central difference of the closed-form R', [`dlog_resistance`]; for
-//! a numerically solved section — trapezoid top, d-shape mask width, rounded-rectangle width —
+//! a numerically solved section — trapezoid top, d-shape mask width, rounded-rectangle width,
+//! measured-profile span (positions scaled, depths kept) —
 //! a central difference of two converged solves with the step chosen against the solver's
 //! error estimate, [`dlog_resistance_numeric`]). Numerical figures and derivatives are kept
 //! per section geometry for the run, so a trial size seen before is not solved again.
@@ -771,7 +772,9 @@ fn sized_section(
 /// The shape with its width (or a circle's diameter) or height set to `value`, when the shape
 /// has that dimension. The width of a trapezoid is its top (at the lid), changed with the
 /// sidewall angle kept (the bottom moves by as much as the top); of a d-shape its mask width;
-/// of a rounded rectangle its width.
+/// of a rounded rectangle its width; of a measured profile its span (last position − first),
+/// changed by multiplying every position by one factor with the depths kept (the chip file's
+/// `width_scale`).
 pub fn with_dimension(shape: &Shape, dim: &str, value: f64) -> Option<Shape> {
     let v = Length::from_si(value);
     Some(match (shape, dim) {
@@ -821,6 +824,13 @@ pub fn with_dimension(shape: &Shape, dim: &str, value: f64) -> Option<Shape> {
             width: *width,
         },
         (Shape::Circle { .. }, "width") => Shape::Circle { diameter: v },
+        (Shape::Profile { .. }, "width") => {
+            let span = shape.profile_span()?;
+            if !(span > 0.0 && value.is_finite()) {
+                return None;
+            }
+            shape.scaled_profile(value / span)?
+        }
         _ => return None,
     })
 }
@@ -840,6 +850,7 @@ pub fn dimension(shape: &Shape, dim: &str) -> Option<f64> {
         (Shape::Trapezoid { top, .. }, "width") => top.si(),
         (Shape::DShape { mask_width, .. }, "width") => mask_width.si(),
         (Shape::RoundedRectangle { width, .. }, "width") => width.si(),
+        (Shape::Profile { .. }, "width") => shape.profile_span()?,
         _ => return None,
     })
 }
