@@ -430,7 +430,18 @@ pub fn tune(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
 /// targets are judged again on the copy as written (rounded), read back and solved.
 pub fn size(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
     let chip = req.chip.load()?;
-    let mut result = design::size(&chip.network, &chip.design).map_err(design_error(&chip))?;
+    let solver = analysis::Solver::new(&chip.network).map_err(|source| Error::Solve {
+        origin: chip.source.origin.clone(),
+        source,
+    })?;
+    let mut result = design::size_with_options(
+        &solver,
+        &chip.design,
+        design::SizeOptions {
+            ignore_limits: req.ignore_limits,
+        },
+    )
+    .map_err(design_error(&chip))?;
     let inside = within_limits(&result.network, &result.solution);
     let (after, digits, judged) = rounded_copy(&chip, &result.targets, inside, |d| {
         crate::copies::sized_edits(&chip, &result, d)

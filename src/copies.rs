@@ -146,6 +146,9 @@ pub fn sized_edits(chip: &Chip, r: &SizeResult, digits: usize) -> Result<Vec<Edi
         .iter()
         .map(|s| {
             let ch = &r.network.channels[s.var.channel];
+            if s.var.dim == SizeDim::Width && is_profile(&r.network, ch) {
+                return profile_edit(chip, &ch.name, s.after, s.var.step, digits);
+            }
             let value = match s.var.dim {
                 SizeDim::Length => {
                     NewValue::Scalar(length_text(s.after, s.var.step, digits, 1e3, "mm"))
@@ -164,13 +167,53 @@ pub fn sized_edits(chip: &Chip, r: &SizeResult, digits: usize) -> Result<Vec<Edi
         .collect()
 }
 
+fn is_profile(net: &crate::network::Network, ch: &crate::network::Channel) -> bool {
+    matches!(
+        net.sections[ch.section].shape,
+        section::Shape::Profile { .. }
+    )
+}
+
+/// The edit that sizes a measured profile's span to `width` [m] (rounded to `step`, else
+/// written to `digits` significant digits): its inline section's `width_scale`, set to
+/// width / raw span. The raw span (the positions as the file or points give them) is read
+/// from the chip with `width_scale: 1`.
+fn profile_edit(
+    chip: &Chip,
+    channel: &str,
+    width: f64,
+    step: Option<f64>,
+    digits: usize,
+) -> Result<Edit, Error> {
+    let path = ["channels", channel, "section", "width_scale"];
+    let (_, unit) = edited_chip(chip, &[Edit::scalar(&path, "1")]).map_err(|_| Error::Write {
+        path: chip.source.origin.clone().into(),
+        reason: format!(
+            "cannot rewrite the profile of channel '{channel}' in a copy: write its section \
+                 inline in the channel with a 'width_scale:' key (e.g. width_scale: 1); the sized \
+                 copy changes that key"
+        ),
+    })?;
+    let raw = unit
+        .network
+        .channel_id(channel)
+        .and_then(|c| unit.network.section_of(c).shape.profile_span())
+        .filter(|s| *s > 0.0)
+        .ok_or_else(|| rewrite_failed(chip, "a profile"))?;
+    let (width, digits) = match step {
+        Some(st) if st > 0.0 => ((width / st).round() * st, 15),
+        _ => (width, digits),
+    };
+    Ok(Edit::scalar(&path, sig(width / raw, digits)))
+}
+
 fn rewrite_failed(chip: &Chip, what: &str) -> Error {
     Error::Write {
         path: chip.source.origin.clone().into(),
         reason: format!(
             "cannot rewrite {what} in a copy of the chip: only sections with a sizable width \
-             (circle, rectangle, ellipse, plates, trapezoid, d-shape, rounded-rectangle) can be \
-             written back"
+             (circle, rectangle, ellipse, plates, trapezoid, d-shape, rounded-rectangle, profile) \
+             can be written back"
         ),
     }
 }

@@ -3,9 +3,12 @@
 
 use super::{at, Misplaced, Q};
 use crate::analysis::design::{
-    Adjustable, Design, ShearMeasure, SizeDim, SizeVar, Target, TargetKind, Tolerance,
+    with_dimension, Adjustable, Design, ShearMeasure, SizeDim, SizeVar, Target, TargetKind,
+    Tolerance,
 };
 use crate::network::{ChannelId, Network, NodeId, Port};
+use crate::section::Shape;
+use crate::units::display::fmt_sig;
 use crate::units::{parse_si, Dimension, Length, Pressure, VolumeFlow};
 use serde::de::{self, Deserializer, Visitor};
 use serde::Deserialize;
@@ -287,6 +290,14 @@ pub(super) fn to_design(
                     "bounds must satisfy 0 < min ≤ max",
                 ));
             }
+            if dim == SizeDim::Width {
+                let shape = &net.section_of(id).shape;
+                for (key, v) in [("min", min), ("max", max)] {
+                    if let Some(problem) = width_bound_problem(shape, v) {
+                        return Err(at(&["channels", name, "size", field, key], problem));
+                    }
+                }
+            }
             let step = b.step.map(|s| s.0.si());
             if let Some(st) = step {
                 if !(st > 0.0 && st.is_finite()) {
@@ -306,4 +317,32 @@ pub(super) fn to_design(
         }
     }
     Ok(design)
+}
+
+/// Why a width bound `v` [m] would give an invalid section (`None`: it gives a valid one, or
+/// the shape has no width to size, which sizing reports itself). The section is checked as
+/// sizing would build it ([`with_dimension`]: a trapezoid keeps its sidewall angle, so its
+/// top must exceed the sidewall offset; a rounded rectangle keeps its corner radius).
+fn width_bound_problem(shape: &Shape, v: f64) -> Option<String> {
+    let sized = with_dimension(shape, "width", v)?;
+    let e = sized.check().err()?;
+    let um = |x: f64| format!("{} um", fmt_sig(x * 1e6, 4));
+    let expected = match shape {
+        Shape::Trapezoid { top, bottom, .. } => format!(
+            "a top width above the sidewall offset top − bottom = {} (the sidewall angle is kept)",
+            um(top.si() - bottom.si())
+        ),
+        Shape::RoundedRectangle { corner_radius, .. } => format!(
+            "a width of at least twice the corner radius, {}",
+            um(2.0 * corner_radius.si())
+        ),
+        _ => "a width that gives a valid section".to_string(),
+    };
+    Some(format!(
+        "a {} section {} wide is not valid ({}: {}); expected {expected}",
+        shape.kind(),
+        um(v),
+        e.field,
+        e.problem
+    ))
 }

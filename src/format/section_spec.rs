@@ -67,6 +67,10 @@ pub(crate) struct SectionSpec {
     /// Unit of the numbers in `file` (default um).
     #[serde(default)]
     pub unit: Option<String>,
+    /// Profile only: every position multiplied by this factor, depths kept (default 1); what
+    /// sizing changes when it sizes a profile's width.
+    #[serde(default)]
+    pub width_scale: Option<super::design_spec::RawQuantity>,
 }
 
 /// Reads a file named in the chip file; returns its text or a message.
@@ -92,7 +96,7 @@ fn takes(kind: ShapeKind) -> &'static [&'static str] {
 fn allowed(kind: ShapeKind) -> &'static [&'static str] {
     match kind {
         ShapeKind::Trapezoid => &["top", "depth", "bottom", "sidewall"],
-        ShapeKind::Profile => &["points", "file", "unit"],
+        ShapeKind::Profile => &["points", "file", "unit", "width_scale"],
         other => takes(other),
     }
 }
@@ -384,11 +388,22 @@ impl SectionSpec {
                     (Some(_), Some(_)) => return Err(err("file", "give either 'points' or 'file', not both".into())),
                     (None, None) => return Err(err("shape", "a profile needs 'points' ((position, depth) pairs) or 'file' (a two-column CSV)".into())),
                 };
-                Shape::Profile { points }
+                let profile = Shape::Profile { points };
+                match &self.width_scale {
+                    None => profile,
+                    Some(raw) => match raw.0.trim().parse::<f64>() {
+                        Ok(f) if f.is_finite() && f > 0.0 => profile.scaled_profile(f).unwrap_or(profile),
+                        _ => return Err(err("width_scale", format!("must be a positive number (positions are multiplied by it), got '{}'", raw.0))),
+                    },
+                }
             }
         };
         // Anything given that this shape does not use is a mistake worth stopping for.
-        let list_fields: [(&str, bool); 3] = [
+        let list_fields: [(&str, bool); 4] = [
+            (
+                "width_scale",
+                self.width_scale.is_some() && kind != ShapeKind::Profile,
+            ),
             (
                 "points",
                 self.points.is_some() && !matches!(kind, ShapeKind::Polygon | ShapeKind::Profile),

@@ -4,8 +4,8 @@ use super::csv::{n, num, Tables};
 use super::fmt_sig;
 use super::json::SCHEMA_VERSION;
 use crate::analysis::design::{
-    LimitHandling, LimitKind, NotControllable, ShearMeasure, SizeDim, SizeResult, TargetOutcome,
-    TargetQuantity, Tolerance, TuneResult,
+    ActiveLimit, LimitHandling, LimitKind, NotControllable, ShearMeasure, SizeDim, SizeResult,
+    TargetOutcome, TargetQuantity, Tolerance, TuneResult,
 };
 use crate::analysis::{Place, Severity};
 use crate::chip::Chip;
@@ -175,9 +175,9 @@ fn exceeded(after: &Changed) -> Vec<&str> {
     out
 }
 
-fn active_names(network: &Network, r: &TuneResult) -> Vec<String> {
+fn active_names(network: &Network, active: &[ActiveLimit]) -> Vec<String> {
     let mut out: Vec<String> = Vec::new();
-    for a in &r.active_limits {
+    for a in active {
         let name = place_name(network, a.place).to_string();
         if !out.contains(&name) {
             out.push(name);
@@ -252,6 +252,70 @@ fn bound_name(b: i8) -> Option<&'static str> {
     }
 }
 
+fn handling_code(h: LimitHandling) -> &'static str {
+    match h {
+        LimitHandling::Constrained => "constrained",
+        LimitHandling::Ignored => "ignored",
+        LimitHandling::Unattainable => "unattainable",
+    }
+}
+
+fn active_details<'a>(network: &'a Network, active: &[ActiveLimit]) -> Vec<JsonActiveLimit<'a>> {
+    active
+        .iter()
+        .map(|a| JsonActiveLimit {
+            place: place_name(network, a.place),
+            kind: limit_kind_code(a.kind),
+            side: if a.side < 0 { "lower" } else { "upper" },
+        })
+        .collect()
+}
+
+/// How limits entered a design answer, and the ones it sits on, in words (`what`: "settings"
+/// or "sizes"; `free`: what to widen when they cannot hold).
+fn limits_text(
+    network: &Network,
+    handling: LimitHandling,
+    active: &[ActiveLimit],
+    what: &str,
+    free: &str,
+    out: &mut String,
+) {
+    match handling {
+        LimitHandling::Constrained if active.is_empty() => out.push_str(
+            "Limits (wall shear, pressure rating, vacuum) were held as constraints; none is active.\n",
+        ),
+        LimitHandling::Constrained => {
+            out.push_str(&format!("Limits held as constraints; the {what} sit on:\n"));
+            const SHOWN: usize = 20;
+            for a in active.iter().take(SHOWN) {
+                out.push_str(&format!(
+                    "  {} {}\n",
+                    match a.kind {
+                        LimitKind::WallShear => "wall-shear limit of channel",
+                        LimitKind::PressureRating => "pressure rating at node",
+                        LimitKind::Vacuum => "vacuum (−1 atm) at node",
+                    },
+                    place_name(network, a.place)
+                ));
+            }
+            if active.len() > SHOWN {
+                out.push_str(&format!(
+                    "  … and {} more (all in the JSON output's active_limits)\n",
+                    active.len() - SHOWN
+                ));
+            }
+        }
+        LimitHandling::Ignored => {
+            out.push_str("Limits were left out of the problem (--ignore-limits).\n")
+        }
+        LimitHandling::Unattainable => out.push_str(&format!(
+            "The limits cannot all hold within the bounds of the {free}: the {what} were \
+             found without them (see the limits exceeded below).\n"
+        )),
+    }
+}
+
 /// Tuning report as JSON.
 pub(crate) fn tune_json(
     chip: &Chip,
@@ -284,21 +348,9 @@ pub(crate) fn tune_json(
             })
             .collect(),
         targets: json_targets(&r.targets),
-        limits: match r.limits {
-            LimitHandling::Constrained => "constrained",
-            LimitHandling::Ignored => "ignored",
-            LimitHandling::Unattainable => "unattainable",
-        },
-        active_limits: active_names(network, r),
-        active_limit_details: r
-            .active_limits
-            .iter()
-            .map(|a| JsonActiveLimit {
-                place: place_name(network, a.place),
-                kind: limit_kind_code(a.kind),
-                side: if a.side < 0 { "lower" } else { "upper" },
-            })
-            .collect(),
+        limits: handling_code(r.limits),
+        active_limits: active_names(network, &r.active_limits),
+        active_limit_details: active_details(network, &r.active_limits),
         limits_exceeded: exceeded(after),
         free_directions: r
             .free_directions
@@ -347,39 +399,14 @@ pub fn tune_report(chip: &Chip, r: &TuneResult) -> String {
         "\nWeighted residual norm: {:.3e}\n",
         r.residual_norm
     ));
-    match r.limits {
-        LimitHandling::Constrained if r.active_limits.is_empty() => out.push_str(
-            "Limits (wall shear, pressure rating, vacuum) were held as constraints; none is active.\n",
-        ),
-        LimitHandling::Constrained => {
-            out.push_str("Limits held as constraints; the settings sit on:\n");
-            const SHOWN: usize = 20;
-            for a in r.active_limits.iter().take(SHOWN) {
-                out.push_str(&format!(
-                    "  {} {}\n",
-                    match a.kind {
-                        LimitKind::WallShear => "wall-shear limit of channel",
-                        LimitKind::PressureRating => "pressure rating at node",
-                        LimitKind::Vacuum => "vacuum (−1 atm) at node",
-                    },
-                    place_name(network, a.place)
-                ));
-            }
-            if r.active_limits.len() > SHOWN {
-                out.push_str(&format!(
-                    "  … and {} more (all in the JSON output's active_limits)\n",
-                    r.active_limits.len() - SHOWN
-                ));
-            }
-        }
-        LimitHandling::Ignored => {
-            out.push_str("Limits were left out of the problem (--ignore-limits).\n")
-        }
-        LimitHandling::Unattainable => out.push_str(
-            "The limits cannot all hold within the bounds of the adjustable ports: the settings were \
-             found without them (see the limits exceeded below).\n",
-        ),
-    }
+    limits_text(
+        network,
+        r.limits,
+        &r.active_limits,
+        "settings",
+        "adjustable ports",
+        &mut out,
+    );
     for f in &r.free_directions {
         let ports: Vec<&str> = f
             .ports
@@ -467,8 +494,11 @@ struct JsonSizing<'a> {
     iterations: usize,
     sizes: Vec<JsonSize<'a>>,
     targets: Vec<JsonTarget<'a>>,
-    /// Sizing does not hold limits as constraints: always empty.
+    /// "constrained", "ignored" (--ignore-limits) or "unattainable".
+    limits: &'static str,
+    /// Channel or node names whose limits the sized chip sits on.
     active_limits: Vec<String>,
+    active_limit_details: Vec<JsonActiveLimit<'a>>,
     /// Channel or node names whose limits the sized chip exceeds.
     limits_exceeded: Vec<&'a str>,
     written_digits: Option<usize>,
@@ -509,7 +539,9 @@ pub(crate) fn size_json(
         all_targets_met: r.all_targets_met,
         residual_norm: r.residual_norm,
         iterations: r.iterations,
-        active_limits: vec![],
+        limits: handling_code(r.limits),
+        active_limits: active_names(network, &r.active_limits),
+        active_limit_details: active_details(network, &r.active_limits),
         limits_exceeded: exceeded(after),
         written_digits: r.written_digits,
         sizes: r
@@ -595,9 +627,13 @@ pub fn size_report(chip: &Chip, r: &SizeResult, run: f64, pitch: f64) -> String 
         "\nWeighted residual norm: {:.3e}\n",
         r.residual_norm
     ));
-    out.push_str(
-        "Sizing does not hold wall-shear limits or the pressure rating as constraints: limits the sized \
-         chip exceeds are reported with its operating point (and make the command fail).\n",
+    limits_text(
+        network,
+        r.limits,
+        &r.active_limits,
+        "sizes",
+        "sized dimensions",
+        &mut out,
     );
     if let Some(d) = r.written_digits {
         out.push_str(&format!(

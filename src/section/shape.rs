@@ -300,6 +300,29 @@ impl Shape {
         extent(&loops)
     }
 
+    /// A measured profile with every position multiplied by `factor` and the depths kept (the
+    /// same etch, `factor` times as wide); `None` for the other shapes.
+    pub fn scaled_profile(&self, factor: f64) -> Option<Shape> {
+        match self {
+            Shape::Profile { points } => Some(Shape::Profile {
+                points: points
+                    .iter()
+                    .map(|p| [Length::from_si(p[0].si() * factor), p[1]])
+                    .collect(),
+            }),
+            _ => None,
+        }
+    }
+
+    /// The lateral span of a measured profile, last position − first [m]; `None` for the
+    /// other shapes.
+    pub fn profile_span(&self) -> Option<f64> {
+        match self {
+            Shape::Profile { points } => Some(points.last()?[0].si() - points.first()?[0].si()),
+            _ => None,
+        }
+    }
+
     /// The outline to solve numerically (lid at y = 0, channel below), for any shape.
     pub fn outline(&self) -> Outline {
         let m = |l: &Length| l.si();

@@ -7,7 +7,9 @@
 //!   the adjustable ports (unit responses on one factorisation, [`super::lsq`]);
 //! - `adjoint`: gradients of linear measures with respect to conductances, and the
 //!   sensitivities of flows to channel dimensions;
-//! - `size`: bounded, damped Gauss–Newton over channel lengths and widths;
+//! - `size`: bounded, damped Gauss–Newton over channel lengths and widths, limits held in
+//!   each step;
+//! - `limits`: wall-shear limits, pressure rating and vacuum as linear inequality rows;
 //! - `serpentine`: how a long sized channel folds into a footprint.
 //!
 //! Every solve goes through one [`Solver`](super::kirchhoff::Solver) per chip (one symbolic
@@ -18,6 +20,7 @@
 //! ([`Solver::factorizations`](super::kirchhoff::Solver::factorizations)) show what was done.
 
 mod adjoint;
+mod limits;
 mod serpentine;
 mod size;
 mod targets;
@@ -31,12 +34,15 @@ pub use adjoint::{
     dlog_resistance, dlog_resistance_numeric, sensitivities, sensitivities_with, NumericDerivative,
     Sensitivity, DERIVATIVE_TOLERANCE,
 };
+pub use limits::{ActiveLimit, LimitHandling, LimitKind, ACTIVE_TOL, LIMIT_MARGIN};
 pub use serpentine::{serpentine, Serpentine};
-pub use size::{dimension, size, size_with, with_dimension, SizeResult, SizedDim};
+pub use size::{
+    dimension, size, size_with, size_with_options, with_dimension, SizeOptions, SizeResult,
+    SizedDim,
+};
 pub use targets::{evaluate, NotControllable, TargetOutcome, TargetQuantity};
 pub use tune::{
-    tune, tune_with, tune_with_options, ActiveLimit, FreeDirection, LimitHandling, LimitKind,
-    Setting, TuneOptions, TuneResult, LIMIT_MARGIN,
+    tune, tune_with, tune_with_options, FreeDirection, Setting, TuneOptions, TuneResult,
 };
 
 use super::kirchhoff::SolveError;
@@ -53,7 +59,7 @@ pub enum DesignError {
     NoAdjustable,
     #[error("no channel dimension is free; add 'size: {{length: {{min: ..., max: ...}}}}' (or width) to a channel")]
     NoSizes,
-    #[error("channel '{channel}': width sizing needs a section with a width (circle, rectangle, ellipse, plates, trapezoid, d-shape, rounded-rectangle); its section is a {shape}")]
+    #[error("channel '{channel}': width sizing needs a section with a width (circle, rectangle, ellipse, plates, trapezoid, d-shape, rounded-rectangle, profile); its section is a {shape}")]
     WidthUnsupported {
         channel: String,
         shape: &'static str,

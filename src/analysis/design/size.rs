@@ -5,19 +5,44 @@
 //! derivatives: the adjoint of the Kirchhoff system (see `adjoint`) gives dq/dg for every
 //! channel conductance g with one extra solve per target row, and dg/dL = −g/L,
 //! dg/dw = −g·(dR'/dw)/R' (central difference of the closed-form R', [`dlog_resistance`]; for
-//! a numerically solved section — trapezoid top, d-shape mask width, rounded-rectangle width —
+//! a numerically solved section — trapezoid top, d-shape mask width, rounded-rectangle width,
+//! measured-profile span (positions scaled, depths kept) —
 //! a central difference of two converged solves with the step chosen against the solver's
 //! error estimate, [`dlog_resistance_numeric`]). Numerical figures and derivatives are kept
 //! per section geometry for the run, so a trial size seen before is not solved again.
 //! Dimensions with a fabrication step are then snapped to it and the others re-solved.
 //!
+//! Limits (every channel's wall-shear limit, the chip's pressure rating and vacuum; see
+//! `limits`) are held as linear inequality constraints in every step, linearised at the
+//! iterate by the direct method: one extra solve per size variable, A·(dp/dg_m) =
+//! −Δp_m·(e_i − e_j) on the same factor, gives the derivative of every node pressure and
+//! channel flow (dq_k/dg_m = g_k·(dp_i − dp_j)/dg_m + [k = m]·Δp_m), which with many
+//! limits and few sizes is cheaper than one adjoint per limit. A sized width also moves its
+//! channel's flow bound q̄ = τ̄·K/(s·μ): d ln q̄/dw = −d ln R'/dw − d ln s/dw, the last term
+//! a central difference of the closed form (left out for numerically solved sections, whose
+//! τ_max is not smooth enough in w to difference; the exact bound is used at every iterate,
+//! so the answer still keeps the limit). The step is then a linear least-squares problem
+//! with inequality constraints, solved exactly by [`super::super::lsq`] (Lawson & Hanson
+//! 1974, LSI → LDP → NNLS) rather than [`super::super::boxqp`], which holds bounds only.
+//! Constraints that every step within the bounds keeps are left out. A trial is accepted
+//! when it lowers the largest relative excess over a limit, or exceeds no limit more than
+//! the iterate did and lowers ‖res‖ (feasibility first, then the targets). When the
+//! linearised limits cannot all hold within the bounds, sizing goes on without them and says
+//! so ([`LimitHandling::Unattainable`]); `--ignore-limits` leaves them out from the start
+//! (the bounded steps of [`super::super::boxqp`], as before limits were held).
+//!
 //! A sized width gives the channel a section of its own, but the nodes, ports and channel
 //! ends stay as they were: every evaluation refactorises on the one symbolic analysis of the
 //! caller's [`Solver`], which checks this ([`Solver::conductances_of`]).
 
-use super::super::boxqp::{self, BoxLsq};
-use super::super::kirchhoff::{drive_values, FlowSolution, Solver};
+use super::super::boxqp;
+use super::super::kirchhoff::{drive_values, Factor, FlowSolution, Solver};
+use super::super::lsq;
 use super::adjoint::{dlog_resistance, dlog_resistance_numeric, measure_gradients};
+use super::limits::{
+    self, bound_constraints, excess, limits_reached, ActiveLimit, Constraint, LimitHandling,
+    Linearised,
+};
 use super::targets::{outcomes, rows, Scales, TargetOutcome};
 use super::{Design, DesignError, SizeDim, SizeVar, TargetKind};
 use crate::network::{Network, Section, SectionId};
@@ -51,6 +76,10 @@ pub struct SizeResult {
     pub evaluations: usize,
     /// Every target met within its tolerance (or the miss snapping itself causes).
     pub all_targets_met: bool,
+    pub limits: LimitHandling,
+    /// Limits the sized chip sits on (within [`super::ACTIVE_TOL`] of the limit held with
+    /// its margin) or exceeds, when limits were held.
+    pub active_limits: Vec<ActiveLimit>,
     /// Significant digits of the written sizes without a fabrication step (set when a copy
     /// is written).
     pub written_digits: Option<usize>,
@@ -60,15 +89,31 @@ pub struct SizeResult {
     pub solution: FlowSolution,
 }
 
-/// Find channel lengths/widths that meet the targets with the drives fixed ([`size_with`] on
-/// a new [`Solver`]).
+/// Options of [`size_with_options`].
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub struct SizeOptions {
+    /// Leave wall-shear limits, the pressure rating and vacuum out of the steps.
+    pub ignore_limits: bool,
+}
+
+/// Find channel lengths/widths that meet the targets with the drives fixed, within bounds and
+/// limits ([`size_with`] on a new [`Solver`]).
 pub fn size(network: &Network, design: &Design) -> Result<SizeResult, DesignError> {
     check_design(design)?;
     size_with(&Solver::new(network)?, design)
 }
 
-/// [`size`] for the network of `solver`: every evaluation factorises on its analysis.
+/// [`size_with_options`] with the limits held.
 pub fn size_with(solver: &Solver<'_>, design: &Design) -> Result<SizeResult, DesignError> {
+    size_with_options(solver, design, SizeOptions::default())
+}
+
+/// [`size`] for the network of `solver`: every evaluation factorises on its analysis.
+pub fn size_with_options(
+    solver: &Solver<'_>,
+    design: &Design,
+    options: SizeOptions,
+) -> Result<SizeResult, DesignError> {
     check_design(design)?;
     let network = solver.network();
     let vars = &design.sizes;
@@ -87,6 +132,11 @@ pub fn size_with(solver: &Solver<'_>, design: &Design) -> Result<SizeResult, Des
         scales: RefCell::new(None),
         evaluations: Cell::new(0),
         numeric: NumericCache::default(),
+        limits: Cell::new(if options.ignore_limits {
+            LimitHandling::Ignored
+        } else {
+            LimitHandling::Constrained
+        }),
     };
     let mut it = Iterate::start(&ctx, z)?;
     it.descend(&ctx, &vec![true; vars.len()])?;
@@ -123,8 +173,16 @@ pub fn size_with(solver: &Solver<'_>, design: &Design) -> Result<SizeResult, Des
             at_bound: at_bound(v, after),
         })
         .collect();
+    let limits = ctx.limits.get();
+    let active_limits = if limits == LimitHandling::Constrained {
+        limits_reached(&net, &state.flows, &state.pressures)
+    } else {
+        vec![]
+    };
     Ok(SizeResult {
         all_targets_met: targets.iter().all(|t| t.met),
+        limits,
+        active_limits,
         written_digits: None,
         residual_norm: norm(&res),
         sizes,
@@ -186,6 +244,8 @@ struct Context<'a, 'n> {
     evaluations: Cell<usize>,
     /// Numerical figures and width derivatives per section geometry, for this run.
     numeric: NumericCache,
+    /// Whether limits are held (set to unattainable when the linearised limits cannot hold).
+    limits: Cell<LimitHandling>,
 }
 
 /// Numerical section figures and d ln R'/dw per geometry, solved once per sizing run.
@@ -240,6 +300,11 @@ struct Evaluation {
     jac_parts: Vec<Vec<(f64, f64)>>,
     /// Conductances of the sized variables' channels.
     g_sized: Vec<f64>,
+    /// Per size variable, the derivatives of every node pressure and channel flow with
+    /// respect to its channel's conductance (empty when limits are not held).
+    state_dg: Vec<StateDerivative>,
+    /// The largest relative excess over a limit (0 when every limit holds).
+    excess: f64,
 }
 
 impl Context<'_, '_> {
@@ -292,19 +357,30 @@ impl Context<'_, '_> {
             })
             .collect();
         let g_sized: Vec<f64> = vars.iter().map(|v| g[v.channel.0]).collect();
+        let state_dg = if self.holds_limits() {
+            state_derivatives(&factor, &state, vars)?
+        } else {
+            vec![]
+        };
         Ok(Evaluation {
+            excess: excess(&net, &state.flows, &state.pressures),
             net,
             state,
             res,
             jac_parts,
             g_sized,
+            state_dg,
         })
     }
 
-    /// d(res)/dz of an evaluation at sizes `z`: dg/dL = −g/L, dg/dw = −g·d ln R'/dw.
-    fn jacobian(&self, e: &Evaluation, z: &[f64]) -> Result<Vec<Vec<f64>>, DesignError> {
-        let dg_dz: Vec<f64> = self
-            .design
+    fn holds_limits(&self) -> bool {
+        self.limits.get() == LimitHandling::Constrained
+    }
+
+    /// dg/dz of each size variable's channel at sizes `z`: dg/dL = −g/L, dg/dw =
+    /// −g·d ln R'/dw.
+    fn dg_dz(&self, e: &Evaluation, z: &[f64]) -> Result<Vec<f64>, DesignError> {
+        self.design
             .sizes
             .iter()
             .zip(z)
@@ -326,17 +402,166 @@ impl Context<'_, '_> {
                     }
                 })
             })
-            .collect::<Result<_, DesignError>>()?;
-        Ok(e.jac_parts
+            .collect()
+    }
+
+    /// d(res)/dz of an evaluation, from dg/dz ([`Context::dg_dz`]).
+    fn jacobian(&self, e: &Evaluation, dg_dz: &[f64]) -> Vec<Vec<f64>> {
+        e.jac_parts
             .iter()
             .map(|row| {
                 row.iter()
-                    .zip(&dg_dz)
+                    .zip(dg_dz)
                     .map(|((c, explicit), dg)| c * dg + explicit)
                     .collect()
             })
+            .collect()
+    }
+
+    /// The limits linearised at evaluation `e` (sizes `z`) over the relative step δ
+    /// (z_j·(1 + δ_j)), without those that every step within `lo ≤ δ ≤ hi` keeps.
+    fn limit_rows(
+        &self,
+        e: &Evaluation,
+        z: &[f64],
+        dg_dz: &[f64],
+        lo: &[f64],
+        hi: &[f64],
+    ) -> Result<Vec<Constraint>, DesignError> {
+        let vars = &self.design.sizes;
+        // d/dδ_j = z_j·dg_m/dz_j·d/dg_m for the channel m of variable j.
+        let per_step: Vec<f64> = z.iter().zip(dg_dz).map(|(z, d)| z * d).collect();
+        let along = |pick: &dyn Fn(&StateDerivative) -> f64| -> Vec<f64> {
+            e.state_dg
+                .iter()
+                .zip(&per_step)
+                .map(|(d, c)| c * pick(d))
+                .collect()
+        };
+        // d ln q̄/dw of each width variable (0 for lengths: q̄ does not depend on L).
+        let dlog_bound: Vec<f64> = vars
+            .iter()
+            .zip(z)
+            .map(|(v, &zv)| {
+                if v.dim != SizeDim::Width {
+                    return Ok(0.0);
+                }
+                let ch = &e.net.channels[v.channel];
+                let shape = &e.net.sections[ch.section].shape;
+                let dlog_r = self
+                    .numeric
+                    .dlog_width(shape, e.net.section_tolerance)
+                    .map_err(|reason| DesignError::SizedSection {
+                        channel: ch.name.clone(),
+                        reason,
+                    })?;
+                Ok(zv * (-dlog_r - dlog_shear_factor(shape)))
+            })
+            .collect::<Result<_, DesignError>>()?;
+        let dbound = |k: usize| -> Vec<f64> {
+            let Some(qbar) = limits::shear_flow_bound(&e.net, k) else {
+                return vec![];
+            };
+            vars.iter()
+                .zip(&dlog_bound)
+                .map(|(v, d)| if v.channel.0 == k { qbar * d } else { 0.0 })
+                .collect()
+        };
+        let rows = limits::limit_constraints(
+            &e.net,
+            &Linearised {
+                flows: &e.state.flows,
+                pressures: &e.state.pressures,
+                dflow: &|k| along(&|d| d.flows[k]),
+                dpressure: &|i| along(&|d| d.pressures[i]),
+                dbound: &dbound,
+            },
+        );
+        Ok(rows
+            .into_iter()
+            .filter(|c| {
+                let least: f64 =
+                    c.g.iter()
+                        .zip(lo.iter().zip(hi))
+                        .map(|(g, (l, h))| (g * l).min(g * h))
+                        .sum();
+                least < c.h
+            })
             .collect())
     }
+}
+
+/// Derivatives of every node pressure and channel flow with respect to one conductance.
+struct StateDerivative {
+    pressures: Vec<f64>,
+    flows: Vec<f64>,
+}
+
+/// d ln s/dw of a closed-form section (s = τ_max/G), by a central difference of the closed
+/// form; 0 for numerically solved sections and shapes without a width.
+fn dlog_shear_factor(shape: &Shape) -> f64 {
+    let Some(w) = dimension(shape, "width") else {
+        return 0.0;
+    };
+    let h = 1e-5 * w;
+    let s = |x: f64| {
+        with_dimension(shape, "width", x)
+            .and_then(|s| s.analytic_figures())
+            .map(|f| f.max_wall_shear_per_gradient)
+    };
+    match (s(w + h), s(w - h), s(w)) {
+        (Some(p), Some(m), Some(c)) if c > 0.0 => (p - m) / (2.0 * h) / c,
+        _ => 0.0,
+    }
+}
+
+/// For each size variable, d p/d g_m and d q/d g_m of the channel m it sizes (the direct
+/// method: A·dp = −Δp_m·(e_i − e_j), dp = 0 at pressure ports, on the forward solve's
+/// factor; dq_k = g_k·(dp_from − dp_to) + [k = m]·Δp_m).
+fn state_derivatives(
+    factor: &Factor<'_>,
+    state: &FlowSolution,
+    vars: &[SizeVar],
+) -> Result<Vec<StateDerivative>, DesignError> {
+    let net = factor.network();
+    let g = factor.conductances();
+    let p = &state.pressures;
+    let rhs: Vec<Vec<f64>> = vars
+        .iter()
+        .map(|v| {
+            let ch = &net.channels[v.channel];
+            let dp = p[ch.from.0] - p[ch.to.0];
+            let mut col = vec![0.0; net.nodes.len()];
+            col[ch.from.0] -= dp;
+            col[ch.to.0] += dp;
+            col
+        })
+        .collect();
+    let sols = factor.solve_adjoint(&rhs)?;
+    Ok(vars
+        .iter()
+        .zip(sols)
+        .map(|(v, sol)| {
+            let dp = sol.lambda;
+            let dq: Vec<f64> = net
+                .channels
+                .iter()
+                .enumerate()
+                .map(|(k, ch)| {
+                    let own = if k == v.channel.0 {
+                        p[ch.from.0] - p[ch.to.0]
+                    } else {
+                        0.0
+                    };
+                    g[k] * (dp[ch.from.0] - dp[ch.to.0]) + own
+                })
+                .collect();
+            StateDerivative {
+                pressures: dp,
+                flows: dq,
+            }
+        })
+        .collect())
 }
 
 /// The Gauss–Newton iterate: sizes, their evaluation, the damping μ and the iteration count.
@@ -357,27 +582,27 @@ impl Iterate {
         })
     }
 
-    /// Damped, bounded Gauss–Newton on the `free` variables: accept a step that lowers
-    /// ‖res‖ (μ ← max(μ/10, 1e-15)), else raise μ tenfold; stop when ‖res‖ < 1e-13, a step
-    /// moves no size by more than 1e-14 relative, μ exceeds 1e12, or after
-    /// [`MAX_ITERATIONS`].
+    /// Damped, bounded Gauss–Newton on the `free` variables: accept a step that improves the
+    /// iterate ([`Iterate::improves`]; μ ← max(μ/10, 1e-15)), else raise μ tenfold; stop
+    /// when ‖res‖ < 1e-13 with every limit kept, a step moves no size by more than 1e-14
+    /// relative, μ exceeds 1e12, or after [`MAX_ITERATIONS`].
     fn descend(&mut self, ctx: &Context<'_, '_>, free: &[bool]) -> Result<(), DesignError> {
         let vars = &ctx.design.sizes;
         for _ in 0..MAX_ITERATIONS {
-            if norm(&self.eval.res) < 1e-13 {
+            let kept = !ctx.holds_limits() || self.eval.excess <= 0.0;
+            if norm(&self.eval.res) < 1e-13 && kept {
                 break;
             }
             self.iterations += 1;
-            let jac = ctx.jacobian(&self.eval, &self.z)?;
-            let step = self.step(&jac, vars, free);
+            let step = self.step(ctx, vars, free)?;
             let trial: Vec<f64> = vars
                 .iter()
                 .zip(&self.z)
-                .zip(&step.x)
+                .zip(&step)
                 .map(|((v, z), d)| (z * (1.0 + d)).clamp(v.min, v.max))
                 .collect();
             let eval = ctx.evaluate(&trial)?;
-            if norm(&eval.res) < norm(&self.eval.res) {
+            if self.improves(ctx, &eval) {
                 let small = trial
                     .iter()
                     .zip(&self.z)
@@ -398,11 +623,33 @@ impl Iterate {
         Ok(())
     }
 
-    /// The bounded, damped least-squares step in relative units: minimise
-    /// ‖J·diag(z)·δ + res‖² + μ‖δ‖² with min/z − 1 ≤ δ ≤ max/z − 1 (δ = 0 where not free).
-    fn step(&self, jac: &[Vec<f64>], vars: &[SizeVar], free: &[bool]) -> BoxLsq {
+    /// Whether a trial improves the iterate: without limits, a lower ‖res‖; with limits, a
+    /// lower largest excess over a limit, or no more excess than now (none, once every limit
+    /// is kept) and a lower ‖res‖.
+    fn improves(&self, ctx: &Context<'_, '_>, trial: &Evaluation) -> bool {
+        let lower = norm(&trial.res) < norm(&self.eval.res);
+        if !ctx.holds_limits() {
+            return lower;
+        }
+        let (now, then) = (self.eval.excess.max(0.0), trial.excess.max(0.0));
+        then < now || (then <= now && lower)
+    }
+
+    /// The damped least-squares step in relative units: minimise ‖J·diag(z)·δ + res‖² +
+    /// μ‖δ‖² with min/z − 1 ≤ δ ≤ max/z − 1 (δ = 0 where not free) and, when limits are
+    /// held, the limits linearised at the iterate (LSI, [`lsq::solve`]); bounds only
+    /// ([`boxqp::solve`]) otherwise. Limits that cannot all hold in the linearisation are
+    /// dropped for the rest of the run ([`LimitHandling::Unattainable`]).
+    fn step(
+        &self,
+        ctx: &Context<'_, '_>,
+        vars: &[SizeVar],
+        free: &[bool],
+    ) -> Result<Vec<f64>, DesignError> {
         let n = vars.len();
         let z = &self.z;
+        let dg_dz = ctx.dg_dz(&self.eval, z)?;
+        let jac = ctx.jacobian(&self.eval, &dg_dz);
         let mut a: Vec<Vec<f64>> = jac
             .iter()
             .map(|row| {
@@ -430,7 +677,26 @@ impl Iterate {
                 .collect()
         };
         let (lo, hi) = (bound(&|v| v.min), bound(&|v| v.max));
-        boxqp::solve(&a, &rhs, &lo, &hi, &vec![0.0; n])
+        if ctx.holds_limits() {
+            let rows = ctx.limit_rows(&self.eval, z, &dg_dz, &lo, &hi)?;
+            let all: Vec<Constraint> = bound_constraints(&lo, &hi)
+                .into_iter()
+                .chain(rows)
+                .collect();
+            let g: Vec<Vec<f64>> = all.iter().map(|c| c.g.clone()).collect();
+            let h: Vec<f64> = all.iter().map(|c| c.h).collect();
+            let lsi = lsq::solve(&a, &rhs, &g, &h, &vec![0.0; n]);
+            if lsi.feasible {
+                return Ok(lsi
+                    .x
+                    .iter()
+                    .zip(lo.iter().zip(&hi))
+                    .map(|(x, (l, h))| x.clamp(*l, *h))
+                    .collect());
+            }
+            ctx.limits.set(LimitHandling::Unattainable);
+        }
+        Ok(boxqp::solve(&a, &rhs, &lo, &hi, &vec![0.0; n]).x)
     }
 
     /// Fabrication steps: snap the stepped dimensions, then re-solve the others.
@@ -506,7 +772,9 @@ fn sized_section(
 /// The shape with its width (or a circle's diameter) or height set to `value`, when the shape
 /// has that dimension. The width of a trapezoid is its top (at the lid), changed with the
 /// sidewall angle kept (the bottom moves by as much as the top); of a d-shape its mask width;
-/// of a rounded rectangle its width.
+/// of a rounded rectangle its width; of a measured profile its span (last position − first),
+/// changed by multiplying every position by one factor with the depths kept (the chip file's
+/// `width_scale`).
 pub fn with_dimension(shape: &Shape, dim: &str, value: f64) -> Option<Shape> {
     let v = Length::from_si(value);
     Some(match (shape, dim) {
@@ -556,6 +824,13 @@ pub fn with_dimension(shape: &Shape, dim: &str, value: f64) -> Option<Shape> {
             width: *width,
         },
         (Shape::Circle { .. }, "width") => Shape::Circle { diameter: v },
+        (Shape::Profile { .. }, "width") => {
+            let span = shape.profile_span()?;
+            if !(span > 0.0 && value.is_finite()) {
+                return None;
+            }
+            shape.scaled_profile(value / span)?
+        }
         _ => return None,
     })
 }
@@ -575,6 +850,7 @@ pub fn dimension(shape: &Shape, dim: &str) -> Option<f64> {
         (Shape::Trapezoid { top, .. }, "width") => top.si(),
         (Shape::DShape { mask_width, .. }, "width") => mask_width.si(),
         (Shape::RoundedRectangle { width, .. }, "width") => width.si(),
+        (Shape::Profile { .. }, "width") => shape.profile_span()?,
         _ => return None,
     })
 }

@@ -20,24 +20,18 @@
 //! - a target no adjustable port can move (its row of the response matrix is below 1e-9 of its
 //!   scale over the settings' range, or, for a split, every port changes the group's flows in
 //!   the same proportion as the fixed ports do) is reported not controllable and left out;
-//! - limits are held with a relative margin of [`LIMIT_MARGIN`], so that a copy written with
-//!   enough digits stays inside them; a limit is reported active within [`ACTIVE_TOL`] of it.
+//! - limits are held with a relative margin of [`limits::LIMIT_MARGIN`], so that a copy written with
+//!   enough digits stays inside them; a limit is reported active within [`ACTIVE_TOL`] of it
+//!   (both in [`super::limits`], shared with sizing).
 
 use super::super::kirchhoff::{conductances, drive_values, FlowSolution, Solver};
-use super::super::limits::STANDARD_ATMOSPHERE;
 use super::super::lsq;
-use super::super::Place;
+use super::limits::{
+    self, bound_constraints, ActiveLimit, Constraint, Label, LimitHandling, Linearised, ACTIVE_TOL,
+};
 use super::targets::{outcomes, rows, NotControllable, Scales, TargetOutcome};
 use super::{Adjustable, Design, DesignError, TargetKind};
-use crate::network::{ChannelId, Network, NodeId};
-
-/// Relative margin inside every limit held as a constraint.
-pub const LIMIT_MARGIN: f64 = 1e-8;
-
-/// A limit counts as active when the tuned state is within this fraction of it (beyond the
-/// margin): many channels in series can sit on their limits together, and the solve places
-/// them on it only to its own accuracy.
-pub const ACTIVE_TOL: f64 = 1e-7;
+use crate::network::{Network, NodeId};
 
 /// A response below this fraction of a target's scale (over the whole range of the settings)
 /// counts as none.
@@ -53,38 +47,6 @@ pub struct Setting {
     pub max: f64,
     /// −1 at the minimum, +1 at the maximum, 0 inside.
     pub at_bound: i8,
-}
-
-/// Which limit a constraint holds.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum LimitKind {
-    /// A channel's maximum wall shear against its limit.
-    WallShear,
-    /// A node's gauge pressure against the chip's pressure rating.
-    PressureRating,
-    /// A node's gauge pressure against −1 atm (vacuum).
-    Vacuum,
-}
-
-/// A limit the tuned settings sit on.
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct ActiveLimit {
-    pub place: Place,
-    pub kind: LimitKind,
-    /// +1 at the upper side (flow in the channel's direction, pressure above), −1 below.
-    pub side: i8,
-}
-
-/// How limits entered the problem.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
-pub enum LimitHandling {
-    /// Held as constraints.
-    Constrained,
-    /// Left out on request (`--ignore-limits`).
-    Ignored,
-    /// The limits cannot all hold within the bounds (with the fixed ports as they are); the
-    /// settings were found without them.
-    Unattainable,
 }
 
 /// Singular values of the (scaled, weighted) response matrix below this fraction of the
@@ -160,7 +122,7 @@ pub fn tune_with_options(
     let states = factor.solve_many(&drive_sets(&base, &design.adjustable))?;
     let scaled = Scaled::new(&base, &design.adjustable);
     let problem = Problem::new(network, design, &scaled, &states);
-    let bounds = bound_constraints(&scaled);
+    let bounds = bound_constraints(&scaled.lo, &scaled.hi);
     let mut limits = if options.ignore_limits {
         LimitHandling::Ignored
     } else {
@@ -336,155 +298,31 @@ impl Scaled {
     }
 }
 
-/// What a constraint row holds.
-#[derive(Clone, Copy, Debug, PartialEq)]
-enum Label {
-    Lower(usize),
-    Upper(usize),
-    Shear(ChannelId, i8),
-    Rating(NodeId, i8),
-    Vacuum(NodeId),
-}
-
-impl Label {
-    fn limit(&self) -> Option<ActiveLimit> {
-        match *self {
-            Label::Lower(_) | Label::Upper(_) => None,
-            Label::Shear(c, side) => Some(ActiveLimit {
-                place: Place::Channel(c),
-                kind: LimitKind::WallShear,
-                side,
-            }),
-            Label::Rating(n, side) => Some(ActiveLimit {
-                place: Place::Node(n),
-                kind: LimitKind::PressureRating,
-                side,
-            }),
-            Label::Vacuum(n) => Some(ActiveLimit {
-                place: Place::Node(n),
-                kind: LimitKind::Vacuum,
-                side: -1,
-            }),
-        }
-    }
-}
-
-/// One linear inequality g·y ≥ h on the scaled settings.
-#[derive(Clone, Debug)]
-struct Constraint {
-    g: Vec<f64>,
-    h: f64,
-    label: Label,
-}
-
-fn bound_constraints(scaled: &Scaled) -> Vec<Constraint> {
-    let n = scaled.scale.len();
-    let unit = |j: usize, v: f64| -> Vec<f64> {
-        let mut g = vec![0.0; n];
-        g[j] = v;
-        g
-    };
-    (0..n)
-        .flat_map(|j| {
-            [
-                Constraint {
-                    g: unit(j, 1.0),
-                    h: scaled.lo[j],
-                    label: Label::Lower(j),
-                },
-                Constraint {
-                    g: unit(j, -1.0),
-                    h: -scaled.hi[j],
-                    label: Label::Upper(j),
-                },
-            ]
-        })
-        .collect()
-}
-
-/// `lower ≤ value(y) ≤ upper` for a quantity value(y) = v₀ + a·y, each side divided by its
-/// bound's size and held with [`LIMIT_MARGIN`]; sides that no port moves are left out.
-fn two_sided(
-    out: &mut Vec<Constraint>,
-    v0: f64,
-    a: &[f64],
-    lower: Option<(f64, Label)>,
-    upper: Option<(f64, Label)>,
-) {
-    if a.iter().all(|v| *v == 0.0) {
-        return;
-    }
-    if let Some((up, label)) = upper {
-        let k = up.abs();
-        out.push(Constraint {
-            g: a.iter().map(|v| -v / k).collect(),
-            h: (v0 - up * (1.0 - LIMIT_MARGIN)) / k,
-            label,
-        });
-    }
-    if let Some((lo, label)) = lower {
-        let k = lo.abs();
-        out.push(Constraint {
-            g: a.iter().map(|v| v / k).collect(),
-            h: (lo * (1.0 - LIMIT_MARGIN) - v0) / k,
-            label,
-        });
-    }
-}
-
-/// Wall-shear limits (|q_k| ≤ q̄_k = τ_limit·K/(s·μ), s = τ_max/G of the section) and the
-/// pressure rating and vacuum at every node, as constraints on the scaled settings.
+/// Wall-shear limits (|q_k| ≤ q̄_k) and the pressure rating and vacuum at every node, as
+/// constraints on the scaled settings: exactly linear, value(y) = value(fixed ports) +
+/// Σ_j y_j·s_j·value(unit j).
 fn limit_constraints(
     network: &Network,
     scaled: &Scaled,
     states: &[FlowSolution],
 ) -> Vec<Constraint> {
-    let mut out = Vec::new();
-    let mu = network.fluid.viscosity.si();
-    for (k, ch) in network.channels.iter().enumerate() {
-        let Some(limit) = ch.shear_limit.or(network.fluid.shear_limit).map(|p| p.si()) else {
-            continue;
-        };
-        let fig = &network.sections[ch.section].figures;
-        let qbar = limit * fig.conductance_factor / (fig.max_wall_shear_per_gradient * mu);
-        if !(qbar.is_finite() && qbar > 0.0) {
-            continue;
-        }
-        let a: Vec<f64> = states[1..]
+    let along = |value: &dyn Fn(&FlowSolution) -> f64| -> Vec<f64> {
+        states[1..]
             .iter()
             .zip(&scaled.scale)
-            .map(|(st, s)| st.flows[k] * s)
-            .collect();
-        let c = ChannelId(k);
-        two_sided(
-            &mut out,
-            states[0].flows[k],
-            &a,
-            Some((-qbar, Label::Shear(c, -1))),
-            Some((qbar, Label::Shear(c, 1))),
-        );
-    }
-    let rating = network.pressure_rating.map(|r| r.si());
-    for i in 0..network.nodes.len() {
-        let a: Vec<f64> = states[1..]
-            .iter()
-            .zip(&scaled.scale)
-            .map(|(st, s)| st.pressures[i] * s)
-            .collect();
-        let node = NodeId(i);
-        let lower = match rating {
-            Some(r) if r < STANDARD_ATMOSPHERE => (-r, Label::Rating(node, -1)),
-            _ => (-STANDARD_ATMOSPHERE, Label::Vacuum(node)),
-        };
-        two_sided(
-            &mut out,
-            states[0].pressures[i],
-            &a,
-            Some(lower),
-            rating.map(|r| (r, Label::Rating(node, 1))),
-        );
-    }
-    out
+            .map(|(st, s)| value(st) * s)
+            .collect()
+    };
+    limits::limit_constraints(
+        network,
+        &Linearised {
+            flows: &states[0].flows,
+            pressures: &states[0].pressures,
+            dflow: &|k| along(&|st| st.flows[k]),
+            dpressure: &|i| along(&|st| st.pressures[i]),
+            dbound: &|_| vec![],
+        },
+    )
 }
 
 /// The weighted least-squares problem in the scaled settings: A·y ≈ r over the controllable
