@@ -37,9 +37,9 @@ pub use locate::locate;
 pub(crate) use named::Named;
 pub(crate) use quantity::Q;
 pub(crate) use section_spec::SectionSpec;
-pub use section_spec::{parse_profile_csv, FileReader};
+pub use section_spec::{parse_profile_columns, parse_profile_csv, FileReader};
 
-use crate::chip::{Chip, DrawnLayout, Source};
+use crate::chip::{Chip, DrawnLayout, ModelNote, Source};
 use crate::network::{NetworkBuilder, NetworkError, Port, SectionId};
 use crate::units::{Length, Pressure, VolumeFlow};
 use serde::de::{self, Deserializer, MapAccess, Visitor};
@@ -317,6 +317,8 @@ impl ChipFile {
             .filter_map(|(n, s)| s.size.as_ref().map(|z| (n.clone(), z)))
             .collect();
         let design = design_spec::to_design(&network, &self.targets, &adjust, &sizes)?;
+        let mut notes: Vec<ModelNote> = notes.into_iter().map(ModelNote::Fluid).collect();
+        notes.extend(profile_notes(&network));
         Ok(Chip {
             name: self.name,
             description: self.description,
@@ -330,6 +332,23 @@ impl ChipFile {
             notes,
         })
     }
+}
+
+/// The notes of every measured-profile section, in file order.
+fn profile_notes(network: &crate::network::Network) -> Vec<ModelNote> {
+    network
+        .sections
+        .iter()
+        .flat_map(|s| {
+            s.shape
+                .profile_notes()
+                .into_iter()
+                .map(|note| ModelNote::Profile {
+                    section: s.name.clone(),
+                    note,
+                })
+        })
+        .collect()
 }
 
 /// Parse one section mapping in the chip-file syntax (`{shape: trapezoid, top: 120 um, ...}`).
