@@ -140,7 +140,7 @@ pub mod memory {
             }
         };
         let bytes = value * factor;
-        if !(bytes.is_finite() && bytes >= 1.0 && bytes < 1.8e19) {
+        if !(1.0..1.8e19).contains(&bytes) {
             return Err(format!("'{text}' is not a usable memory budget"));
         }
         Ok(bytes as u64)

@@ -127,14 +127,14 @@ impl Rng {
     pub fn new(seed: u64) -> Rng {
         Rng(seed.max(1))
     }
-    pub fn next(&mut self) -> u64 {
+    pub fn next_u64(&mut self) -> u64 {
         self.0 ^= self.0 >> 12;
         self.0 ^= self.0 << 25;
         self.0 ^= self.0 >> 27;
         self.0.wrapping_mul(0x2545_f491_4f6c_dd1d)
     }
     pub fn below(&mut self, n: usize) -> usize {
-        (self.next() % n.max(1) as u64) as usize
+        (self.next_u64() % n.max(1) as u64) as usize
     }
     fn pick<'a, T>(&mut self, items: &'a [T]) -> &'a T {
         &items[self.below(items.len())]
@@ -190,7 +190,7 @@ pub fn mutate(text: &str, rng: &mut Rng) -> Vec<u8> {
             let mut b = bytes.to_vec();
             if !b.is_empty() {
                 let i = rng.below(b.len());
-                b[i] = (rng.next() & 0xff) as u8;
+                b[i] = (rng.next_u64() & 0xff) as u8;
             }
             b
         }
@@ -212,7 +212,7 @@ pub fn mutate(text: &str, rng: &mut Rng) -> Vec<u8> {
         3 => {
             let mut b = bytes.to_vec();
             let i = rng.below(b.len() + 1);
-            b.splice(i..i, (*rng.pick(SYNTAX)).bytes());
+            b.splice(i..i, rng.pick::<&str>(SYNTAX).bytes());
             b
         }
         4 => replace_token(text, rng, is_number, NUMBERS),
@@ -276,7 +276,7 @@ pub fn mutate(text: &str, rng: &mut Rng) -> Vec<u8> {
             }
             let i = *rng.pick(&words);
             let mut s = text.to_string();
-            s.insert_str(i, *rng.pick(UNICODE));
+            s.insert_str(i, rng.pick::<&str>(UNICODE));
             s.into_bytes()
         }
     }
@@ -295,7 +295,7 @@ fn replace_token(text: &str, rng: &mut Rng, want: impl Fn(&str) -> bool, by: &[&
     }
     let (s, e) = *rng.pick(&spans);
     let mut out = text[..s].to_string();
-    out.push_str(*rng.pick(by));
+    out.push_str(rng.pick::<&str>(by));
     out.push_str(&text[e..]);
     out.into_bytes()
 }

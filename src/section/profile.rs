@@ -96,7 +96,7 @@ pub(super) fn channel(points: &[[Length; 2]]) -> Option<Channel> {
     let deepest = (0..below.len()).max_by(|&a, &b| {
         below[a][1].total_cmp(&below[b][1]).then_with(|| b.cmp(&a)) // the first of equal depths
     })?;
-    if !(below[deepest][1] > 0.0) {
+    if below[deepest][1] <= 0.0 || below[deepest][1].is_nan() {
         return None;
     }
     let start = (0..deepest)
