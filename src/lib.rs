@@ -51,6 +51,102 @@ pub mod prelude {
     pub use crate::units::{Length, Pressure, Viscosity, VolumeFlow};
 }
 
+/// Memory a run needs, estimated before the network is built (bytes).
+///
+/// Measured with `/usr/bin/time -v rillnet solve --format json` on generated chips (square
+/// grids of 10⁴ and 10⁵ channels, chains of 10⁴ and 10⁵ channels): the peak resident size grew
+/// by about 1 715 B per channel and 470 B per node, from a base of about 25 MB, and by 24–25
+/// bytes per byte of YAML text. The figures below are rounded up.
+pub mod memory {
+    /// Bytes per channel of a parsed chip (parse, network, solve, derived figures, output).
+    pub const PER_CHANNEL: u64 = 1_800;
+    /// Bytes per node.
+    pub const PER_NODE: u64 = 500;
+    /// Bytes per byte of chip text, for the estimate made before parsing.
+    pub const PER_TEXT_BYTE: u64 = 25;
+    /// The program's own footprint (code, fonts, buffers).
+    pub const BASE: u64 = 32 << 20;
+    /// Fraction of the physical memory (`MemTotal` in /proc/meminfo) a run may plan to use.
+    pub const FRACTION_OF_MEMORY: f64 = 0.5;
+    /// The budget when the physical memory cannot be read.
+    pub const FALLBACK: u64 = 4 << 30;
+    /// Environment variable that sets the budget (as `--memory-budget` does).
+    pub const ENV: &str = "RILLNET_MEMORY_BUDGET";
+
+    static OVERRIDE: std::sync::atomic::AtomicU64 = std::sync::atomic::AtomicU64::new(0);
+
+    /// Estimated bytes to parse `text_bytes` of chip text and run it.
+    pub fn for_text(text_bytes: usize) -> u64 {
+        BASE.saturating_add((text_bytes as u64).saturating_mul(PER_TEXT_BYTE))
+    }
+
+    /// Estimated bytes to build and solve a chip of `nodes` and `channels`.
+    pub fn for_network(nodes: usize, channels: usize) -> u64 {
+        BASE.saturating_add((channels as u64).saturating_mul(PER_CHANNEL))
+            .saturating_add((nodes as u64).saturating_mul(PER_NODE))
+    }
+
+    /// Set the budget for this process (the `--memory-budget` option).
+    pub fn set_budget(bytes: u64) {
+        OVERRIDE.store(bytes.max(1), std::sync::atomic::Ordering::Relaxed);
+    }
+
+    /// The budget: set by [`set_budget`], else [`ENV`], else [`FRACTION_OF_MEMORY`] of the
+    /// physical memory, else [`FALLBACK`]. An unreadable [`ENV`] value is ignored (the default
+    /// applies; a refusal prints the budget it used).
+    pub fn budget() -> u64 {
+        match OVERRIDE.load(std::sync::atomic::Ordering::Relaxed) {
+            0 => std::env::var(ENV)
+                .ok()
+                .and_then(|v| parse_size(&v).ok())
+                .or_else(physical)
+                .unwrap_or(FALLBACK),
+            set => set,
+        }
+    }
+
+    /// [`FRACTION_OF_MEMORY`] of `MemTotal` from /proc/meminfo, where there is one.
+    fn physical() -> Option<u64> {
+        let text = std::fs::read_to_string("/proc/meminfo").ok()?;
+        let line = text.lines().find(|l| l.starts_with("MemTotal:"))?;
+        let kib: u64 = line.split_whitespace().nth(1)?.parse().ok()?;
+        Some((kib as f64 * 1024.0 * FRACTION_OF_MEMORY) as u64)
+    }
+
+    /// A size such as `4 GiB`, `500 MB`, `2G` or `1048576` (bytes) in bytes.
+    pub fn parse_size(text: &str) -> Result<u64, String> {
+        let t = text.trim();
+        let split = t
+            .find(|c: char| !(c.is_ascii_digit() || c == '.'))
+            .unwrap_or(t.len());
+        let (number, unit) = (t[..split].trim(), t[split..].trim());
+        let value: f64 = number
+            .parse()
+            .map_err(|_| format!("'{text}' is not a size such as '4 GiB' or '500 MB'"))?;
+        let factor: f64 = match unit.to_ascii_lowercase().as_str() {
+            "" | "b" => 1.0,
+            "k" | "kb" => 1e3,
+            "m" | "mb" => 1e6,
+            "g" | "gb" => 1e9,
+            "t" | "tb" => 1e12,
+            "kib" => 1024.0,
+            "mib" => 1024.0 * 1024.0,
+            "gib" => 1024.0 * 1024.0 * 1024.0,
+            "tib" => 1024f64.powi(4),
+            _ => {
+                return Err(format!(
+                    "'{unit}' in '{text}' is not a size unit (B, kB, MB, GB, KiB, MiB, GiB)"
+                ))
+            }
+        };
+        let bytes = value * factor;
+        if !(1.0..1.8e19).contains(&bytes) {
+            return Err(format!("'{text}' is not a usable memory budget"));
+        }
+        Ok(bytes as u64)
+    }
+}
+
 /// Read at most [`format::MAX_FILE_BYTES`] bytes of text from `reader`; refuse more (the limit
 /// is enforced while reading, so device files and pipes cannot exhaust memory).
 pub fn read_limited(reader: impl std::io::Read, origin: &str) -> Result<String, Error> {

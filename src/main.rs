@@ -28,6 +28,10 @@ struct Cli {
     /// character ('{' is JSON).
     #[arg(long, value_enum, global = true)]
     syntax: Option<SyntaxArg>,
+    /// Memory a run may plan to use, e.g. '8 GiB' (default: RILLNET_MEMORY_BUDGET, else half
+    /// the physical memory); larger chips are refused before they are built.
+    #[arg(long, global = true, value_parser = rillnet::memory::parse_size)]
+    memory_budget: Option<u64>,
     #[command(subcommand)]
     command: Command,
 }
@@ -216,6 +220,9 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
         SyntaxArg::Json => rillnet::format::Syntax::Json,
         SyntaxArg::Yaml => rillnet::format::Syntax::Yaml,
     });
+    if let Some(bytes) = cli.memory_budget {
+        rillnet::memory::set_budget(bytes);
+    }
     let chip = |file: &Path| ChipArg::new(file, syntax);
     Ok(match &cli.command {
         Command::Solve {

@@ -196,3 +196,80 @@ fn design_inputs_are_checked_and_weights_do_not_change_the_verdict() {
         assert_eq!(v["all_targets_met"], true, "weight {w}");
     }
 }
+
+/// A chain of `n` channels with short names (compact text, many channels).
+fn chain(n: usize) -> String {
+    let mut t = String::from(
+        "fluid: {viscosity: 1 mPa*s, density: 1000 kg/m^3}\nsections:\n  s: {shape: circle, diameter: 100 um}\nnodes:\n  a0: {pressure: 1 kPa}\n",
+    );
+    for i in 1..n {
+        t.push_str(&format!("  a{i}: {{}}\n"));
+    }
+    t.push_str(&format!("  a{n}: {{pressure: 0 Pa}}\nchannels:\n"));
+    for i in 0..n {
+        t.push_str(&format!(
+            "  c{i}: {{from: a{i}, to: a{}, section: s, length: 1 mm}}\n",
+            i + 1
+        ));
+    }
+    t
+}
+
+#[test]
+fn chips_beyond_the_memory_budget_are_refused_before_they_are_built() {
+    // 20 000 channels: about 1.2 MB of text. The estimates (src/lib.rs, rillnet::memory):
+    // 32 MB + 25 B per text byte ≈ 62 MB from the size, 32 MB + 1 800 B per channel + 500 B
+    // per node ≈ 78 MB from the counts.
+    let text = chain(20_000);
+    let by_text = rillnet::memory::for_text(text.len());
+    let by_counts = rillnet::memory::for_network(20_001, 20_000);
+    assert!(by_text < by_counts);
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("chain.yaml");
+    std::fs::write(&path, &text).unwrap();
+    let run = |budget: u64, by_env: bool| {
+        let mut cmd = rillnet();
+        if by_env {
+            cmd.env(rillnet::memory::ENV, budget.to_string());
+        } else {
+            cmd.env_remove(rillnet::memory::ENV)
+                .args(["--memory-budget", &format!("{budget} B")]);
+        }
+        let out = cmd.arg("solve").arg(&path).output().unwrap();
+        (
+            out.status.code().unwrap_or(-1),
+            String::from_utf8_lossy(&out.stderr).into_owned(),
+        )
+    };
+    // Under the size estimate: refused from the size, before parsing.
+    for by_env in [true, false] {
+        let (code, err) = run(by_text - 1, by_env);
+        assert_eq!(code, 2, "{err}");
+        assert!(
+            err.contains("chain.yaml") && err.contains("estimated from its size"),
+            "{err}"
+        );
+        assert!(
+            err.contains(&format!("{:.0} MB", by_text as f64 / 1e6)),
+            "{err}"
+        );
+        assert!(
+            err.contains(&format!("budget of {:.0} MB", (by_text - 1) as f64 / 1e6)),
+            "{err}"
+        );
+    }
+    // Between the two: parsed, then refused from the counts, naming them.
+    let (code, err) = run(by_counts - 1, false);
+    assert_eq!(code, 2, "{err}");
+    assert!(err.contains("20001 nodes and 20000 channels"), "{err}");
+    // With room for both: solved.
+    let (code, err) = run(by_counts, true);
+    assert_eq!(code, 0, "{err}");
+    // A size that is not one is a usage error.
+    let out = rillnet()
+        .args(["--memory-budget", "6 lbs", "solve"])
+        .arg(&path)
+        .output()
+        .unwrap();
+    assert_eq!(out.status.code(), Some(2));
+}

@@ -11,6 +11,22 @@ pub mod design;
 
 use crate::fluid::RangeWarning;
 use crate::network::{ChannelId, Network, SectionId};
+use crate::section::ProfileNote;
+
+/// A model note: something the results rest on that the user should know, but no limit
+/// broken (data; `report::findings` writes the words).
+#[derive(Clone, Debug, PartialEq)]
+pub enum ModelNote {
+    /// A fluid model used outside its published range.
+    Fluid(RangeWarning),
+    /// How a measured profile was read: sparse or uneven sampling, simplification for the
+    /// mesh, surface left out (see `section::profile`).
+    Profile {
+        /// The section as the file names it (`CHANNEL.section` for an inline one).
+        section: String,
+        note: ProfileNote,
+    },
+}
 
 /// Where a chip's text came from.
 #[derive(Clone, Debug, PartialEq)]
@@ -73,8 +89,9 @@ pub struct Chip {
     pub design: design::Design,
     /// Drawing positions given in the chip file (used by the pictures only).
     pub layout: DrawnLayout,
-    /// Models used outside their published range (e.g. a fluid correlation).
-    pub notes: Vec<RangeWarning>,
+    /// Models used outside their published range (e.g. a fluid correlation), and how measured
+    /// profiles were read.
+    pub notes: Vec<ModelNote>,
 }
 
 impl Chip {

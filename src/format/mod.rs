@@ -37,9 +37,9 @@ pub use locate::locate;
 pub(crate) use named::Named;
 pub(crate) use quantity::Q;
 pub(crate) use section_spec::SectionSpec;
-pub use section_spec::{parse_profile_csv, FileReader};
+pub use section_spec::{parse_profile_columns, parse_profile_csv, FileReader};
 
-use crate::chip::{Chip, DrawnLayout, Source};
+use crate::chip::{Chip, DrawnLayout, ModelNote, Source};
 use crate::network::{NetworkBuilder, NetworkError, Port, SectionId};
 use crate::units::{Length, Pressure, VolumeFlow};
 use serde::de::{self, Deserializer, MapAccess, Visitor};
@@ -317,6 +317,8 @@ impl ChipFile {
             .filter_map(|(n, s)| s.size.as_ref().map(|z| (n.clone(), z)))
             .collect();
         let design = design_spec::to_design(&network, &self.targets, &adjust, &sizes)?;
+        let mut notes: Vec<ModelNote> = notes.into_iter().map(ModelNote::Fluid).collect();
+        notes.extend(profile_notes(&network));
         Ok(Chip {
             name: self.name,
             description: self.description,
@@ -330,6 +332,23 @@ impl ChipFile {
             notes,
         })
     }
+}
+
+/// The notes of every measured-profile section, in file order.
+fn profile_notes(network: &crate::network::Network) -> Vec<ModelNote> {
+    network
+        .sections
+        .iter()
+        .flat_map(|s| {
+            s.shape
+                .profile_notes()
+                .into_iter()
+                .map(|note| ModelNote::Profile {
+                    section: s.name.clone(),
+                    note,
+                })
+        })
+        .collect()
 }
 
 /// Parse one section mapping in the chip-file syntax (`{shape: trapezoid, top: 120 um, ...}`).
@@ -460,6 +479,28 @@ fn plain_words(message: &str) -> String {
     out
 }
 
+/// Refuse a chip whose run would need more memory than the budget ([`crate::memory`]),
+/// before building anything of that size.
+fn within_budget(origin: &str, estimate: u64, from: &str) -> Result<(), InputError> {
+    let budget = crate::memory::budget();
+    if estimate <= budget {
+        return Ok(());
+    }
+    let mb = |b: u64| b as f64 / 1e6;
+    Err(InputError::whole_file(
+        origin,
+        format!(
+            "running this chip would need about {:.0} MB of memory (estimated from {from}), \
+             more than the budget of {:.0} MB; raise it with --memory-budget or {} \
+             (default: {:.0} % of the physical memory), or split the chip",
+            mb(estimate),
+            mb(budget),
+            crate::memory::ENV,
+            crate::memory::FRACTION_OF_MEMORY * 100.0
+        ),
+    ))
+}
+
 /// Parse chip-file text into a validated network. `origin` names the file in errors.
 /// Files named inside the chip (measured profiles) are refused; see [`parse_chip_with`].
 pub fn parse_chip(text: &str, origin: &str, syntax: Syntax) -> Result<Chip, InputError> {
@@ -486,6 +527,7 @@ pub fn parse_chip_with(
             ),
         ));
     }
+    within_budget(origin, crate::memory::for_text(text.len()), "its size")?;
     // A byte-order mark is not part of the text (editors on some systems write one).
     let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let file: ChipFile = match syntax {
@@ -508,6 +550,15 @@ pub fn parse_chip_with(
             })?
         }
     };
+    within_budget(
+        origin,
+        crate::memory::for_network(file.nodes.0.len(), file.channels.0.len()),
+        &format!(
+            "its {} nodes and {} channels",
+            file.nodes.0.len(),
+            file.channels.0.len()
+        ),
+    )?;
     let source = Source {
         origin: origin.to_string(),
         text: text.to_string(),

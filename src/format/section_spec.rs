@@ -64,13 +64,19 @@ pub(crate) struct SectionSpec {
     /// Profile from a two-column CSV file (position, depth), relative to the chip file.
     #[serde(default)]
     pub file: Option<String>,
-    /// Unit of the numbers in `file` (default um).
+    /// Unit of the numbers in `file` (default um): sets both columns.
     #[serde(default)]
     pub unit: Option<String>,
     /// Profile only: every position multiplied by this factor, depths kept (default 1); what
     /// sizing changes when it sizes a profile's width.
     #[serde(default)]
     pub width_scale: Option<super::design_spec::RawQuantity>,
+    /// Unit of the position column of `file` (instead of `unit`).
+    #[serde(default)]
+    pub unit_x: Option<String>,
+    /// Unit of the depth column of `file` (instead of `unit`).
+    #[serde(default)]
+    pub unit_depth: Option<String>,
 }
 
 /// Reads a file named in the chip file; returns its text or a message.
@@ -88,7 +94,7 @@ fn takes(kind: ShapeKind) -> &'static [&'static str] {
         ShapeKind::DShape => &["mask_width", "depth"],
         ShapeKind::RoundedRectangle => &["width", "height", "corner_radius"],
         ShapeKind::Polygon => &["points"],
-        ShapeKind::Profile => &["points or file (+ unit)"],
+        ShapeKind::Profile => &["points or file (+ unit, or unit_x and unit_depth)"],
     }
 }
 
@@ -96,7 +102,14 @@ fn takes(kind: ShapeKind) -> &'static [&'static str] {
 fn allowed(kind: ShapeKind) -> &'static [&'static str] {
     match kind {
         ShapeKind::Trapezoid => &["top", "depth", "bottom", "sidewall"],
-        ShapeKind::Profile => &["points", "file", "unit", "width_scale"],
+        ShapeKind::Profile => &[
+            "points",
+            "file",
+            "unit",
+            "unit_x",
+            "unit_depth",
+            "width_scale",
+        ],
         other => takes(other),
     }
 }
@@ -119,9 +132,37 @@ fn kind_name(kind: ShapeKind) -> &'static str {
 }
 
 /// Parse a profilometer export: two numeric columns (position, depth) separated by comma,
-/// semicolon, tab or spaces; header and `#` comment lines skipped. `scale` converts to metres.
+/// semicolon, tab or spaces; header and `#` comment lines skipped. `scale` converts both
+/// columns to metres.
 pub fn parse_profile_csv(text: &str, scale: f64) -> Result<Vec<[Length; 2]>, String> {
+    parse_profile_columns(text, [scale, scale])
+}
+
+/// [`parse_profile_csv`] with one scale per column (position, depth) to metres. Every refusal
+/// names the line: a cell that is not a plain number, a changed field count, a decimal comma,
+/// a value that is not finite, a position that does not increase.
+pub fn parse_profile_columns(text: &str, scale: [f64; 2]) -> Result<Vec<[Length; 2]>, String> {
     let mut points = Vec::new();
+    let row = |x: f64, d: f64, i: usize, points: &mut Vec<[Length; 2]>| {
+        let (x, d) = (x * scale[0], d * scale[1]);
+        if !(x.is_finite() && d.is_finite()) {
+            return Err(format!(
+                "line {}: ({x} m, {d} m) is not a pair of finite numbers",
+                i + 1
+            ));
+        }
+        if let Some(last) = points.last().map(|p: &[Length; 2]| p[0].si()) {
+            if x <= last {
+                return Err(format!(
+                    "line {}: position {x} m follows {last} m; positions must increase \
+                     across the channel",
+                    i + 1
+                ));
+            }
+        }
+        points.push([Length::from_si(x), Length::from_si(d)]);
+        Ok(())
+    };
     // The delimiter and the field count are fixed by the first data row.
     let mut layout: Option<(Delimiter, usize)> = None;
     for (i, line) in text.lines().enumerate() {
@@ -153,7 +194,7 @@ pub fn parse_profile_csv(text: &str, scale: f64) -> Result<Vec<[Length; 2]>, Str
                 continue;
             };
             check_decimal_comma(delimiter, line, i)?;
-            points.push([Length::from_si(x * scale), Length::from_si(d * scale)]);
+            row(*x, *d, i, &mut points)?;
             continue;
         };
         check_decimal_comma(delimiter, line, i)?;
@@ -165,9 +206,7 @@ pub fn parse_profile_csv(text: &str, scale: f64) -> Result<Vec<[Length; 2]>, Str
             ));
         }
         match nums.as_slice() {
-            [Some(x), Some(d), ..] => {
-                points.push([Length::from_si(x * scale), Length::from_si(d * scale)])
-            }
+            [Some(x), Some(d), ..] => row(*x, *d, i, &mut points)?,
             _ => {
                 return Err(format!(
                     "line {}: expected two plain numbers (position, depth), found '{line}'; \
@@ -225,6 +264,46 @@ fn check_decimal_comma(delimiter: Delimiter, line: &str, i: usize) -> Result<(),
 }
 
 impl SectionSpec {
+    /// Metres per unit of the position and depth columns of a profile file: `unit` sets both
+    /// (default um); `unit_x` and `unit_depth` set one each and cannot be combined with `unit`.
+    fn profile_units(&self) -> Result<[f64; 2], (&'static str, String)> {
+        let metres = |field: &'static str, unit: &str| {
+            crate::units::parse_si(&format!("1 {unit}"), crate::units::Dimension::Length)
+                .map_err(|e| (field, format!("{e}")))
+        };
+        if self.unit.is_some() && (self.unit_x.is_some() || self.unit_depth.is_some()) {
+            let field = if self.unit_x.is_some() {
+                "unit_x"
+            } else {
+                "unit_depth"
+            };
+            return Err((
+                field,
+                "give 'unit' (both columns) or 'unit_x' and 'unit_depth' (one each), not both"
+                    .into(),
+            ));
+        }
+        let both = self.unit.as_deref().unwrap_or("um");
+        Ok([
+            metres(
+                if self.unit_x.is_some() {
+                    "unit_x"
+                } else {
+                    "unit"
+                },
+                self.unit_x.as_deref().unwrap_or(both),
+            )?,
+            metres(
+                if self.unit_depth.is_some() {
+                    "unit_depth"
+                } else {
+                    "unit"
+                },
+                self.unit_depth.as_deref().unwrap_or(both),
+            )?,
+        ])
+    }
+
     /// The domain shape, checking that exactly the dimensions of this kind are present.
     pub(super) fn to_shape(&self, path: &[&str], read: FileReader<'_>) -> Result<Shape, Misplaced> {
         let place = |field: &str| {
@@ -267,7 +346,9 @@ impl SectionSpec {
             .map(|(f, _)| *f)
             .chain(self.points.as_ref().map(|_| "points"))
             .chain(self.file.as_ref().map(|_| "file"))
-            .chain(self.unit.as_ref().map(|_| "unit"));
+            .chain(self.unit.as_ref().map(|_| "unit"))
+            .chain(self.unit_x.as_ref().map(|_| "unit_x"))
+            .chain(self.unit_depth.as_ref().map(|_| "unit_depth"));
         for field in present {
             if !allowed(kind).contains(&field) {
                 return Err(err(
@@ -379,11 +460,9 @@ impl SectionSpec {
                 let points = match (&self.points, &self.file) {
                     (Some(p), None) => p.iter().map(|p| [p[0].0, p[1].0]).collect(),
                     (None, Some(f)) => {
-                        let unit = self.unit.as_deref().unwrap_or("um");
-                        let scale = crate::units::parse_si(&format!("1 {unit}"), crate::units::Dimension::Length)
-                            .map_err(|e| err("unit", format!("{e}")))?;
+                        let scale = self.profile_units().map_err(|(field, e)| err(field, e))?;
                         let text = read(f).map_err(|e| err("file", format!("cannot read profile '{f}': {e}")))?;
-                        parse_profile_csv(&text, scale).map_err(|e| err("file", format!("profile '{f}': {e}")))?
+                        parse_profile_columns(&text, scale).map_err(|e| err("file", format!("profile '{f}': {e}")))?
                     }
                     (Some(_), Some(_)) => return Err(err("file", "give either 'points' or 'file', not both".into())),
                     (None, None) => return Err(err("shape", "a profile needs 'points' ((position, depth) pairs) or 'file' (a two-column CSV)".into())),
@@ -399,7 +478,8 @@ impl SectionSpec {
             }
         };
         // Anything given that this shape does not use is a mistake worth stopping for.
-        let list_fields: [(&str, bool); 4] = [
+        let not_profile_file = kind != ShapeKind::Profile || self.file.is_none();
+        let list_fields: [(&str, bool); 6] = [
             (
                 "width_scale",
                 self.width_scale.is_some() && kind != ShapeKind::Profile,
@@ -409,10 +489,9 @@ impl SectionSpec {
                 self.points.is_some() && !matches!(kind, ShapeKind::Polygon | ShapeKind::Profile),
             ),
             ("file", self.file.is_some() && kind != ShapeKind::Profile),
-            (
-                "unit",
-                self.unit.is_some() && (kind != ShapeKind::Profile || self.file.is_none()),
-            ),
+            ("unit", self.unit.is_some() && not_profile_file),
+            ("unit_x", self.unit_x.is_some() && not_profile_file),
+            ("unit_depth", self.unit_depth.is_some() && not_profile_file),
         ];
         for (field, value) in &lengths {
             if value.is_some() && !used.contains(field) {

@@ -2,8 +2,9 @@
 
 use crate::analysis::limits::{ENTRANCE_LENGTHS, REYNOLDS_NOTE};
 use crate::analysis::{Finding, FindingKind, Place, Severity};
-use crate::chip::Chip;
+use crate::chip::{Chip, ModelNote};
 use crate::fluid::{FluidModelName, RangeParameter, RangeWarning};
+use crate::section::{ProfileNote, MAX_MESH_POINTS, MIN_PROFILE_POINTS, UNEVEN_GAP_RATIO};
 use crate::units::display;
 use serde::Serialize;
 
@@ -110,7 +111,7 @@ pub(crate) struct JsonFinding {
     pub severity: &'static str,
     /// Machine name of the kind, e.g. "shear_over_limit", "model_range".
     pub kind: &'static str,
-    /// "node", "channel" or "fluid".
+    /// "node", "channel", "section" or "fluid".
     pub place: &'static str,
     /// Name of the node or channel (the model name for a fluid note).
     pub name: String,
@@ -135,19 +136,7 @@ pub(crate) fn records(chip: &Chip, found: &[Finding]) -> Vec<JsonFinding> {
         .filter(|f| f.severity == Severity::Exceeded)
         .map(|f| record(chip, f))
         .collect();
-    out.extend(chip.notes.iter().map(|w| JsonFinding {
-        severity: "note",
-        kind: "model_range",
-        place: "fluid",
-        name: model_name(w.model).to_string(),
-        value: w.value,
-        limit: if w.value < w.valid[0] {
-            w.valid[0]
-        } else {
-            w.valid[1]
-        },
-        message: note_text(w),
-    }));
+    out.extend(chip.notes.iter().map(note_record));
     out.extend(
         found
             .iter()
@@ -155,6 +144,88 @@ pub(crate) fn records(chip: &Chip, found: &[Finding]) -> Vec<JsonFinding> {
             .map(|f| record(chip, f)),
     );
     out
+}
+
+/// A model note as a record.
+fn note_record(note: &ModelNote) -> JsonFinding {
+    match note {
+        ModelNote::Fluid(w) => JsonFinding {
+            severity: "note",
+            kind: "model_range",
+            place: "fluid",
+            name: model_name(w.model).to_string(),
+            value: w.value,
+            limit: if w.value < w.valid[0] {
+                w.valid[0]
+            } else {
+                w.valid[1]
+            },
+            message: note_text(w),
+        },
+        ModelNote::Profile { section, note } => {
+            let (value, limit) = profile_value_and_limit(note);
+            JsonFinding {
+                severity: "note",
+                kind: "profile_sampling",
+                place: "section",
+                name: section.clone(),
+                value,
+                limit,
+                message: profile_note_text(section, note),
+            }
+        }
+    }
+}
+
+/// The value and limit of a profile note (points, or metres for a gap).
+fn profile_value_and_limit(note: &ProfileNote) -> (f64, f64) {
+    match *note {
+        ProfileNote::Sparse { points } => (points as f64, MIN_PROFILE_POINTS as f64),
+        ProfileNote::Uneven { gap, median, .. } => (gap, UNEVEN_GAP_RATIO * median),
+        ProfileNote::Resampled { from, .. } => (from as f64, MAX_MESH_POINTS as f64),
+        ProfileNote::Trimmed { left_out, .. } => (left_out as f64, 0.0),
+    }
+}
+
+/// A profile note as a sentence.
+pub fn profile_note_text(section: &str, note: &ProfileNote) -> String {
+    let um = |m: f64| super::fmt_sig(m * 1e6, 4);
+    let at = format!("section '{section}'");
+    match *note {
+        ProfileNote::Sparse { points } => format!(
+            "{at}: the measured profile has {points} points across the channel (under \
+             {MIN_PROFILE_POINTS}); its wall is taken as straight between them"
+        ),
+        ProfileNote::Uneven { gap, at: x, median } => format!(
+            "{at}: the measured profile has a gap of {} um after x = {} um, {} times its median \
+             spacing of {} um; the wall is taken as straight across it",
+            um(gap),
+            um(x),
+            super::fmt_sig(gap / median, 3),
+            um(median)
+        ),
+        ProfileNote::Resampled {
+            from,
+            to,
+            area_change,
+            perimeter_change,
+        } => format!(
+            "{at}: the measured profile's {from} points were simplified to {to} for the mesh \
+             (Visvalingam–Whyatt); this changed the area by {:+.2e} and the wetted perimeter by \
+             {:+.2e} (relative)",
+            area_change, perimeter_change
+        ),
+        ProfileNote::Trimmed {
+            left_out,
+            from_x,
+            to_x,
+        } => format!(
+            "{at}: {left_out} profile point(s) outside the channel (x from {} to {} um, where \
+             the profile meets the lid) were left out",
+            um(from_x),
+            um(to_x)
+        ),
+    }
 }
 
 fn record(chip: &Chip, f: &Finding) -> JsonFinding {

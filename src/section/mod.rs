@@ -31,5 +31,6 @@ mod special;
 mod triangular;
 
 pub use figures::SectionFigures;
+pub use profile::{ProfileNote, MAX_MESH_POINTS, MIN_PROFILE_POINTS, UNEVEN_GAP_RATIO};
 pub use shape::{GeometryKey, Shape, ShapeError};
 pub use special::elliptic_e;

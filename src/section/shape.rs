@@ -49,7 +49,9 @@ pub enum Shape {
     /// Any simple polygon, vertices in order (numerical).
     Polygon { points: Vec<[Length; 2]> },
     /// Measured depth profile: (position across, depth below the lid) pairs, x increasing,
-    /// closed by the flat lid (numerical).
+    /// closed by the flat lid (numerical). Heights (a trench given as negative values) and an
+    /// instrument zero line below the surface are accepted: see the `profile` module for the
+    /// rule, and [`Shape::profile_notes`] for what is worth noting about the sampling.
     Profile { points: Vec<[Length; 2]> },
 }
 
@@ -149,7 +151,9 @@ fn check_rounded_rectangle(
     Ok(())
 }
 
-/// Measured profile: positions increasing, depths not negative, and some depth above zero.
+/// Measured profile: positions increasing, and some point below the lid once the values are
+/// read by the profile rule (depths or heights, lid on the zero line or the highest point; see
+/// the `profile` module).
 fn check_profile(points: &[[Length; 2]]) -> Result<(), ShapeError> {
     finite_points("points", points, 2)?;
     for w in points.windows(2) {
@@ -164,19 +168,10 @@ fn check_profile(points: &[[Length; 2]]) -> Result<(), ShapeError> {
             ));
         }
     }
-    if let Some(p) = points.iter().find(|p| p[1].si() < 0.0) {
+    if profile::channel(points).is_none() {
         return Err(bad(
             "points",
-            format!(
-                "depths are measured down from the lid and must not be negative; got {} m",
-                p[1].si()
-            ),
-        ));
-    }
-    if !points.iter().any(|p| p[1].si() > 0.0) {
-        return Err(bad(
-            "points",
-            "every depth is zero: the profile encloses no channel",
+            "every value is zero: the profile encloses no channel",
         ));
     }
     Ok(())
@@ -251,6 +246,15 @@ impl Shape {
             } => tag(9, &[width, height, corner_radius]),
             Shape::Polygon { points } => pts(10, points),
             Shape::Profile { points } => pts(11, points),
+        }
+    }
+
+    /// Notes on how a measured profile was read (sampling, simplification for the mesh,
+    /// surface left out); empty for every other shape.
+    pub fn profile_notes(&self) -> Vec<profile::ProfileNote> {
+        match self {
+            Shape::Profile { points } => profile::profile_notes(points),
+            _ => Vec::new(),
         }
     }
 
