@@ -49,7 +49,11 @@ impl Error {
             Error::Input(_) | Error::Read { .. } | Error::Write { .. } => exit::BAD_INPUT,
             // A channel too short to resolve is a property of the input, named in the message.
             Error::Solve {
-                source: SolveError::StiffChannels { .. } | SolveError::NegligibleChannel { .. },
+                source:
+                    SolveError::StiffChannels { .. }
+                    | SolveError::NegligibleChannel { .. }
+                    | SolveError::Unfactorisable { .. }
+                    | SolveError::PortBalance { .. },
                 ..
             } => exit::BAD_INPUT,
             Error::Solve { .. } => exit::WITHHELD,

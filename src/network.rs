@@ -428,6 +428,15 @@ impl NetworkBuilder {
         let (figures, _) = shape
             .figures_with(&self.numeric)
             .map_err(|e| bad(e.to_string()))?;
+        if !figures.relative_error_estimate.is_finite() {
+            // One mesh only: nothing says how far its figures are off.
+            return Err(bad(format!(
+                "no error estimate could be made: the first mesh already used the node budget \
+                 ({} nodes), so its figures are of unknown accuracy; simplify the outline, or use \
+                 a closed-form shape (rectangle, plates) for a very thin slit",
+                self.numeric.max_nodes
+            )));
+        }
         self.figure_cache.insert(key, figures);
         Ok(figures)
     }

@@ -343,27 +343,6 @@ pub struct Failure {
     pub text: String,
 }
 
-/// Failure classes found by this fuzz whose fix lies outside the input layer (reported, with
-/// minimal reproducers, to the owners of the solver and the section mesher). They are counted
-/// and printed but do not fail the run; any other failure does.
-///
-/// - `unnamed-indefinite`: a refusal "the conductance matrix is not numerically positive
-///   definite (pivot i of n)" names no node or channel (e.g. a rectangle 0.0000001 um wide).
-/// - `infinite-estimate`: a section whose mesh exceeds the node budget on its base level (a
-///   trapezoid 100 m wide and 40 um deep) reports an error estimate of inf, which reaches
-///   the JSON findings as `null` and the table as `inf`.
-pub fn known_open(problem: &str) -> Option<&'static str> {
-    if problem.starts_with("refusal without a place")
-        && problem.contains("not numerically positive definite")
-    {
-        return Some("unnamed-indefinite");
-    }
-    let only_findings = problem.split("; ").all(|p| {
-        p.starts_with("null (NaN or inf) at .findings[") || p == "' inf' in the table output"
-    });
-    (only_findings && !problem.contains(", .")).then_some("infinite-estimate")
-}
-
 /// Counts of a run.
 #[derive(Clone, Debug, Default)]
 pub struct Summary {
@@ -372,8 +351,6 @@ pub struct Summary {
     pub refused: usize,
     pub commands: usize,
     pub failures: Vec<Failure>,
-    /// Failures of a [`known_open`] class.
-    pub known: Vec<Failure>,
 }
 
 /// Whether a refusal says where: a line, a field path, a byte offset, or a named item.
@@ -638,12 +615,9 @@ pub fn run(seed: u64, count: usize, numeric_share: usize) -> Summary {
                 Ok(true) => summary.accepted += 1,
                 Ok(false) => summary.refused += 1,
                 Err((command, problem)) => {
-                    let f = failure(s, case, command, problem, text.as_bytes());
-                    if known_open(&f.problem).is_some() {
-                        summary.known.push(f);
-                    } else {
-                        summary.failures.push(f);
-                    }
+                    summary
+                        .failures
+                        .push(failure(s, case, command, problem, text.as_bytes()));
                 }
             }
         }
@@ -666,23 +640,13 @@ fn failure(s: &Seed, case: usize, command: &'static str, problem: String, text: 
 fn mutated_chips_never_panic_and_every_answer_balances() {
     let summary = run(0x5eed_2026, 5_000, 25);
     eprintln!(
-        "{} cases, {} commands: {} accepted, {} refused, {} failures, {} of known open classes",
+        "{} cases, {} commands: {} accepted, {} refused, {} failures",
         summary.cases,
         summary.commands,
         summary.accepted,
         summary.refused,
-        summary.failures.len(),
-        summary.known.len()
+        summary.failures.len()
     );
-    for f in &summary.known {
-        eprintln!(
-            "known open ({}): {} case {} ({})",
-            known_open(&f.problem).unwrap_or("?"),
-            f.seed,
-            f.case,
-            f.command
-        );
-    }
     // The mutations must leave some chips valid, or the output checks test nothing.
     assert!(summary.accepted > summary.cases / 10, "{summary:?}");
     assert!(summary.refused > summary.cases / 10, "{summary:?}");
@@ -737,25 +701,4 @@ fn the_balance_check_catches_an_unbalanced_junction() {
     let q = doc["channels"][0]["flow_m3_per_s"].as_f64().unwrap();
     doc["channels"][0]["flow_m3_per_s"] = Value::from(q * (1.0 + 1e-7));
     assert!(!balance_problems(&doc, &chip.network).is_empty());
-}
-
-#[test]
-fn only_the_listed_open_classes_are_known() {
-    assert_eq!(
-        known_open("refusal without a place: <stdin>: the conductance matrix is not numerically positive definite (pivot 2 of 2)"),
-        Some("unnamed-indefinite")
-    );
-    assert_eq!(
-        known_open("null (NaN or inf) at .findings[0].value; ' inf' in the table output"),
-        Some("infinite-estimate")
-    );
-    for other in [
-        "null (NaN or inf) at .channels[0].flow_m3_per_s",
-        "null (NaN or inf) at .findings[0].value, .channels[1].reynolds",
-        "refusal without a place: <stdin>: something else",
-        "panic: index out of bounds",
-        "node 'a' (junction): net flow out 1e-12, expected 0e0 (scale 1e-10)",
-    ] {
-        assert_eq!(known_open(other), None, "{other}");
-    }
 }

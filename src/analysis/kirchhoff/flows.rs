@@ -52,7 +52,7 @@ fn stiff_channels(network: &Network, pressures: &[f64], g: &[f64], dead: &[bool]
 
 /// g_k over the larger of the sums of the other conductances at its two ends (infinite when
 /// it is the only channel at both ends).
-fn conductance_ratio(network: &Network, g: &[f64], k: ChannelId) -> f64 {
+pub(super) fn conductance_ratio(network: &Network, g: &[f64], k: ChannelId) -> f64 {
     let c = &network.channels[k];
     let others = |end: NodeId| -> f64 {
         network
@@ -188,4 +188,59 @@ pub fn most_negligible_at(network: &Network, g: &[f64], node: NodeId) -> Option<
         .incident(node)
         .map(|(k, _)| (k, conductance_ratio(network, g, k)))
         .max_by(|a, b| a.1.total_cmp(&b.1))
+}
+
+/// The channel whose conductance stands out most from the channels around it, either way
+/// (largest |ln(g_k / others)|), with that ratio: the likely cause when the matrix cannot be
+/// factorised. `None` for a network without channels.
+pub fn most_extreme_channel(network: &Network, g: &[f64]) -> Option<(ChannelId, f64)> {
+    network
+        .channels
+        .ids()
+        .map(|k| (k, conductance_ratio(network, g, k)))
+        .filter(|(_, r)| r.is_finite() && *r > 0.0)
+        .max_by(|a, b| a.1.ln().abs().total_cmp(&b.1.ln().abs()))
+}
+
+/// The chip's global balance: the flows set at flow ports and the flows entering at pressure
+/// ports (summed over their channels) add up to zero. Returns the miss relative to the
+/// largest port flow when it exceeds [`FLOW_LIMIT`] and the rounding of the pressure ports'
+/// flows (64·ε·Σ g_k·(|p_i| + |p_j|) over their channels); `None` when the balance holds.
+/// Flow ports count with their set values, which are exact by definition.
+pub fn port_balance_miss(
+    network: &Network,
+    pressures: &[f64],
+    g: &[f64],
+    injection: &[f64],
+    flows: &[f64],
+) -> Option<f64> {
+    let mut sum = 0.0;
+    let mut largest = 0.0f64;
+    let mut noise = 0.0;
+    for i in network.nodes.ids() {
+        let inflow = match network.nodes[i].port {
+            Port::Flow(_) => injection[i.0],
+            Port::Pressure(_) => network
+                .incident(i)
+                .map(|(k, _)| {
+                    let c = &network.channels[k];
+                    noise += g[k.0] * (pressures[c.from.0].abs() + pressures[c.to.0].abs());
+                    if c.from == i {
+                        flows[k.0]
+                    } else {
+                        -flows[k.0]
+                    }
+                })
+                .sum(),
+            Port::Junction => continue,
+        };
+        sum += inflow;
+        largest = largest.max(inflow.abs());
+    }
+    let miss = sum.abs();
+    if miss <= 64.0 * f64::EPSILON * noise || largest == 0.0 {
+        return None;
+    }
+    let relative = miss / largest;
+    (relative > FLOW_LIMIT || relative.is_nan()).then_some(relative)
 }

@@ -80,6 +80,30 @@ pub enum SolveError {
         residual: f64,
     },
     #[error(
+        "the conductance matrix cannot be factorised in double precision (pivot {pivot} of {n} not \
+         positive); the likely cause is channel '{channel}', which conducts {ratio:.1e} times as much \
+         as the channels around it, beyond what double precision resolves. {advice}"
+    )]
+    Unfactorisable {
+        channel: String,
+        ratio: f64,
+        /// What to do: depends on whether the channel conducts far more or far less.
+        advice: &'static str,
+        pivot: usize,
+        n: usize,
+    },
+    #[error(
+        "the flows entering and leaving the chip miss their balance by {miss:.1e} of the largest port \
+         flow, beyond what double precision resolves for this network; results withheld. The likely \
+         cause is channel '{channel}', which conducts {ratio:.1e} times as much as the channels \
+         around it. Bring the channels' resistances closer together (realistic lengths and sections)"
+    )]
+    PortBalance {
+        miss: f64,
+        channel: String,
+        ratio: f64,
+    },
+    #[error(
         "the flows do not balance to {limit:e} at node '{node}' (net flow {residual:e} of the largest \
          flow through it); results withheld. Channel resistances around it may span too many orders \
          of magnitude for double precision"
