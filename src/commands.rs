@@ -430,6 +430,7 @@ pub fn tune(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
 /// targets are judged again on the copy as written (rounded), read back and solved.
 pub fn size(req: &DesignRequest<'_>) -> Result<Outcome, Error> {
     let chip = req.chip.load()?;
+    crate::copies::check_profile_edits(&chip)?;
     let solver = analysis::Solver::new(&chip.network).map_err(|source| Error::Solve {
         origin: chip.source.origin.clone(),
         source,

@@ -174,6 +174,19 @@ fn is_profile(net: &crate::network::Network, ch: &crate::network::Channel) -> bo
     )
 }
 
+/// Refuse, before any sizing work, a sized profile width whose copy could not be written (a
+/// profile section not inline in its channel with a `width_scale:` key): the same edit
+/// `sized_edits` will make, tried on the chip as read.
+pub fn check_profile_edits(chip: &Chip) -> Result<(), Error> {
+    for v in &chip.design.sizes {
+        let ch = &chip.network.channels[v.channel];
+        if v.dim == SizeDim::Width && is_profile(&chip.network, ch) {
+            profile_edit(chip, &ch.name, 1.0, None, 6)?;
+        }
+    }
+    Ok(())
+}
+
 /// The edit that sizes a measured profile's span to `width` [m] (rounded to `step`, else
 /// written to `digits` significant digits): its inline section's `width_scale`, set to
 /// width / raw span. The raw span (the positions as the file or points give them) is read

@@ -186,3 +186,21 @@ fn width_scale_must_be_positive_and_only_on_profiles() {
     assert_eq!(o.status.code(), Some(2), "{err}");
     assert!(err.contains("does not take 'width_scale'"), "{err}");
 }
+
+#[test]
+fn a_sized_profile_without_a_width_scale_key_is_refused_before_sizing() {
+    // The copy changes the `width_scale:` key; without one there is nothing to rewrite, and
+    // that is said at once (exit 2), not after the sizing has run.
+    let dir = tempfile::tempdir().unwrap();
+    write_file(dir.path(), "scan.csv", SCAN);
+    let chip = write_file(
+        dir.path(),
+        "chip.yaml",
+        &CHIP.replace(", width_scale: 1}", "}"),
+    );
+    let o = rillnet().arg("size").arg(&chip).output().unwrap();
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert_eq!(o.status.code(), Some(2), "{err}");
+    assert!(err.contains("width_scale"), "{err}");
+    assert!(o.stdout.is_empty());
+}
