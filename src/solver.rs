@@ -247,6 +247,27 @@ impl Cholesky<'_> {
     }
 }
 
+/// Solve the symmetric positive definite `n` × `n` system given by its lower-triangle
+/// `positions` and `entries` (duplicates summed) in place on `rhs`, by sparse Cholesky.
+pub fn solve_spd_positions(
+    n: usize,
+    positions: &[(usize, usize)],
+    entries: &[f64],
+    rhs: &mut [f64],
+) -> Result<(), SolverError> {
+    if n == 0 {
+        return Ok(());
+    }
+    let (pattern, slots) = SymmetricPattern::from_positions(n, positions);
+    let mut values = vec![0.0; pattern.nnz()];
+    for (s, v) in slots.iter().zip(entries) {
+        values[*s] += v;
+    }
+    let sym = SymbolicCholesky::analyse(&pattern, Parallelism::Sequential)?;
+    sym.factorize(&pattern, &values)?.solve_in_place(rhs)?;
+    Ok(())
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

@@ -16,7 +16,7 @@
 use super::super::kirchhoff::{
     conductances, drive_values, Factor, FlowSolution, SolveError, Solver,
 };
-use super::size::{dimension, with_dimension};
+use super::dimensions::{dimension, with_dimension};
 use super::targets::Row;
 use crate::network::{ChannelId, Network};
 use crate::section::numeric::NumericOptions;

@@ -20,6 +20,7 @@
 //! ([`Solver::factorizations`](super::kirchhoff::Solver::factorizations)) show what was done.
 
 mod adjoint;
+mod dimensions;
 mod limits;
 mod serpentine;
 mod size;
@@ -34,12 +35,10 @@ pub use adjoint::{
     dlog_resistance, dlog_resistance_numeric, sensitivities, sensitivities_with, NumericDerivative,
     Sensitivity, DERIVATIVE_TOLERANCE,
 };
+pub use dimensions::{dimension, with_dimension};
 pub use limits::{ActiveLimit, LimitHandling, LimitKind, ACTIVE_TOL, LIMIT_MARGIN};
 pub use serpentine::{serpentine, Serpentine};
-pub use size::{
-    dimension, size, size_with, size_with_options, with_dimension, SizeOptions, SizeResult,
-    SizedDim,
-};
+pub use size::{size, size_with, size_with_options, SizeOptions, SizeResult, SizedDim};
 pub use targets::{evaluate, NotControllable, TargetOutcome, TargetQuantity};
 pub use tune::{
     tune, tune_with, tune_with_options, FreeDirection, Setting, TuneOptions, TuneResult,

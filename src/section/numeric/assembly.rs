@@ -4,27 +4,8 @@
 
 use super::element::element_matrices;
 use super::mesh::Mesh;
-use super::{wall, NumericError};
+use super::{wall, NumericError, Solved};
 use crate::section::outline::Point;
-use crate::solver::{Parallelism, SymbolicCholesky, SymmetricPattern};
-use std::collections::HashMap;
-
-/// The solution on one mesh (in the frame).
-pub(super) struct Solved {
-    /// Conductance factor K = ∫φ dA = fᵀφ.
-    pub(super) k: f64,
-    pub(super) area: f64,
-    pub(super) phi: Vec<f64>,
-    /// Nodal wall shear per gradient on each wall node.
-    pub(super) wall_shear: HashMap<usize, f64>,
-}
-
-impl Solved {
-    /// Wall shear per gradient at node `i` (0 off the wall).
-    pub(super) fn shear_at(&self, i: usize) -> f64 {
-        self.wall_shear.get(&i).copied().unwrap_or(0.0)
-    }
-}
 
 /// Which nodes are unknown: wall nodes are fixed at φ = 0, the others numbered in order.
 struct Numbering {
@@ -108,27 +89,6 @@ fn assemble(m: &Mesh, num: &Numbering) -> Assembled {
     }
 }
 
-/// Solve the symmetric positive definite `n` × `n` system given by its lower-triangle
-/// `positions` and `entries` (duplicates summed) in place on `rhs`, by sparse Cholesky.
-pub(super) fn solve_symmetric(
-    n: usize,
-    positions: &[(usize, usize)],
-    entries: &[f64],
-    rhs: &mut [f64],
-) -> Result<(), NumericError> {
-    if n == 0 {
-        return Ok(());
-    }
-    let (pattern, slots) = SymmetricPattern::from_positions(n, positions);
-    let mut values = vec![0.0; pattern.nnz()];
-    for (s, v) in slots.iter().zip(entries) {
-        values[*s] += v;
-    }
-    let sym = SymbolicCholesky::analyse(&pattern, Parallelism::Sequential)?;
-    sym.factorize(&pattern, &values)?.solve_in_place(rhs)?;
-    Ok(())
-}
-
 /// Solve ∇²φ = −1, φ = 0 on the wall, on mesh `m`.
 pub(super) fn solve_on(m: &Mesh) -> Result<Solved, NumericError> {
     let n = m.nodes.len();
@@ -138,7 +98,7 @@ pub(super) fn solve_on(m: &Mesh) -> Result<Solved, NumericError> {
         .filter(|&i| !num.fixed[i])
         .map(|i| sys.load[i])
         .collect();
-    solve_symmetric(num.count, &sys.positions, &sys.entries, &mut x)?;
+    crate::solver::solve_spd_positions(num.count, &sys.positions, &sys.entries, &mut x)?;
     let mut phi = vec![0.0; n];
     for i in 0..n {
         if !num.fixed[i] {

@@ -14,9 +14,9 @@
 //! algorithm for Poisson's equation", SIAM J. Numer. Anal. 33): the fewest triangles whose η²
 //! make up the fraction [`BULK`] of the total.
 
-use super::assembly::Solved;
 use super::element::{gradient, laplacian};
 use super::mesh::Mesh;
+use super::Solved;
 use std::collections::HashMap;
 
 /// Dörfler's bulk fraction θ.

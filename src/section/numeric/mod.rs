@@ -173,6 +173,23 @@ pub struct NumericSection {
     pub refinements: usize,
 }
 
+/// The solution on one mesh (in the frame).
+struct Solved {
+    /// Conductance factor K = ∫φ dA = fᵀφ.
+    k: f64,
+    area: f64,
+    phi: Vec<f64>,
+    /// Nodal wall shear per gradient on each wall node.
+    wall_shear: std::collections::HashMap<usize, f64>,
+}
+
+impl Solved {
+    /// Wall shear per gradient at node `i` (0 off the wall).
+    fn shear_at(&self, i: usize) -> f64 {
+        self.wall_shear.get(&i).copied().unwrap_or(0.0)
+    }
+}
+
 /// Solve the Poisson problem over `outline` to the requested accuracy.
 pub fn solve(outline: &Outline, opts: NumericOptions) -> Result<NumericSection, NumericError> {
     refine::solve_to_tolerance(outline, opts)

@@ -35,8 +35,9 @@
 //! K estimate lay 2.5 to 59 times above the true error; on 7 smooth shapes the shear estimate
 //! lay 3.3 to 36 times above the true error of the pointwise maximum.
 
-use super::assembly::{solve_on, Solved};
+use super::assembly::solve_on;
 use super::mesh::{self, Frame, Linear, Mesh};
+use super::Solved;
 use super::{
     indicator, wall, FieldMesh, NumericError, NumericOptions, NumericSection, CORNER_EXCLUSION,
     ROBUST_EXCLUDED_FRACTION,

@@ -3,11 +3,12 @@
 //! next to it (refined on every level), the robust maximum (99th percentile by wall length),
 //! and the samples, perimeter and total flux along the walls.
 
-use super::assembly::{solve_symmetric, Solved};
 use super::element::{edge_mass, edge_shape, edge_tangent, wall_element};
 use super::mesh::{Frame, Mesh};
+use super::Solved;
 use super::{NumericError, WallSample};
 use crate::section::outline::Point;
+use crate::solver::solve_spd_positions;
 use std::collections::HashMap;
 
 /// The quadratic elements of a wall loop (vertex, edge node, vertex, ...; closed implicitly),
@@ -68,7 +69,7 @@ fn loop_shear(m: &Mesh, w: &[usize], r: &HashMap<usize, f64>) -> Result<Vec<f64>
         }
     }
     let mut rhs: Vec<f64> = w.iter().map(|i| r.get(i).copied().unwrap_or(0.0)).collect();
-    solve_symmetric(len, &pos, &val, &mut rhs)?;
+    solve_spd_positions(len, &pos, &val, &mut rhs)?;
     Ok(rhs)
 }
 
