@@ -55,12 +55,37 @@ pub fn finding_text(chip: &Chip, f: &Finding) -> String {
              requested {limit:.1e}, within the mesh budget; its resistance and shear are that \
              uncertain (a smoother outline or a looser section_tolerance converges)"
         ),
-        FindingKind::SingularCorners { value, limit, .. } => format!(
-            "{at}: {value:.0} re-entrant corner(s): the wall shear at a sharp inside corner is \
-             unbounded, so the maximum given leaves out {:.2} um around each; real walls are \
-             rounded — model the corner with a fillet radius to know the shear there",
-            limit * 1e6
-        ),
+        FindingKind::SingularCorners {
+            section,
+            value,
+            limit,
+        } => {
+            let sharpest = match chip.network.sections[section].figures.singular_corner {
+                Some(p) => format!(
+                    ", the sharpest at ({}, {}) um",
+                    super::fmt_sig(p[0] * 1e6, 4),
+                    super::fmt_sig(p[1] * 1e6, 4)
+                ),
+                None => String::new(),
+            };
+            let advice = if chip.network.sections[section].shape.kind() == "profile" {
+                "On a measured wall these are kinks between samples: the robust maximum (the \
+                 shear exceeded on 1 % of the wall, `rillnet section`) is the steadier figure"
+                    .to_string()
+            } else {
+                format!(
+                    "Real corners are rounded: to know the shear there, give the outline a \
+                     fillet of the radius your process leaves (for a start, {} um)",
+                    super::fmt_sig(limit * 1e6, 3)
+                )
+            };
+            format!(
+                "{at}: {value:.0} re-entrant corner(s){sharpest}: the wall shear at a sharp \
+                 inside corner is unbounded, so the maximum given leaves out {} um around each. \
+                 {advice}",
+                super::fmt_sig(limit * 1e6, 3)
+            )
+        }
         FindingKind::ShortForEntrance { value, limit, .. } => format!(
             "{at}: length {:.0} um is under {ENTRANCE_LENGTHS} entrance lengths ({:.0} um each); \
              the flow there is not fully developed and its resistance and shear are underestimated",
