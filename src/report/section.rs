@@ -4,6 +4,7 @@ use super::csv::{n, num, Tables};
 use super::fmt_sig;
 use crate::outcome::SectionOutcome;
 use crate::section::numeric::CORNER_EXCLUSION;
+use crate::section::SectionModel;
 use serde::Serialize;
 use std::io;
 
@@ -50,10 +51,10 @@ fn json_section(o: &SectionOutcome) -> JsonSection {
     JsonSection {
         schema_version: super::json::SCHEMA_VERSION,
         shape: shape.kind(),
-        method: if numeric.is_some() {
-            "numerical (P2 finite elements)"
-        } else {
-            "closed form"
+        method: match f.model {
+            SectionModel::Numerical => "numerical (P2 finite elements)",
+            SectionModel::ClosedForm => "closed form",
+            SectionModel::ThinFilm => "thin-film limit (lubrication)",
         },
         viscosity_pa_s: viscosity,
         area_m2: f.area,
@@ -178,10 +179,11 @@ pub fn section_report(o: &SectionOutcome) -> String {
     out.push_str(&format!(
         "Section: {} ({})\n",
         shape.kind(),
-        if numeric.is_some() {
-            "numerical: quadratic finite elements"
-        } else {
-            "closed form"
+        match f.model {
+            SectionModel::Numerical => "numerical: quadratic finite elements",
+            SectionModel::ClosedForm => "closed form",
+            SectionModel::ThinFilm =>
+                "thin-film limit: too thin to mesh, each slice taken as plane Poiseuille flow",
         }
     ));
     let rows: Vec<(&str, String)> = vec![
@@ -229,10 +231,13 @@ pub fn section_report(o: &SectionOutcome) -> String {
         ),
         (
             "relative error estimate (K)",
-            if numeric.is_some() {
-                estimate(f.relative_error_estimate)
-            } else {
-                "0 (exact)".into()
+            match f.model {
+                SectionModel::ClosedForm => "0 (exact)".into(),
+                SectionModel::Numerical => estimate(f.relative_error_estimate),
+                SectionModel::ThinFilm => format!(
+                    "{} (the ends of the slit, about one gap wide, are left out)",
+                    estimate(f.relative_error_estimate)
+                ),
             },
         ),
     ];

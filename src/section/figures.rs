@@ -30,6 +30,20 @@ pub struct SectionFigures {
     /// The re-entrant corner with the largest interior angle [m] (all of them are listed in
     /// [`NumericSection::singular_corners`]).
     pub singular_corner: Option<Point>,
+    /// How the figures were obtained.
+    pub model: SectionModel,
+}
+
+/// How a section's figures were obtained.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum SectionModel {
+    /// A closed form (exact).
+    ClosedForm,
+    /// The numerical (finite-element) solution.
+    Numerical,
+    /// The thin-film (lubrication) limit for an outline too thin to mesh (see
+    /// [`super::thin`]).
+    ThinFilm,
 }
 
 impl SectionFigures {
@@ -45,6 +59,7 @@ impl SectionFigures {
         max_wall_shear_singular: false,
         singular_corner_count: 0,
         singular_corner: None,
+        model: SectionModel::ClosedForm,
     };
 }
 
@@ -66,6 +81,7 @@ impl SectionFigures {
                 .iter()
                 .max_by(|a, b| a.interior_angle.total_cmp(&b.interior_angle))
                 .map(|c| c.at),
+            model: SectionModel::Numerical,
         }
     }
 

@@ -16,7 +16,8 @@
 //! Layout: [`Shape`] and its checks live in `shape`; each family of shapes has one file with
 //! its closed form (where there is one) and its outline (`circular`, `rectangular`,
 //! `triangular`, `etched`, `profile`); [`SectionFigures`] in `figures`; [`elliptic_e`] in
-//! `special`; the numerical solver in [`numeric`].
+//! `special`; the numerical solver in [`numeric`], and the thin-film limit for outlines too
+//! thin to mesh in [`thin`].
 
 pub mod numeric;
 pub mod outline;
@@ -28,9 +29,10 @@ mod profile;
 mod rectangular;
 mod shape;
 mod special;
+pub mod thin;
 mod triangular;
 
-pub use figures::SectionFigures;
+pub use figures::{SectionFigures, SectionModel};
 pub use profile::{ProfileNote, MAX_MESH_POINTS, MIN_PROFILE_POINTS, UNEVEN_GAP_RATIO};
 pub use shape::{GeometryKey, Shape, ShapeError};
 pub use special::elliptic_e;

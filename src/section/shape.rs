@@ -4,7 +4,7 @@
 
 use super::numeric::{self, NumericOptions, NumericSection};
 use super::outline::Outline;
-use super::{circular, etched, profile, rectangular, triangular, SectionFigures};
+use super::{circular, etched, profile, rectangular, thin, triangular, SectionFigures};
 use crate::units::Length;
 
 /// A cross-section shape with its dimensions (SI inside).
@@ -383,8 +383,15 @@ impl Shape {
         if let Some(f) = self.analytic_figures() {
             return Ok((f, None));
         }
-        let sol = self.solve_numeric(opts)?;
-        Ok((SectionFigures::from_numeric(&sol), Some(sol)))
+        let outline = self.outline();
+        match numeric::solve(&outline, *opts) {
+            Ok(sol) => Ok((SectionFigures::from_numeric(&sol), Some(sol))),
+            // Too thin to mesh: the thin-film limit, when the outline allows it.
+            Err(e @ numeric::NumericError::TooThin { .. }) => thin::thin_figures(&outline)
+                .map(|f| (f, None))
+                .ok_or_else(|| bad("shape", e.to_string())),
+            Err(e) => Err(bad("shape", e.to_string())),
+        }
     }
 
     /// Solve any shape numerically (analytic ones too, for verification and plots).
