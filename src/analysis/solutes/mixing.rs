@@ -59,7 +59,7 @@ pub struct Unmixed {
 /// (fraction of the width, concentration), after Fourier number `fo` (series above).
 pub fn mixed_fraction(streams: &[(f64, f64)], fo: f64) -> f64 {
     let total: f64 = streams.iter().map(|s| s.0).sum();
-    if !(total > 0.0) {
+    if total.is_nan() || total <= 0.0 {
         return 1.0;
     }
     let mean = streams.iter().map(|s| s.0 * s.1).sum::<f64>() / total;
@@ -67,10 +67,10 @@ pub fn mixed_fraction(streams: &[(f64, f64)], fo: f64) -> f64 {
         .iter()
         .map(|s| s.0 / total * (s.1 - mean).powi(2))
         .sum::<f64>();
-    if !(var0 > 0.0) {
+    if var0.is_nan() || var0 <= 0.0 {
         return 1.0;
     }
-    if !(fo > 0.0) {
+    if fo.is_nan() || fo <= 0.0 {
         return 0.0;
     }
     let pi = std::f64::consts::PI;

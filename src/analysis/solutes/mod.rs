@@ -4,11 +4,16 @@
 //! that flow in mix completely (mass balance):
 //!
 //! ```text
-//! (Σ_in Q) · c_i  −  Σ_in Q_k · c_from(k)  =  Q_ext · s_i
+//! (Σ_out Q) · c_i  −  Σ_in Q_k · c_from(k)  =  Q_ext · s_i
 //! ```
 //!
-//! where the sums run over the channels carrying flow *into* node i, `Q_ext ≥ 0` is the flow
-//! entering the chip at i (a port letting fluid in) and `s_i` its concentration. One such
+//! where `Σ_in` runs over the channels carrying flow *into* node i, `Σ_out` over everything
+//! leaving it (channels, and the chip at an outlet), `Q_ext ≥ 0` is the flow entering the chip
+//! at i (a port letting fluid in) and `s_i` its concentration. With balanced flows Σ_out Q =
+//! Σ_in Q + Q_ext, the brief form (Σ_in Q)·c_i = …; writing the outflow (the conservative
+//! form of finite volumes) makes the solute balance telescope exactly over the network even
+//! where the flows balance only to rounding (to 1e-9 at worst, see `kirchhoff::flows`): what
+//! enters the chip leaves it, to rounding of the sums. One such
 //! sparse linear system per species. In a network of resistances every flow runs from higher to
 //! lower pressure, so the directed flow graph has no cycle and the system is triangular: it is
 //! solved by a sweep in topological order. Flow fields with recirculation (a directed cycle) are
@@ -37,8 +42,10 @@ pub const BALANCE_LIMIT: f64 = 1e-9;
 pub enum SoluteError {
     #[error("the solute balance of a recirculating part of the network could not be solved ({0})")]
     Factorisation(String),
-    #[error("the solute balance at node {node} is not met after the solve (relative residual {residual:.1e})")]
-    Unbalanced { node: usize, residual: f64 },
+    /// `node` is the node's name in quotes (its index in the flow graph when no network is
+    /// known).
+    #[error("the solute balance at node {node} is not met after the solve (relative residual {residual:.1e}); results withheld")]
+    Unbalanced { node: String, residual: f64 },
 }
 
 /// How the well-mixed balances were solved.
@@ -59,6 +66,8 @@ pub struct FlowGraph {
     inflow: Vec<(usize, f64)>,
     /// Flow entering the chip at each node [m³/s] (0 where none enters).
     external: Vec<f64>,
+    /// Everything leaving each node: its channels' outflows and the flow leaving the chip.
+    outflow: Vec<f64>,
     /// Nodes of the strongly connected parts, part after part, upstream parts first.
     parts: Vec<usize>,
     part_start: Vec<usize>,
@@ -76,8 +85,10 @@ impl FlowGraph {
             _ => None,
         });
         let mut count = vec![0usize; nodes + 1];
-        for (_, b, _) in directed.clone() {
+        let mut outflow: Vec<f64> = into_chip.iter().map(|&q| (-q).max(0.0)).collect();
+        for (a, b, q) in directed.clone() {
             count[b + 1] += 1;
+            outflow[a] += q;
         }
         for i in 0..nodes {
             count[i + 1] += count[i];
@@ -111,12 +122,14 @@ impl FlowGraph {
             start,
             inflow,
             external: into_chip.iter().map(|&q| q.max(0.0)).collect(),
+            outflow,
             parts,
             part_start,
         }
     }
 
-    /// The flow graph of a solved network: channel flows and the ports' net inflows.
+    /// The flow graph of a solved network: channel flows and the ports' net inflows (the
+    /// residual at junctions is not an inflow).
     pub fn of_network(network: &Network, flows: &[f64], into_chip: &[f64]) -> FlowGraph {
         let edges: Vec<(usize, usize, f64)> = network
             .channels
@@ -124,7 +137,17 @@ impl FlowGraph {
             .zip(flows)
             .map(|(c, &q)| (c.from.0, c.to.0, q))
             .collect();
-        FlowGraph::new(network.nodes.len(), &edges, into_chip)
+        // Only ports let fluid in: a junction's net inflow is a rounding residual.
+        let into: Vec<f64> = network
+            .nodes
+            .iter()
+            .zip(into_chip)
+            .map(|(n, &q)| match n.port {
+                crate::network::Port::Junction => 0.0,
+                _ => q,
+            })
+            .collect();
+        FlowGraph::new(network.nodes.len(), &edges, &into)
     }
 
     /// (upstream node, Q) of the channels flowing into `node`.
@@ -140,6 +163,15 @@ impl FlowGraph {
     /// Total flow into `node`: channels and outside.
     pub fn total_inflow(&self, node: usize) -> f64 {
         self.external[node] + self.inflows(node).iter().map(|x| x.1).sum::<f64>()
+    }
+
+    /// What node i's concentration is carried away by: its total outflow, or its inflow
+    /// where nothing measurable leaves (a rounding residual).
+    fn carrier(&self, node: usize) -> f64 {
+        match self.outflow[node] {
+            q if q > 0.0 => q,
+            _ => self.total_inflow(node),
+        }
     }
 
     /// Whether the flow recirculates somewhere (a part with more than one node).
@@ -167,8 +199,8 @@ pub fn well_mixed(
     for w in g.part_start.windows(2) {
         let part = &g.parts[w[0]..w[1]];
         if let [i] = *part {
-            let total = g.total_inflow(i);
-            if total > 0.0 {
+            let total = g.carrier(i);
+            if g.total_inflow(i) > 0.0 && total > 0.0 {
                 let carried: f64 = g
                     .inflows(i)
                     .iter()
@@ -198,7 +230,7 @@ fn solve_part(
     let mut rhs = Mat::<f64>::zeros(m, 1);
     let mut fed = 0.0;
     for (k, &i) in part.iter().enumerate() {
-        triplets.push(Triplet::new(k, k, g.total_inflow(i)));
+        triplets.push(Triplet::new(k, k, g.carrier(i)));
         rhs[(k, 0)] = g.external[i] * source[i];
         fed += g.external[i];
         for &(u, q) in g.inflows(i) {
@@ -232,7 +264,7 @@ fn solve_part(
 fn check_balances(g: &FlowGraph, source: &[f64], c: &[Option<f64>]) -> Result<(), SoluteError> {
     for (i, ci) in c.iter().enumerate() {
         let Some(ci) = *ci else { continue };
-        let out = g.total_inflow(i) * ci;
+        let out = g.carrier(i) * ci;
         let mut scale = out.abs() + (g.external[i] * source[i]).abs();
         let mut r = out - g.external[i] * source[i];
         for &(u, q) in g.inflows(i) {
@@ -242,7 +274,10 @@ fn check_balances(g: &FlowGraph, source: &[f64], c: &[Option<f64>]) -> Result<()
         }
         let residual = if scale > 0.0 { r.abs() / scale } else { 0.0 };
         if residual.is_nan() || residual > BALANCE_LIMIT {
-            return Err(SoluteError::Unbalanced { node: i, residual });
+            return Err(SoluteError::Unbalanced {
+                node: format!("#{i}"),
+                residual,
+            });
         }
     }
     Ok(())
@@ -285,7 +320,17 @@ pub fn solve(
     let g = FlowGraph::of_network(network, flows, into_chip);
     let mut fields = Vec::with_capacity(loads.len());
     for load in loads {
-        let (nodes, _) = well_mixed(&g, load.source)?;
+        let (nodes, _) = well_mixed(&g, load.source).map_err(|e| match e {
+            SoluteError::Unbalanced { node, residual } => SoluteError::Unbalanced {
+                node: node
+                    .strip_prefix('#')
+                    .and_then(|i| i.parse::<usize>().ok())
+                    .and_then(|i| network.nodes.get(i))
+                    .map_or(node.clone(), |n| format!("'{}'", n.name)),
+                residual,
+            },
+            e => e,
+        })?;
         let channels = network
             .channels
             .iter()
