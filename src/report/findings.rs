@@ -70,6 +70,18 @@ pub fn finding_text(chip: &Chip, f: &Finding) -> String {
         FindingKind::NotMixed {
             junction,
             species,
+            fourier: 0.0,
+            ..
+        } => format!(
+            "{at}: the '{}' streams that meet at node '{}' split again there at once, before \
+             they can mix: the well-mixed concentrations downstream are wrong — put a mixing \
+             channel (a serpentine) between the junction and the split",
+            chip.species.get(species).map_or("?", |s| s.name.as_str()),
+            chip.network.nodes[junction].name,
+        ),
+        FindingKind::NotMixed {
+            junction,
+            species,
             fourier,
             value,
             limit,
