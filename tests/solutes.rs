@@ -490,3 +490,114 @@ fn streams_of_equal_concentration_need_no_mixing() {
     let (chip, state) = load(&text);
     assert!(not_mixed(&chip, &state).is_empty());
 }
+
+// ---------------------------------------------------------------------------------------
+// The chip file and the outputs
+// ---------------------------------------------------------------------------------------
+
+/// The error of a chip text (it must be refused).
+fn refusal(text: &str) -> String {
+    parse_chip(text, "chip.yaml", Syntax::Yaml)
+        .map(|_| ())
+        .unwrap_err()
+        .to_string()
+}
+
+#[test]
+fn bad_species_input_is_located() {
+    let cases: [(&str, &str, &str); 7] = [
+        (
+            "drug: 10 uM, dye: 1}",
+            "dreg: 10 uM, dye: 1}",
+            "chip.yaml:9:44:",
+        ),
+        ("drug: 10 uM, dye: 1}", "drug: -3 uM, dye: 1}", "negative"),
+        (
+            "drug: {diffusivity: 5e-10 m^2/s}",
+            "drug: {}",
+            "needs a diffusion coefficient",
+        ),
+        ("dye: 1}", "dye: 1.5}", "between 0 and 1"),
+        (
+            "b: {pressure: 70 mbar, concentrations: {drug: 2 uM}}",
+            "b: {pressure: 70 mbar, concentrations: {drug: 2 ug/mL}}",
+            "one measure",
+        ),
+        ("t: {}", "t: {concentrations: {drug: 1 uM}}", "junction"),
+        (
+            "drug: {diffusivity: 5e-10 m^2/s}",
+            "drug: {diffusivity: -5e-10 m^2/s}",
+            "diffusion coefficient",
+        ),
+    ];
+    for (from, to, expected) in cases {
+        assert!(Y.contains(from), "{from}");
+        let e = refusal(&Y.replacen(from, to, 1));
+        assert!(e.contains(expected), "{to}: {e}");
+        // Every refusal names the file and a line.
+        assert!(e.starts_with("chip.yaml:"), "{e}");
+    }
+    let e = refusal(&Y.replacen("drug: 10 uM, dye: 1}", "dreg: 10 uM, dye: 1}", 1));
+    assert!(
+        e.contains("nodes.a.concentrations.dreg") && e.contains("unknown species 'dreg'"),
+        "{e}"
+    );
+}
+
+#[test]
+fn json_and_csv_carry_concentrations_only_with_species() {
+    let dir = tempfile::tempdir().unwrap();
+    let with = common::write_file(dir.path(), "y.yaml", Y);
+    let doc = common::json_of(&with);
+    let t = doc["nodes"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|n| n["name"] == "t")
+        .unwrap();
+    let q1 = common::channel_flow(&doc, "c1");
+    let q2 = common::channel_flow(&doc, "c2");
+    // Mass balance, closed form, through the command line.
+    let drug = t["concentrations_mol_per_m3"]["drug"].as_f64().unwrap();
+    approx::assert_relative_eq!(
+        drug,
+        (q1 * 10e-3 + q2 * 2e-3) / (q1 + q2),
+        max_relative = 1e-12
+    );
+    assert!(t["concentrations"]["dye"].as_f64().is_some());
+    // The stagnant stub has no well-mixed value: the species is left out of its map.
+    let stub = doc["channels"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|c| c["name"] == "stub")
+        .unwrap();
+    assert!(stub["concentrations_mol_per_m3"]
+        .as_object()
+        .unwrap()
+        .is_empty());
+    assert_eq!(doc["species"][1]["measure"], "fraction");
+    // Without species none of the keys appear.
+    let plain = Y
+        .replace(
+            "species:\n  drug: {diffusivity: 5e-10 m^2/s}\n  dye: {diffusivity: 40 um^2/s}\n",
+            "",
+        )
+        .replace(", concentrations: {drug: 10 uM, dye: 1}", "")
+        .replace(", concentrations: {drug: 2 uM}", "");
+    let without = common::write_file(dir.path(), "plain.yaml", &plain);
+    let doc = common::json_of(&without);
+    assert!(doc.get("species").is_none());
+    assert!(doc["nodes"][0].get("concentrations_mol_per_m3").is_none());
+    let out = common::rillnet()
+        .args(["solve", "--format", "csv"])
+        .arg(&with)
+        .output()
+        .unwrap();
+    let text = String::from_utf8(out.stdout).unwrap();
+    let header = text.lines().next().unwrap();
+    assert!(
+        header.ends_with("concentration_drug_mol_per_m3,concentration_dye"),
+        "{header}"
+    );
+}
