@@ -128,11 +128,13 @@ fn meeting(g: &FlowGraph, field: &Field, source: &[f64], node: usize) -> Option<
 
 /// Follow the flow from `node` out through `first` along pass-through nodes: (the last
 /// channel, Σ t/w² [s/m²], whether the chain ends at a split).
+/// `widths` caches each section's overall width (computed from its outline once).
 fn chain(
     network: &Network,
     flows: &[f64],
     g: &FlowGraph,
     first: ChannelId,
+    widths: &mut [Option<f64>],
 ) -> (ChannelId, f64, bool) {
     let mut channel = first;
     let mut sum = 0.0;
@@ -140,7 +142,7 @@ fn chain(
         let c = &network.channels[channel];
         let s = &network.sections[c.section];
         let q = flows[channel.0].abs();
-        let w = s.shape.overall_width();
+        let w = *widths[c.section.0].get_or_insert_with(|| s.shape.overall_width());
         sum += s.figures.area * c.length.si() / q / (w * w);
         let down = if flows[channel.0] > 0.0 {
             c.to.0
@@ -170,6 +172,7 @@ pub(super) fn unmixed(
     fields: &[Field],
 ) -> Vec<Unmixed> {
     let mut out: Vec<Unmixed> = Vec::new();
+    let mut widths = vec![None; network.sections.len()];
     for node in 0..network.nodes.len() {
         let met: Vec<(usize, Vec<(f64, f64)>)> = fields
             .iter()
@@ -185,7 +188,7 @@ pub(super) fn unmixed(
             let (last, geometric, feeds_split) = if outs.len() >= 2 {
                 (first, 0.0, true)
             } else {
-                chain(network, flows, g, first)
+                chain(network, flows, g, first, &mut widths)
             };
             if !feeds_split {
                 continue;
