@@ -44,6 +44,7 @@ fn main() {
             },
             network,
             design: Default::default(),
+            species: Vec::new(),
             layout: DrawnLayout::default(),
             notes: Vec::new(),
         };

@@ -96,14 +96,46 @@ pub struct SolveRequest<'a> {
     pub sensitivity: SensitivityChoice,
 }
 
-/// Load a chip and solve it, mapping a failed solve to [`Error::Solve`].
+/// Load a chip and solve it (flows, then the solutes it declares), mapping a failed solve
+/// to an error.
 fn load_and_solve(input: &ChipInput<'_>) -> Result<(Chip, SteadyState), Error> {
     let chip = input.load()?;
-    let state = analysis::steady_state(&chip.network).map_err(|source| Error::Solve {
+    let mut state = analysis::steady_state(&chip.network).map_err(|source| Error::Solve {
         origin: chip.source.origin.clone(),
         source,
     })?;
+    state.solutes = solve_solutes(&chip, &state)?;
     Ok((chip, state))
+}
+
+/// Well-mixed concentrations of the chip's species (none declared: `None`).
+pub fn solve_solutes(
+    chip: &Chip,
+    state: &SteadyState,
+) -> Result<Option<analysis::solutes::Solutes>, Error> {
+    if chip.species.is_empty() {
+        return Ok(None);
+    }
+    let loads: Vec<analysis::solutes::Load<'_>> = chip
+        .species
+        .iter()
+        .map(|s| analysis::solutes::Load {
+            diffusivity: s.diffusivity.si(),
+            source: &s.inlet,
+        })
+        .collect();
+    let flows: Vec<f64> = state.channels.iter().map(|c| c.flow).collect();
+    analysis::solutes::solve(
+        &chip.network,
+        &flows,
+        &state.solution.node_net_inflow,
+        &loads,
+    )
+    .map(Some)
+    .map_err(|source| Error::Solutes {
+        origin: chip.source.origin.clone(),
+        source,
+    })
 }
 
 /// Draw the shear-margin chart of a solved chip into a new picture file.

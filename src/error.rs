@@ -24,6 +24,11 @@ pub enum Error {
         origin: String,
         source: crate::analysis::design::DesignError,
     },
+    #[error("{}: {source}", origin)]
+    Solutes {
+        origin: String,
+        source: crate::analysis::solutes::SoluteError,
+    },
 }
 
 /// The command line's exit codes.
@@ -56,7 +61,7 @@ impl Error {
                     | SolveError::PortBalance { .. },
                 ..
             } => exit::BAD_INPUT,
-            Error::Solve { .. } => exit::WITHHELD,
+            Error::Solve { .. } | Error::Solutes { .. } => exit::WITHHELD,
             Error::Design { source, .. } => match source {
                 crate::analysis::design::DesignError::Solve(_) => exit::WITHHELD,
                 _ => exit::BAD_INPUT,

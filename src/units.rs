@@ -20,6 +20,9 @@ pub enum Dimension {
     VolumeFlow,
     Viscosity,
     Density,
+    Diffusivity,
+    Concentration,
+    MassConcentration,
     Temperature,
     Angle,
 }
@@ -36,6 +39,9 @@ impl Dimension {
             Dimension::VolumeFlow => (1e-30, 1.0),
             Dimension::Viscosity => (1e-7, 1e7),
             Dimension::Density => (1e-3, 1e5),
+            Dimension::Diffusivity => (1e-18, 1e-3),
+            Dimension::Concentration => (1e-18, 1e5),
+            Dimension::MassConcentration => (1e-18, 1e4),
             Dimension::Temperature => (0.0, 1e4),
             Dimension::Angle => (0.0, 1e3),
         }
@@ -49,6 +55,9 @@ impl Dimension {
             Dimension::VolumeFlow => "magnitudes up to 1 m^3/s",
             Dimension::Viscosity => "positive, 1e-7 to 1e7 Pa*s",
             Dimension::Density => "positive, 1e-3 to 1e5 kg/m^3",
+            Dimension::Diffusivity => "positive, 1e-18 to 1e-3 m^2/s",
+            Dimension::Concentration => "0, or 1e-18 to 1e5 mol/m^3 (100 M)",
+            Dimension::MassConcentration => "0, or 1e-18 to 1e4 kg/m^3 (10 000 mg/mL)",
             Dimension::Temperature => "absolute zero to 10 000 K",
             Dimension::Angle => "magnitudes up to 1000 rad",
         }
@@ -60,6 +69,10 @@ impl Dimension {
         match self {
             Dimension::Temperature => (lo..=hi).contains(&value),
             Dimension::Viscosity | Dimension::Density => (lo..=hi).contains(&value.abs()),
+            Dimension::Diffusivity => (lo..=hi).contains(&value),
+            Dimension::Concentration | Dimension::MassConcentration => {
+                value == 0.0 || (lo..=hi).contains(&value)
+            }
             _ => value == 0.0 || (lo..=hi).contains(&value.abs()),
         }
     }
@@ -72,6 +85,9 @@ impl Dimension {
             Dimension::VolumeFlow => "a volume flow rate",
             Dimension::Viscosity => "a dynamic viscosity",
             Dimension::Density => "a density",
+            Dimension::Diffusivity => "a diffusion coefficient",
+            Dimension::Concentration => "a molar concentration",
+            Dimension::MassConcentration => "a mass concentration",
             Dimension::Temperature => "a temperature",
             Dimension::Angle => "an angle",
         }
@@ -94,6 +110,9 @@ impl Dimension {
             Dimension::VolumeFlow => "10 uL/min",
             Dimension::Viscosity => "1.0 mPa*s",
             Dimension::Density => "998 kg/m^3",
+            Dimension::Diffusivity => "5e-10 m^2/s",
+            Dimension::Concentration => "10 uM",
+            Dimension::MassConcentration => "2 mg/mL",
             Dimension::Temperature => "37 degC",
             Dimension::Angle => "54.74 deg",
         }
@@ -198,6 +217,36 @@ static UNITS: &[UnitDef] = &[
     u("g/cm^3", D::Density, 3),
     alias(u("g/cm3", D::Density, 3)),
     alias(u("g/mL", D::Density, 3)),
+    // diffusion coefficient
+    u("m^2/s", D::Diffusivity, 0),
+    alias(u("m2/s", D::Diffusivity, 0)),
+    u("cm^2/s", D::Diffusivity, -4),
+    alias(u("cm2/s", D::Diffusivity, -4)),
+    u("mm^2/s", D::Diffusivity, -6),
+    alias(u("mm2/s", D::Diffusivity, -6)),
+    u("um^2/s", D::Diffusivity, -12),
+    alias(u("um2/s", D::Diffusivity, -12)),
+    alias(u("µm^2/s", D::Diffusivity, -12)),
+    alias(u("μm^2/s", D::Diffusivity, -12)),
+    // molar concentration (SI: mol/m^3; 1 mM = 1 mol/m^3)
+    u("mol/m^3", D::Concentration, 0),
+    alias(u("mol/m3", D::Concentration, 0)),
+    u("M", D::Concentration, 3),
+    alias(u("mol/L", D::Concentration, 3)),
+    u("mM", D::Concentration, 0),
+    u("uM", D::Concentration, -3),
+    alias(u("µM", D::Concentration, -3)),
+    alias(u("μM", D::Concentration, -3)),
+    u("nM", D::Concentration, -6),
+    u("pM", D::Concentration, -9),
+    // mass concentration (SI: kg/m^3; 1 mg/mL = 1 kg/m^3)
+    u("mg/mL", D::MassConcentration, 0),
+    alias(u("g/L", D::MassConcentration, 0)),
+    u("ug/mL", D::MassConcentration, -3),
+    alias(u("µg/mL", D::MassConcentration, -3)),
+    alias(u("μg/mL", D::MassConcentration, -3)),
+    alias(u("mg/L", D::MassConcentration, -3)),
+    u("ng/mL", D::MassConcentration, -6),
     // temperature
     u("K", D::Temperature, 0),
     UnitDef {
@@ -332,7 +381,7 @@ pub fn parse_si(text: &str, dim: Dimension) -> Result<f64, UnitError> {
     if unit.is_empty() {
         let value: f64 = mantissa.parse().unwrap_or(f64::NAN);
         // A bare zero is unambiguous for every dimension except temperature.
-        if value == 0.0 && dim != D::Temperature {
+        if value == 0.0 && dim != D::Temperature && dim.accepts(0.0) {
             return Ok(0.0);
         }
         return Err(UnitError::BareNumber {
@@ -390,7 +439,7 @@ pub fn parse_si(text: &str, dim: Dimension) -> Result<f64, UnitError> {
 
 /// A number that was given without a unit (YAML/JSON numeric): only 0 is accepted.
 pub fn bare_number_si(value: f64, dim: Dimension) -> Result<f64, UnitError> {
-    if value == 0.0 && dim != D::Temperature {
+    if value == 0.0 && dim != D::Temperature && dim.accepts(0.0) {
         Ok(0.0)
     } else {
         Err(UnitError::BareNumber {
@@ -472,6 +521,21 @@ quantity!(
     Density
 );
 quantity!(
+    /// Diffusion coefficient in m²/s.
+    Diffusivity,
+    Diffusivity
+);
+quantity!(
+    /// Molar concentration in mol/m³ (= mM).
+    Concentration,
+    Concentration
+);
+quantity!(
+    /// Mass concentration in kg/m³ (= mg/mL).
+    MassConcentration,
+    MassConcentration
+);
+quantity!(
     /// Absolute temperature in kelvin.
     Temperature,
     Temperature
@@ -542,6 +606,32 @@ mod tests {
         assert_eq!(parse_si("1 cP", D::Viscosity).unwrap(), 1e-3);
         assert_eq!(parse_si("1.26 g/cm^3", D::Density).unwrap(), 1260.0);
         assert_eq!(parse_si("-2.5 kPa", D::Pressure).unwrap(), -2500.0);
+    }
+
+    #[test]
+    fn solute_units() {
+        // 1 mM = 1 mol/m^3 and 1 mg/mL = 1 kg/m^3 by definition of the prefixes.
+        assert_eq!(parse_si("10 uM", D::Concentration).unwrap(), 1e-2);
+        assert_eq!(parse_si("2.5 mM", D::Concentration).unwrap(), 2.5);
+        assert_eq!(parse_si("1 M", D::Concentration).unwrap(), 1e3);
+        assert_eq!(parse_si("50 nM", D::Concentration).unwrap(), 5e-5);
+        assert_eq!(parse_si("3 ug/mL", D::MassConcentration).unwrap(), 3e-3);
+        assert_eq!(parse_si("5e-10 m^2/s", D::Diffusivity).unwrap(), 5e-10);
+        assert_eq!(parse_si("500 um^2/s", D::Diffusivity).unwrap(), 5e-10);
+        assert_eq!(parse_si("5e-6 cm^2/s", D::Diffusivity).unwrap(), 5e-10);
+        // Negative concentrations and diffusivities, and a zero diffusivity, are refused.
+        assert!(parse_si("-1 uM", D::Concentration).is_err());
+        assert!(parse_si("-1 mg/mL", D::MassConcentration).is_err());
+        assert!(parse_si("0", D::Diffusivity).is_err());
+        assert!(parse_si("-5e-10 m^2/s", D::Diffusivity).is_err());
+        assert_eq!(parse_si("0", D::Concentration).unwrap(), 0.0);
+        assert!(matches!(
+            parse_si("2 mg/mL", D::Concentration).unwrap_err(),
+            UnitError::WrongDimension {
+                found: D::MassConcentration,
+                ..
+            }
+        ));
     }
 
     #[test]

@@ -88,6 +88,18 @@ pub enum FindingKind {
         value: f64,
         limit: f64,
     },
+    /// Streams of different concentration that met at `junction` are only `value` of the way
+    /// to uniform (mixed fraction, see `solutes::mixing`) where `channel` feeds a split, under
+    /// `limit` ([`super::solutes::MIXED_ENOUGH`]): the well-mixed concentrations after the
+    /// split are wrong. `species` indexes the chip's species; `fourier` is D·Σt/w².
+    NotMixed {
+        channel: ChannelId,
+        junction: NodeId,
+        species: usize,
+        fourier: f64,
+        value: f64,
+        limit: f64,
+    },
 }
 
 impl FindingKind {
@@ -102,6 +114,7 @@ impl FindingKind {
             FindingKind::ShortForEntrance { .. } => "short_for_entrance",
             FindingKind::SectionNotConverged { .. } => "section_not_converged",
             FindingKind::SingularCorners { .. } => "singular_corners",
+            FindingKind::NotMixed { .. } => "not_mixed",
         }
     }
 
@@ -115,7 +128,8 @@ impl FindingKind {
             | FindingKind::Inertia { value, limit, .. }
             | FindingKind::ShortForEntrance { value, limit, .. }
             | FindingKind::SectionNotConverged { value, limit, .. }
-            | FindingKind::SingularCorners { value, limit, .. } => (value, limit),
+            | FindingKind::SingularCorners { value, limit, .. }
+            | FindingKind::NotMixed { value, limit, .. } => (value, limit),
         }
     }
 
@@ -124,7 +138,8 @@ impl FindingKind {
         match *self {
             FindingKind::ShearOverLimit { channel, .. }
             | FindingKind::Inertia { channel, .. }
-            | FindingKind::ShortForEntrance { channel, .. } => Place::Channel(channel),
+            | FindingKind::ShortForEntrance { channel, .. }
+            | FindingKind::NotMixed { channel, .. } => Place::Channel(channel),
             FindingKind::PressureOverRating { node, .. }
             | FindingKind::PressureNearRating { node, .. }
             | FindingKind::BelowVacuum { node, .. } => Place::Node(node),
@@ -218,6 +233,18 @@ pub fn findings(network: &Network, state: &SteadyState) -> Vec<Finding> {
         }
     }
     out.extend(section_notes(network));
+    if let Some(solutes) = &state.solutes {
+        out.extend(solutes.unmixed.iter().map(|u| {
+            note(FindingKind::NotMixed {
+                channel: u.channel,
+                junction: u.junction,
+                species: u.species,
+                fourier: u.fourier,
+                value: u.mixed,
+                limit: super::solutes::MIXED_ENOUGH,
+            })
+        }));
+    }
     for (i, &p) in state.solution.pressures.iter().enumerate() {
         let node = NodeId(i);
         if p < -STANDARD_ATMOSPHERE {

@@ -9,6 +9,7 @@ pub mod design;
 pub mod kirchhoff;
 pub mod limits;
 pub mod lsq;
+pub mod solutes;
 
 pub use kirchhoff::{solve, FlowSolution, SolveError, Solver, RESIDUAL_LIMIT};
 pub use limits::{findings, Finding, FindingKind, Place, Severity};
@@ -61,6 +62,8 @@ pub struct PortState {
 pub struct SteadyState {
     pub solution: FlowSolution,
     pub channels: Vec<ChannelState>,
+    /// Well-mixed solute concentrations, when the chip declares species.
+    pub solutes: Option<solutes::Solutes>,
 }
 
 impl SteadyState {
@@ -152,5 +155,9 @@ pub fn derive(network: &Network, solution: FlowSolution) -> SteadyState {
             }
         })
         .collect();
-    SteadyState { solution, channels }
+    SteadyState {
+        solution,
+        channels,
+        solutes: None,
+    }
 }

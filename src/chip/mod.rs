@@ -8,6 +8,7 @@
 //! [`Chip`]; `analysis::design` reads only the data types of [`design`].
 
 pub mod design;
+pub mod species;
 
 use crate::fluid::RangeWarning;
 use crate::network::{ChannelId, Network, SectionId};
@@ -87,6 +88,8 @@ pub struct Chip {
     pub network: Network,
     /// Targets, adjustable ports and free channel dimensions for the design commands.
     pub design: design::Design,
+    /// Solutes carried by the flow, in file order (empty when none are declared).
+    pub species: Vec<species::Species>,
     /// Drawing positions given in the chip file (used by the pictures only).
     pub layout: DrawnLayout,
     /// Models used outside their published range (e.g. a fluid correlation), and how measured

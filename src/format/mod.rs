@@ -27,6 +27,7 @@ mod locate;
 mod named;
 mod quantity;
 mod section_spec;
+mod species_spec;
 mod yaml_guard;
 
 // The serde types of the file format stay inside the crate: the rest of the program sees
@@ -123,6 +124,9 @@ pub(crate) struct ChipFile {
     #[serde(default)]
     pub description: Option<String>,
     pub fluid: FluidSpec,
+    /// Solutes carried by the flow (`species.NAME: {diffusivity: …}`).
+    #[serde(default)]
+    pub species: Named<species_spec::SpeciesSpec>,
     #[serde(default)]
     pub sections: Named<SectionSpec>,
     pub nodes: Named<NodeSpec>,
@@ -142,6 +146,9 @@ pub(crate) struct ChipFile {
 #[derive(Debug, Default, Deserialize)]
 #[serde(deny_unknown_fields)]
 pub(crate) struct NodeSpec {
+    /// Concentrations of the fluid the port lets in, by species.
+    #[serde(default)]
+    pub concentrations: Option<Named<species_spec::ConcValue>>,
     #[serde(default)]
     pub pressure: Option<Q<Pressure>>,
     #[serde(default)]
@@ -317,6 +324,10 @@ impl ChipFile {
             .filter_map(|(n, s)| s.size.as_ref().map(|z| (n.clone(), z)))
             .collect();
         let design = design_spec::to_design(&network, &self.targets, &adjust, &sizes)?;
+        let given: Vec<_> = (self.nodes.0.iter())
+            .map(|(n, s)| (n.as_str(), s.concentrations.as_ref()))
+            .collect();
+        let species = species_spec::to_species(&self.species, &given, &network)?;
         let mut notes: Vec<ModelNote> = notes.into_iter().map(ModelNote::Fluid).collect();
         notes.extend(profile_notes(&network));
         Ok(Chip {
@@ -325,6 +336,7 @@ impl ChipFile {
             source,
             network,
             design,
+            species,
             layout: DrawnLayout {
                 node_at,
                 channel_path,

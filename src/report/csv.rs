@@ -89,6 +89,9 @@ pub(crate) fn solve_table(
     tables: &mut Tables<'_>,
 ) -> io::Result<()> {
     let network = &chip.network;
+    let extra = super::solutes::csv_columns(chip);
+    let mut header: Vec<&str> = SOLVE_HEADER.to_vec();
+    header.extend(extra.iter().map(String::as_str));
     let nodes = network.nodes.iter().enumerate().map(|(i, nd)| {
         let mut row = vec![String::new(); SOLVE_HEADER.len()];
         row[0] = "node".into();
@@ -96,10 +99,16 @@ pub(crate) fn solve_table(
         row[2] = role(nd.port).into();
         row[5] = n(state.solution.pressures[i]);
         row[6] = num(state.port(network, i).map(|p| p.flow_into_chip));
+        row.extend(super::solutes::csv_cells(
+            chip,
+            state,
+            super::solutes::At::Node(i),
+        ));
         row
     });
-    let channels = network.channels.iter().zip(&state.channels).map(|(c, s)| {
-        vec![
+    let channels = network.channels.iter().zip(&state.channels).enumerate();
+    let channels = channels.map(|(k, (c, s))| {
+        let mut row = vec![
             "channel".into(),
             c.name.clone(),
             network.sections[c.section].shape.kind().into(),
@@ -119,9 +128,15 @@ pub(crate) fn solve_table(
             n(s.entrance_length),
             n(s.residence_time),
             n(s.power),
-        ]
+        ];
+        row.extend(super::solutes::csv_cells(
+            chip,
+            state,
+            super::solutes::At::Channel(k),
+        ));
+        row
     });
-    tables.table(SOLVE_HEADER, nodes.chain(channels))
+    tables.table(&header, nodes.chain(channels))
 }
 
 /// The solve report as CSV text (one table).

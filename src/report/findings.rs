@@ -92,6 +92,36 @@ pub fn finding_text(chip: &Chip, f: &Finding) -> String {
             value * 1e6,
             limit / ENTRANCE_LENGTHS * 1e6
         ),
+        FindingKind::NotMixed {
+            junction,
+            species,
+            fourier: 0.0,
+            ..
+        } => format!(
+            "{at}: the '{}' streams that meet at node '{}' split again there at once, before \
+             they can mix: the well-mixed concentrations downstream are wrong — put a mixing \
+             channel (a serpentine) between the junction and the split",
+            chip.species.get(species).map_or("?", |s| s.name.as_str()),
+            chip.network.nodes[junction].name,
+        ),
+        FindingKind::NotMixed {
+            junction,
+            species,
+            fourier,
+            value,
+            limit,
+            ..
+        } => format!(
+            "{at}: the '{}' streams that meet at node '{}' are only {:.0} % of the way to \
+             uniform here (diffusion across the width, Fo = {}; mixed at {:.0} %), yet the flow \
+             splits after it: the well-mixed concentrations downstream are wrong — lengthen the \
+             channel (a serpentine) or narrow it before the split",
+            chip.species.get(species).map_or("?", |s| s.name.as_str()),
+            chip.network.nodes[junction].name,
+            value * 100.0,
+            super::fmt_sig(fourier, 3),
+            limit * 100.0
+        ),
     }
 }
 

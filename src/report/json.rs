@@ -19,6 +19,9 @@ pub(crate) struct JsonReport<'a> {
     chip: Option<&'a str>,
     units: &'static str,
     fluid: JsonFluid,
+    /// The chip's species (absent when none are declared).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    species: Option<Vec<super::solutes::JsonSpecies<'a>>>,
     max_relative_residual: f64,
     /// The chip's pressure rating, null when none is given.
     pressure_rating_pa: Option<f64>,
@@ -50,6 +53,9 @@ struct JsonNode<'a> {
     pressure_pa: f64,
     /// Relative flow-balance residual (null at pressure ports, whose flow is free).
     balance_residual: Option<f64>,
+    /// Well-mixed concentrations (only with species).
+    #[serde(flatten)]
+    solutes: super::solutes::JsonConc<'a>,
 }
 
 #[derive(Serialize)]
@@ -84,6 +90,9 @@ struct JsonChannel<'a> {
     /// null when the channel carries no flow.
     residence_time_s: Option<f64>,
     power_w: f64,
+    /// Well-mixed concentrations (only with species).
+    #[serde(flatten)]
+    solutes: super::solutes::JsonConc<'a>,
 }
 
 #[derive(Serialize)]
@@ -111,6 +120,7 @@ pub(crate) fn solve_report<'a>(chip: &'a Chip, state: &'a SteadyState) -> JsonRe
             density_kg_per_m3: network.fluid.density.si(),
             shear_limit_pa: network.fluid.shear_limit.map(|p| p.si()),
         },
+        species: super::solutes::species_json(chip),
         max_relative_residual: sol.max_relative_residual,
         pressure_rating_pa: network.pressure_rating.map(|p| p.si()),
         findings: super::findings::records(chip, &crate::analysis::findings(network, state)),
@@ -123,6 +133,7 @@ pub(crate) fn solve_report<'a>(chip: &'a Chip, state: &'a SteadyState) -> JsonRe
                 kind: role(n.port),
                 pressure_pa: sol.pressures[i],
                 balance_residual: sol.node_residuals[i],
+                solutes: super::solutes::json(chip, state, super::solutes::At::Node(i)),
             })
             .collect(),
         ports: network
@@ -161,6 +172,7 @@ pub(crate) fn solve_report<'a>(chip: &'a Chip, state: &'a SteadyState) -> JsonRe
                 entrance_length_m: s.entrance_length,
                 residence_time_s: Some(s.residence_time).filter(|t| t.is_finite()),
                 power_w: s.power,
+                solutes: super::solutes::json(chip, state, super::solutes::At::Channel(k)),
             })
             .collect(),
         sections: network

@@ -10,6 +10,7 @@ pub mod folder;
 mod html;
 mod json;
 mod section;
+mod solutes;
 pub mod text;
 
 pub use csv::to_csv;

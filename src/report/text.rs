@@ -71,6 +71,21 @@ impl TextTable {
     }
 }
 
+/// Render a table of text rows (columns from `first_numeric` on right-aligned) into `out`.
+pub(crate) fn render_rows(
+    header: &[String],
+    first_numeric: usize,
+    rows: &[Vec<String>],
+    out: &mut String,
+) {
+    let h: Vec<&str> = header.iter().map(String::as_str).collect();
+    let mut t = TextTable::new(&h, first_numeric);
+    for r in rows {
+        t.add_row(r.clone());
+    }
+    t.render(out);
+}
+
 /// Human-readable report: ports, nodes, channels, residual, caution.
 pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
     let network = &chip.network;
@@ -165,6 +180,7 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
     ch.render(&mut out);
     out.push('\n');
     shear_section(network, state, &mut out);
+    super::solutes::text_section(chip, state, &mut out);
     out.push_str(&format!(
         "\nFlow balance: worst relative residual {:.1e} (limit {:.0e}) over {} nodes and {} channels.\n",
         sol.max_relative_residual,
