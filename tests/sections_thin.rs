@@ -18,13 +18,14 @@ fn rel(a: f64, b: f64) -> f64 {
     ((a - b) / b).abs()
 }
 
-fn slit(w: f64, t: f64) -> Shape {
+fn polygon(points: &[[f64; 2]]) -> Shape {
     Shape::Polygon {
-        points: [[0.0, 0.0], [w, 0.0], [w, t], [0.0, t]]
-            .iter()
-            .map(|p| [l(p[0]), l(p[1])])
-            .collect(),
+        points: points.iter().map(|p| [l(p[0]), l(p[1])]).collect(),
     }
+}
+
+fn slit(w: f64, t: f64) -> Shape {
+    polygon(&[[0.0, 0.0], [w, 0.0], [w, t], [0.0, t]])
 }
 
 #[test]
@@ -96,21 +97,16 @@ fn only_thin_outlines_without_overhangs_are_taken() {
     // A C-shape (a slot cut in from the right): a vertical line through the slot crosses the
     // outline four times.
     let (w, t) = (1e-3, 1e-8);
-    let comb = Shape::Polygon {
-        points: [
-            [0.0, 0.0],
-            [w, 0.0],
-            [w, t],
-            [0.5 * w, t],
-            [0.5 * w, 2.0 * t],
-            [w, 2.0 * t],
-            [w, 3.0 * t],
-            [0.0, 3.0 * t],
-        ]
-        .iter()
-        .map(|p| [l(p[0]), l(p[1])])
-        .collect(),
-    };
+    let comb = polygon(&[
+        [0.0, 0.0],
+        [w, 0.0],
+        [w, t],
+        [0.5 * w, t],
+        [0.5 * w, 2.0 * t],
+        [w, 2.0 * t],
+        [w, 3.0 * t],
+        [0.0, 3.0 * t],
+    ]);
     assert!(thin_figures(&comb.outline()).is_none());
 }
 
@@ -119,19 +115,14 @@ fn a_step_in_depth_is_two_slits_side_by_side() {
     // Two depths, t and 2t, each over half the width: K = (w/2)(t³ + 8t³)/12 (plane
     // Poiseuille per slice), the jump at the step kept.
     let (w, t) = (1e-3, 1e-9);
-    let step = Shape::Polygon {
-        points: [
-            [0.0, 0.0],
-            [w, 0.0],
-            [w, t],
-            [0.5 * w, t],
-            [0.5 * w, 2.0 * t],
-            [0.0, 2.0 * t],
-        ]
-        .iter()
-        .map(|p| [l(p[0]), l(p[1])])
-        .collect(),
-    };
+    let step = polygon(&[
+        [0.0, 0.0],
+        [w, 0.0],
+        [w, t],
+        [0.5 * w, t],
+        [0.5 * w, 2.0 * t],
+        [0.0, 2.0 * t],
+    ]);
     let thin = thin_figures(&step.outline()).expect("thin");
     let want = 0.5 * w * 9.0 * t.powi(3) / 12.0;
     assert!(rel(thin.conductance_factor, want) < 1e-12);

@@ -378,6 +378,24 @@ impl Context<'_, '_> {
         self.limits.get() == LimitHandling::Constrained
     }
 
+    /// d ln R'/dw of width variable `v`'s section in the evaluated network, and that section.
+    fn dlog_width_of<'e>(
+        &self,
+        e: &'e Evaluation,
+        v: &SizeVar,
+    ) -> Result<(f64, &'e Shape), DesignError> {
+        let ch = &e.net.channels[v.channel];
+        let shape = &e.net.sections[ch.section].shape;
+        let d = self
+            .numeric
+            .dlog_width(shape, e.net.section_tolerance)
+            .map_err(|reason| DesignError::SizedSection {
+                channel: ch.name.clone(),
+                reason,
+            })?;
+        Ok((d, shape))
+    }
+
     /// dg/dz of each size variable's channel at sizes `z`: dg/dL = −g/L, dg/dw =
     /// −g·d ln R'/dw.
     fn dg_dz(&self, e: &Evaluation, z: &[f64]) -> Result<Vec<f64>, DesignError> {
@@ -390,15 +408,7 @@ impl Context<'_, '_> {
                 Ok(match v.dim {
                     SizeDim::Length => -g / zv,
                     SizeDim::Width => {
-                        let ch = &e.net.channels[v.channel];
-                        let shape = &e.net.sections[ch.section].shape;
-                        let d = self
-                            .numeric
-                            .dlog_width(shape, e.net.section_tolerance)
-                            .map_err(|reason| DesignError::SizedSection {
-                                channel: ch.name.clone(),
-                                reason,
-                            })?;
+                        let (d, _) = self.dlog_width_of(e, v)?;
                         -g * d
                     }
                 })
@@ -447,15 +457,7 @@ impl Context<'_, '_> {
                 if v.dim != SizeDim::Width {
                     return Ok(0.0);
                 }
-                let ch = &e.net.channels[v.channel];
-                let shape = &e.net.sections[ch.section].shape;
-                let dlog_r = self
-                    .numeric
-                    .dlog_width(shape, e.net.section_tolerance)
-                    .map_err(|reason| DesignError::SizedSection {
-                        channel: ch.name.clone(),
-                        reason,
-                    })?;
+                let (dlog_r, shape) = self.dlog_width_of(e, v)?;
                 Ok(zv * (-dlog_r - dlog_shear_factor(shape)))
             })
             .collect::<Result<_, DesignError>>()?;
