@@ -30,6 +30,8 @@ pub enum Dimension {
     Compliance,
     /// Duration (s).
     Duration,
+    /// Acceleration (m/s²): gravity.
+    Acceleration,
 }
 
 impl Dimension {
@@ -50,6 +52,7 @@ impl Dimension {
             Dimension::Area => (1e-24, 1e4),
             Dimension::Compliance => (1e-30, 1e-3),
             Dimension::Duration => (1e-9, 1e9),
+            Dimension::Acceleration => (1e-6, 1e3),
         }
     }
 
@@ -67,6 +70,7 @@ impl Dimension {
             Dimension::Area => "1e-24 to 1e4 m^2, or 0",
             Dimension::Compliance => "1e-30 to 1e-3 m^3/Pa, or 0",
             Dimension::Duration => "1 ns to 1e9 s, or 0",
+            Dimension::Acceleration => "1e-6 to 1000 m/s^2, or 0",
         }
     }
 
@@ -94,6 +98,7 @@ impl Dimension {
             Dimension::Area => "an area",
             Dimension::Compliance => "a compliance",
             Dimension::Duration => "a duration",
+            Dimension::Acceleration => "an acceleration",
         }
     }
 
@@ -120,6 +125,7 @@ impl Dimension {
             Dimension::Area => "12 mm^2",
             Dimension::Compliance => "0.5 uL/bar",
             Dimension::Duration => "10 min",
+            Dimension::Acceleration => "9.80665 m/s^2",
         }
     }
 }
@@ -285,6 +291,9 @@ static UNITS: &[UnitDef] = &[
     alias(u("nl/Pa", D::Compliance, -12)),
     scaled(u("uL/psi", D::Compliance, -9), 1.0 / PSI),
     alias(scaled(u("ul/psi", D::Compliance, -9), 1.0 / PSI)),
+    // acceleration
+    u("m/s^2", D::Acceleration, 0),
+    alias(u("m/s2", D::Acceleration, 0)),
     // duration
     u("s", D::Duration, 0),
     u("ms", D::Duration, -3),
@@ -608,6 +617,11 @@ quantity!(
     /// Duration in seconds.
     Duration,
     Duration
+);
+quantity!(
+    /// Acceleration in m/s².
+    Acceleration,
+    Acceleration
 );
 
 /// Display conversions used by the reports (SI → the units designers read).

@@ -265,14 +265,18 @@ impl KirchhoffSystem {
     }
 }
 
-/// Each node's drive value: pressure of a pressure port, injected flow of a flow port, 0 at a
-/// junction (SI).
+/// Each node's drive value: the piezometric pressure of a pressure port (its set pressure plus
+/// ρ·g·z, or a well's gas pressure plus ρ·g·level: [`Network::imposed_head`]; the set pressure
+/// itself on the datum), injected flow of a flow port, 0 at a junction (SI).
 pub fn drive_values(network: &Network) -> Vec<f64> {
     network
         .nodes
         .iter()
-        .map(|n| match n.port {
-            Port::Pressure(p) => p.si(),
+        .enumerate()
+        .map(|(i, n)| match n.port {
+            Port::Pressure(p) => network
+                .imposed_head(crate::network::NodeId(i))
+                .unwrap_or(p.si()),
             Port::Flow(q) => q.si(),
             Port::Junction => 0.0,
         })
