@@ -123,15 +123,28 @@ pub struct KirchhoffSystem {
     node_of: Vec<usize>,
     pattern: SymmetricPattern,
     slots: Vec<ChannelSlots>,
+    /// Slot of each unknown's diagonal entry.
+    diag: Vec<usize>,
 }
 
 impl KirchhoffSystem {
     /// Build the structure for `network`.
     pub fn new(network: &Network) -> Self {
+        let fixed: Vec<bool> = network
+            .nodes
+            .iter()
+            .map(|n| matches!(n.port, Port::Pressure(_)))
+            .collect();
+        Self::with_fixed(network, &fixed)
+    }
+
+    /// The structure with the nodes marked `fixed` as known pressures and every other node an
+    /// unknown (time evolution frees the wells, whose pressure follows their level).
+    pub fn with_fixed(network: &Network, fixed: &[bool]) -> Self {
         let mut unknown_of = Vec::with_capacity(network.nodes.len());
         let mut node_of = Vec::new();
-        for (i, node) in network.nodes.iter().enumerate() {
-            if matches!(node.port, Port::Pressure(_)) {
+        for (i, &f) in fixed.iter().enumerate().take(network.nodes.len()) {
+            if f {
                 unknown_of.push(None);
             } else {
                 unknown_of.push(Some(node_of.len()));
@@ -165,12 +178,19 @@ impl KirchhoffSystem {
                 off: off.map(|k| slot_of[k]),
             })
             .collect();
+        let diag = slot_of[..n].to_vec();
         KirchhoffSystem {
             unknown_of,
             node_of,
             pattern,
             slots,
+            diag,
         }
+    }
+
+    /// Slot of the diagonal entry of unknown `u` in the matrix values.
+    pub fn diagonal_slot(&self, u: usize) -> usize {
+        self.diag[u]
     }
 
     /// The sparsity pattern (lower triangle).
