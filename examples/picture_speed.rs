@@ -45,6 +45,7 @@ fn main() {
             network,
             design: Default::default(),
             layout: DrawnLayout::default(),
+            drives: Default::default(),
             notes: Vec::new(),
         };
         let t = Instant::now();

@@ -8,6 +8,7 @@
 //! [`Chip`]; `analysis::design` reads only the data types of [`design`].
 
 pub mod design;
+pub mod drives;
 
 use crate::fluid::RangeWarning;
 use crate::network::{ChannelId, Network, SectionId};
@@ -89,6 +90,8 @@ pub struct Chip {
     pub design: design::Design,
     /// Drawing positions given in the chip file (used by the pictures only).
     pub layout: DrawnLayout,
+    /// Drives that change in time (`evolve` only; a steady solve uses the file's settings).
+    pub drives: drives::Drives,
     /// Models used outside their published range (e.g. a fluid correlation), and how measured
     /// profiles were read.
     pub notes: Vec<ModelNote>,

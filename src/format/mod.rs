@@ -39,9 +39,12 @@ pub(crate) use quantity::Q;
 pub(crate) use section_spec::SectionSpec;
 pub use section_spec::{parse_profile_columns, parse_profile_csv, FileReader};
 
+use crate::chip::drives::{Drives, Rocking, SwitchOn};
 use crate::chip::{Chip, DrawnLayout, ModelNote, Source};
 use crate::network::{NetworkBuilder, NetworkError, Port, SectionId, Storage, Well};
-use crate::units::{Acceleration, Area, Compliance, Length, Pressure, Volume, VolumeFlow};
+use crate::units::{
+    Acceleration, Angle, Area, Compliance, Duration, Length, Pressure, Volume, VolumeFlow,
+};
 use serde::de::{self, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
 use std::fmt;
@@ -139,6 +142,17 @@ pub(crate) struct ChipFile {
     /// Gravitational acceleration for hydrostatic heads (default: standard gravity).
     #[serde(default)]
     pub gravity: Option<Q<Acceleration>>,
+    /// A rocking platform under the chip (`evolve`): nodes rise by `arm`·sin θ(t).
+    #[serde(default)]
+    pub rocking: Option<RockingSpec>,
+}
+
+/// `rocking:` — θ(t) = angle·sin(2πt/period).
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RockingSpec {
+    pub angle: Q<Angle>,
+    pub period: Q<Duration>,
 }
 
 /// `nodes.NAME:` — a junction (`{}`), a pressure port or a flow port.
@@ -167,6 +181,12 @@ pub(crate) struct NodeSpec {
     /// A given compliance (soft tubing, a soft chamber).
     #[serde(default)]
     pub compliance: Option<Q<Compliance>>,
+    /// `evolve`: the port is off (flow 0, or only its head) until this time.
+    #[serde(default)]
+    pub on_at: Option<Q<Duration>>,
+    /// Horizontal distance from the rocking axis (signed), if the chip sits on a platform.
+    #[serde(default)]
+    pub arm: Option<Q<Length>>,
 }
 
 /// `nodes.NAME.reservoir:` — an open well: its level (free surface above the datum) and its
@@ -262,6 +282,51 @@ impl From<NetworkError> for Misplaced {
 }
 
 impl ChipFile {
+    /// Time-varying drives: ports switched on, the rocking platform and its arms.
+    fn drives(&self, network: &crate::network::Network) -> Result<Drives, Misplaced> {
+        let mut drives = Drives::default();
+        let mut arms = Vec::new();
+        for (i, (name, spec)) in self.nodes.0.iter().enumerate() {
+            let node = crate::network::NodeId(i);
+            if let Some(t) = spec.on_at {
+                if network.nodes[node].port == Port::Junction {
+                    return Err(at(
+                        &["nodes", name, "on_at"],
+                        "only a port (pressure or flow) can be switched on",
+                    ));
+                }
+                if !(t.0.si().is_finite() && t.0.si() >= 0.0) {
+                    return Err(at(&["nodes", name, "on_at"], "must be a time from 0 on"));
+                }
+                drives.switch_on.push(SwitchOn { node, at: t.0.si() });
+            }
+            if let Some(a) = spec.arm {
+                if self.rocking.is_none() {
+                    return Err(at(
+                        &["nodes", name, "arm"],
+                        "an arm needs a platform: add 'rocking: {angle: 7 deg, period: 1 min}'",
+                    ));
+                }
+                arms.push((node, a.0.si()));
+            }
+        }
+        if let Some(r) = &self.rocking {
+            let (angle, period) = (r.angle.0.si(), r.period.0.si());
+            if !(period > 0.0 && angle.abs() < std::f64::consts::FRAC_PI_2) {
+                return Err(at(
+                    &["rocking"],
+                    "needs a positive period and an angle below 90 deg",
+                ));
+            }
+            drives.rocking = Some(Rocking {
+                amplitude: angle,
+                period,
+                arms,
+            });
+        }
+        Ok(drives)
+    }
+
     fn into_chip(self, read: FileReader<'_>, source: Source) -> Result<Chip, Misplaced> {
         let (fluid, notes) = self.fluid.to_fluid()?;
         let mut b =
@@ -312,6 +377,7 @@ impl ChipFile {
             }
         }
         let network = b.build()?;
+        let drives = self.drives(&network)?;
         let node_at = self
             .nodes
             .0
@@ -354,6 +420,7 @@ impl ChipFile {
                 node_at,
                 channel_path,
             },
+            drives,
             notes,
         })
     }
