@@ -46,6 +46,7 @@ fn main() {
             design: Default::default(),
             species: Vec::new(),
             layout: DrawnLayout::default(),
+            drives: Default::default(),
             notes: Vec::new(),
         };
         let t = Instant::now();

@@ -240,6 +240,82 @@ pub struct CheckRequest<'a> {
     pub plot: Option<&'a Path>,
 }
 
+/// What `evolve` needs: the chip, the duration and the output interval as written
+/// (`2 h`, `10 s`).
+pub struct EvolveRequest<'a> {
+    pub chip: ChipInput<'a>,
+    pub duration: &'a str,
+    pub every: &'a str,
+}
+
+impl<'a> EvolveRequest<'a> {
+    pub fn new(chip: ChipInput<'a>, duration: &'a str, every: &'a str) -> Self {
+        EvolveRequest {
+            chip,
+            duration,
+            every,
+        }
+    }
+}
+
+/// Relative (per-step) tolerance of `evolve`'s time stepping.
+pub const EVOLVE_RTOL: f64 = 1e-6;
+
+/// Follow a chip in time from its state at t = 0 (wells at their levels, switched ports off):
+/// the series at every `every` instant, settling times, wells running dry or equalising, and
+/// the volume each port delivered.
+pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
+    use analysis::transient::{self, events};
+    let duration = positive_duration("--for", req.duration)?;
+    let every = positive_duration("--every", req.every)?;
+    let chip = req.chip.load()?;
+    let run = transient::Run {
+        duration,
+        every: every.min(duration),
+        rtol: EVOLVE_RTOL,
+    };
+    let mut evolution =
+        transient::evolve(&chip.network, &chip.drives, run).map_err(|source| Error::Evolve {
+            origin: chip.source.origin.clone(),
+            source,
+        })?;
+    let dry = events::stop_at_dry(&chip.network, &mut evolution);
+    let switched = chip
+        .drives
+        .switch_on
+        .iter()
+        .map(|s| s.at)
+        .fold(0.0, f64::max);
+    let mut list = events::settling(&chip.network, &evolution, switched);
+    list.extend(events::levels_equal(&chip.network, &evolution));
+    let stopped_dry = dry.is_some();
+    list.extend(dry);
+    list.sort_by(|a, b| a.time.total_cmp(&b.time));
+    let delivered = events::delivered(&chip.network, &evolution);
+    Ok(Outcome::Evolved(Box::new(crate::outcome::EvolveOutcome {
+        chip,
+        evolution,
+        events: list,
+        delivered,
+        stopped_dry,
+    })))
+}
+
+/// A positive duration argument such as `--for '2 h'` [s].
+fn positive_duration(flag: &str, text: &str) -> Result<f64, Error> {
+    let bad = |message: String| Error::Input(format::InputError::whole_file(flag, message));
+    let t = text
+        .parse::<crate::units::Duration>()
+        .map(|t| t.si())
+        .map_err(|e| bad(e.to_string()))?;
+    if !(t.is_finite() && t > 0.0) {
+        return Err(bad(format!(
+            "must be a positive duration, e.g. '2 h'; got '{text}'"
+        )));
+    }
+    Ok(t)
+}
+
 /// Solve a chip and check it against its shear limits, pressure rating and vacuum.
 pub fn check(req: &CheckRequest<'_>) -> Result<Outcome, Error> {
     let (chip, state) = load_and_solve(&req.chip)?;

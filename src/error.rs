@@ -20,6 +20,11 @@ pub enum Error {
     #[error("{}: {source}", origin)]
     Solve { origin: String, source: SolveError },
     #[error("{}: {source}", origin)]
+    Evolve {
+        origin: String,
+        source: crate::analysis::transient::TransientError,
+    },
+    #[error("{}: {source}", origin)]
     Design {
         origin: String,
         source: crate::analysis::design::DesignError,
@@ -62,6 +67,10 @@ impl Error {
                 ..
             } => exit::BAD_INPUT,
             Error::Solve { .. } | Error::Solutes { .. } => exit::WITHHELD,
+            Error::Evolve { source, .. } => match source {
+                crate::analysis::transient::TransientError::Bad(_) => exit::BAD_INPUT,
+                _ => exit::WITHHELD,
+            },
             Error::Design { source, .. } => match source {
                 crate::analysis::design::DesignError::Solve(_) => exit::WITHHELD,
                 _ => exit::BAD_INPUT,

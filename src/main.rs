@@ -43,8 +43,8 @@ enum Command {
         /// Chip file (.yaml/.yml, or .json); '-' reads standard input.
         file: PathBuf,
         /// Output format.
-        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
-        format: OutFormat,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
         /// Write to this new file instead of standard output (never overwrites).
         #[arg(long, short)]
         output: Option<PathBuf>,
@@ -64,8 +64,8 @@ enum Command {
         /// Chip file with 'targets:' and ports marked 'adjust: {min: ..., max: ...}'.
         file: PathBuf,
         /// Output format.
-        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
-        format: OutFormat,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
         /// Write the tuned chip to this new file.
         #[arg(long, short)]
         output: Option<PathBuf>,
@@ -78,8 +78,8 @@ enum Command {
         /// Chip file with 'targets:' and channels marked 'size: {length: {min: ..., max: ...}}'.
         file: PathBuf,
         /// Output format.
-        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
-        format: OutFormat,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
         /// Write the sized chip to this new file.
         #[arg(long, short)]
         output: Option<PathBuf>,
@@ -118,14 +118,27 @@ enum Command {
         #[arg(long)]
         into_existing: bool,
     },
+    /// Follow a chip in time: wells, trapped gas, soft parts, ports switched on, rocking.
+    Evolve {
+        /// Chip file; '-' reads standard input.
+        file: PathBuf,
+        /// How long, e.g. '2 h'.
+        #[arg(long = "for")]
+        span: String,
+        /// Output interval, e.g. '10 s'.
+        #[arg(long, default_value = "10 s")]
+        every: String,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
     /// Check a chip against its limits (cells' wall-shear limit, chip pressure rating,
     /// vacuum); exits 1 when any limit is exceeded.
     Check {
         /// Chip file (.yaml/.yml, or .json); '-' reads standard input.
         file: PathBuf,
         /// Output format.
-        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
-        format: OutFormat,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
         /// Draw the wall-shear margin chart to this new .svg or .png file.
         #[arg(long)]
         plot: Option<PathBuf>,
@@ -150,8 +163,8 @@ enum Command {
         #[arg(long)]
         tolerance: Option<f64>,
         /// Output format.
-        #[arg(long, value_enum, default_value_t = OutFormat::Table)]
-        format: OutFormat,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
         /// Draw the velocity field and the wall shear to this new .svg or .png file.
         #[arg(long)]
         plot: Option<PathBuf>,
@@ -180,26 +193,9 @@ enum Colour {
 }
 
 #[derive(Clone, Copy, ValueEnum)]
-enum OutFormat {
-    Table,
-    Json,
-    Csv,
-}
-
-#[derive(Clone, Copy, ValueEnum)]
 enum SyntaxArg {
     Yaml,
     Json,
-}
-
-impl From<OutFormat> for Format {
-    fn from(f: OutFormat) -> Self {
-        match f {
-            OutFormat::Table => Format::Table,
-            OutFormat::Json => Format::Json,
-            OutFormat::Csv => Format::Csv,
-        }
-    }
 }
 
 fn input_error(flag: &str, message: String) -> rillnet::Error {
@@ -245,7 +241,17 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 plot: plot.as_deref(),
                 sensitivity: choice,
             })?;
-            (outcome, (*format).into(), output.clone(), vec![arg.path])
+            (outcome, *format, output.clone(), vec![arg.path])
+        }
+        Command::Evolve {
+            file,
+            span,
+            every,
+            format,
+        } => {
+            let arg = chip(file)?;
+            let req = commands::EvolveRequest::new(arg.input(), span, every);
+            (commands::evolve(&req)?, *format, None, vec![arg.path])
         }
         Command::Check { file, format, plot } => {
             picture_arg(plot.as_deref())?;
@@ -254,7 +260,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 chip: arg.input(),
                 plot: plot.as_deref(),
             })?;
-            (outcome, (*format).into(), None, vec![arg.path])
+            (outcome, *format, None, vec![arg.path])
         }
         Command::Tune {
             file,
@@ -270,7 +276,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 pitch: 0.0,
                 ignore_limits: *ignore_limits,
             })?;
-            (outcome, (*format).into(), None, vec![arg.path])
+            (outcome, *format, None, vec![arg.path])
         }
         Command::Size {
             file,
@@ -292,7 +298,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 pitch,
                 ignore_limits: *ignore_limits,
             })?;
-            (outcome, (*format).into(), None, vec![arg.path])
+            (outcome, *format, None, vec![arg.path])
         }
         Command::Section {
             spec,
@@ -321,7 +327,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 plot: plot.as_deref(),
             })?;
             let inputs = arg.map(|a| a.path).into_iter().collect();
-            (outcome, (*format).into(), None, inputs)
+            (outcome, *format, None, inputs)
         }
         Command::Plot {
             file,

@@ -14,7 +14,7 @@ use crate::fluid::Fluid;
 use crate::index_vec::IdVec;
 use crate::section::numeric::NumericOptions;
 use crate::section::{GeometryKey, SectionFigures, Shape};
-use crate::units::{Length, Pressure, VolumeFlow};
+use crate::units::{Area, Compliance, Length, Pressure, Volume, VolumeFlow};
 use petgraph::graph::UnGraph;
 use petgraph::unionfind::UnionFind;
 use rustc_hash::FxHashMap as HashMap;
@@ -51,7 +51,55 @@ pub enum Port {
 #[derive(Clone, Debug, PartialEq)]
 pub struct Node {
     pub name: String,
+    /// For a pressure port, the set static (gauge) pressure at the node's elevation; for an
+    /// open well ([`Storage::Well`]) the gas pressure above its free surface.
     pub port: Port,
+    /// Height z of the node above the chip's datum (z = 0, the chip plane) [m]; for a well,
+    /// the height of its bottom. Positive up.
+    pub elevation: Length,
+    /// Volume this node can store as its pressure changes, if any (time evolution only: a
+    /// steady state does not depend on it, except a well's level, which sets its pressure).
+    pub storage: Option<Storage>,
+}
+
+/// Standard gravity g_n = 9.806 65 m/s² (3rd CGPM, 1901; NIST SP 811).
+pub const STANDARD_GRAVITY: f64 = 9.806_65;
+
+/// Standard atmosphere, 101 325 Pa (NIST SP 811): the ambient pressure gauge pressures are
+/// measured from, used where an absolute pressure is needed (Boyle's law for trapped gas).
+pub const STANDARD_ATMOSPHERE: f64 = 101_325.0;
+
+/// An open well: a free liquid surface at `level` above the datum, in a well of wetted
+/// cross-section `area` (constant with height), under gas at gauge pressure `port` of its node.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Well {
+    /// Height of the free surface above the datum (not above the well bottom) [m].
+    pub level: Length,
+    /// Wetted cross-section of the well [m²], the same at every height (a cylinder or prism).
+    pub area: Area,
+}
+
+/// Storage (hydraulic compliance) at a node: dV/dp, the volume taken up per unit pressure.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub enum Storage {
+    /// Open well: V = A·(level − bottom), piezometric pressure P = p_gas + ρ·g·level, so
+    /// C = dV/dP = A/(ρ·g) (hydrostatics; Bruus, *Theoretical Microfluidics* 2008, ch. 4,
+    /// hydraulic compliance). Exact for a prismatic well while it holds liquid; the node is a
+    /// pressure port in a steady solve (its level as stated).
+    Well(Well),
+    /// Trapped gas of volume V at the node's initial pressure (a bubble in a syringe, an air
+    /// damper), isothermal: p_abs·V = const (Boyle's law), so C = −dV/dp = V/p_abs with
+    /// p_abs = 101 325 Pa + p. Linearised about the initial state (C fixed at V₀/p_abs,0):
+    /// the relative error in C grows about as 2·Δp/p_abs, 2 % for a 1 kPa excursion. Valid
+    /// while the gas stays trapped and isothermal (changes slower than about a second for
+    /// microlitre bubbles; common practice).
+    Gas {
+        /// Gas volume at the initial state [m³].
+        volume: Volume,
+    },
+    /// A given compliance dV/dp (soft tubing, a PDMS chamber), constant: measured or from the
+    /// supplier, e.g. 0.5 µL/bar.
+    Compliance(Compliance),
 }
 
 /// A cross-section with its precomputed laminar figures.
@@ -90,6 +138,8 @@ pub struct Network {
     pub pressure_rating: Option<Pressure>,
     /// Relative error target the numerically solved sections were solved to.
     pub section_tolerance: f64,
+    /// Gravitational acceleration g [m/s²] for hydrostatic heads.
+    pub gravity: f64,
     graph: UnGraph<NodeId, ChannelId>,
 }
 
@@ -153,6 +203,14 @@ pub enum NetworkError {
     },
     #[error("{place}: must be a positive finite pressure, got {value} Pa")]
     BadLimit { place: String, value: f64 },
+    #[error("gravity: must be an acceleration from 0 to 1000 m/s^2, got {value} m/s^2")]
+    BadGravity { value: f64 },
+    #[error("node '{node}' {field}: {problem}")]
+    BadStorage {
+        node: String,
+        field: &'static str,
+        problem: String,
+    },
 }
 
 /// Where in the chip description an error belongs: a path of keys. For a duplicate name
@@ -195,6 +253,15 @@ impl NetworkError {
                 "section" => p(&["sections", name]),
                 _ => p(&["channels", name]),
             },
+            NetworkError::BadGravity { .. } => p(&["gravity"]),
+            NetworkError::BadStorage { node, field, .. } => {
+                let mut keys = vec!["nodes".to_string(), node.clone()];
+                keys.extend(field.split('.').map(str::to_string));
+                Place {
+                    keys,
+                    repeated: false,
+                }
+            }
             NetworkError::BadLimit { place, .. } => Place {
                 keys: place.split('.').map(str::to_string).collect(),
                 repeated: false,
@@ -261,6 +328,76 @@ fn edit_distance(a: &str, b: &str) -> usize {
     prev[b.len()]
 }
 
+/// The rules of [`NetworkBuilder::node_storage`]: (field, problem) on failure.
+fn check_storage(
+    n: &Node,
+    elevation: Length,
+    storage: Option<&Storage>,
+) -> Result<(), (&'static str, String)> {
+    let pressure_port = matches!(n.port, Port::Pressure(_));
+    match storage {
+        None => Ok(()),
+        Some(Storage::Well(w)) => {
+            if !pressure_port {
+                return Err((
+                    "reservoir",
+                    "a well is a pressure port (gas pressure above its surface); remove 'flow'"
+                        .into(),
+                ));
+            }
+            let a = w.area.si();
+            if !(a.is_finite() && a > 0.0) {
+                return Err((
+                    "reservoir.area",
+                    format!("must be a positive area, got {a} m^2"),
+                ));
+            }
+            let level = w.level.si();
+            if !level.is_finite() || level < elevation.si() {
+                return Err((
+                    "reservoir.level",
+                    format!(
+                        "the free surface ({level} m above the datum) is below the well's bottom                          (its elevation, {} m); a level is measured from the datum, not from the                          well bottom",
+                        elevation.si()
+                    ),
+                ));
+            }
+            Ok(())
+        }
+        Some(Storage::Gas { volume }) => {
+            let v = volume.si();
+            if pressure_port {
+                return Err((
+                    "gas_volume",
+                    "a pressure port holds its pressure, so trapped gas there stores nothing;                      put the gas on a flow port or a junction"
+                        .into(),
+                ));
+            }
+            if !(v.is_finite() && v > 0.0) {
+                return Err((
+                    "gas_volume",
+                    format!("must be a positive volume, got {v} m^3"),
+                ));
+            }
+            Ok(())
+        }
+        Some(Storage::Compliance(c)) => {
+            let c = c.si();
+            if pressure_port {
+                return Err((
+                    "compliance",
+                    "a pressure port holds its pressure, so a compliance there stores nothing;                      put it on a flow port or a junction"
+                        .into(),
+                ));
+            }
+            if !(c.is_finite() && c > 0.0) {
+                return Err(("compliance", format!("must be positive, got {c} m^3/Pa")));
+            }
+            Ok(())
+        }
+    }
+}
+
 /// Builds a [`Network`] by name, checking as it goes.
 #[derive(Debug)]
 pub struct NetworkBuilder {
@@ -277,6 +414,7 @@ pub struct NetworkBuilder {
     channel_names: HashMap<String, ChannelId>,
     pressure_rating: Option<Pressure>,
     numeric: NumericOptions,
+    gravity: f64,
 }
 
 impl NetworkBuilder {
@@ -293,7 +431,43 @@ impl NetworkBuilder {
             channel_names: HashMap::default(),
             pressure_rating: None,
             numeric: NumericOptions::default(),
+            gravity: STANDARD_GRAVITY,
         }
+    }
+
+    /// Gravitational acceleration for hydrostatic heads (default [`STANDARD_GRAVITY`]).
+    pub fn gravity(&mut self, g: f64) -> Result<&mut Self, NetworkError> {
+        if !(g.is_finite() && (0.0..=1e3).contains(&g)) {
+            return Err(NetworkError::BadGravity { value: g });
+        }
+        self.gravity = g;
+        Ok(self)
+    }
+
+    /// Give a node an elevation and storage (after [`NetworkBuilder::add_node`]). A well must
+    /// sit on a pressure port (its gas pressure), with a positive area and its level at or
+    /// above its bottom (the node's elevation); gas and compliance may not sit on a pressure
+    /// port (a set pressure stores nothing that changes).
+    pub fn node_storage(
+        &mut self,
+        node: NodeId,
+        elevation: Length,
+        storage: Option<Storage>,
+    ) -> Result<&mut Self, NetworkError> {
+        let n = &self.nodes[node.0];
+        let bad = |field: &'static str, problem: String| NetworkError::BadStorage {
+            node: n.name.clone(),
+            field,
+            problem,
+        };
+        if !elevation.si().is_finite() {
+            return Err(bad("elevation", "must be a finite length".into()));
+        }
+        check_storage(n, elevation, storage.as_ref()).map_err(|(f, p)| bad(f, p))?;
+        let n = &mut self.nodes[node.0];
+        n.elevation = elevation;
+        n.storage = storage;
+        Ok(self)
     }
 
     /// Reserve room for a large network.
@@ -360,6 +534,8 @@ impl NetworkBuilder {
         self.nodes.push(Node {
             name: name.to_string(),
             port,
+            elevation: Length::from_si(0.0),
+            storage: None,
         });
         Ok(id)
     }
@@ -563,6 +739,7 @@ impl NetworkBuilder {
             channels: self.channels.into(),
             pressure_rating: self.pressure_rating,
             section_tolerance: self.numeric.tolerance,
+            gravity: self.gravity,
             graph,
         })
     }
@@ -637,6 +814,41 @@ impl Network {
             .iter()
             .position(|c| c.name == name)
             .map(ChannelId)
+    }
+
+    /// ρ·g [Pa/m]: hydrostatic pressure per metre of height.
+    pub fn specific_weight(&self) -> f64 {
+        self.fluid.density.si() * self.gravity
+    }
+
+    /// The piezometric pressure P = p + ρ·g·z a pressure port imposes [Pa]: its set static
+    /// pressure at its elevation, or for a well its gas pressure plus ρ·g·level. None for
+    /// junctions and flow ports. This is what the Kirchhoff system solves for; the static
+    /// pressure at a node is P − ρ·g·z ([`Network::static_pressure`]).
+    pub fn imposed_head(&self, node: NodeId) -> Option<f64> {
+        let n = &self.nodes[node];
+        let Port::Pressure(p) = n.port else {
+            return None;
+        };
+        let height = match n.storage {
+            Some(Storage::Well(w)) => w.level.si(),
+            _ => n.elevation.si(),
+        };
+        Some(p.si() + self.specific_weight() * height)
+    }
+
+    /// Static (gauge) pressure at a node from its piezometric pressure: p = P − ρ·g·z. At a
+    /// well this is the pressure at its bottom.
+    pub fn static_pressure(&self, node: NodeId, piezometric: f64) -> f64 {
+        piezometric - self.specific_weight() * self.nodes[node].elevation.si()
+    }
+
+    /// Whether any node stores volume or sits off the datum (the chip needs the hydrostatic
+    /// and time-evolution vocabulary in its reports).
+    pub fn has_storage_or_heads(&self) -> bool {
+        self.nodes
+            .iter()
+            .any(|n| n.storage.is_some() || n.elevation.si() != 0.0)
     }
 
     /// The section of a channel.

@@ -8,8 +8,8 @@ use crate::section::numeric::NumericSection;
 use crate::section::{SectionFigures, Shape};
 use std::path::PathBuf;
 
-/// Output formats.
-#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+/// Output formats (also the command line's `--format` values).
+#[derive(Clone, Copy, Debug, PartialEq, Eq, clap::ValueEnum)]
 pub enum Format {
     Table,
     Json,
@@ -58,8 +58,22 @@ pub enum Outcome {
     },
     /// `section`: one cross-section's figures.
     Section(Box<SectionOutcome>),
+    /// `evolve`: the chip followed in time, and what happened.
+    Evolved(Box<EvolveOutcome>),
     /// `plot`, `report`: files written (a status line for standard error).
     Wrote(Vec<PathBuf>),
+}
+
+/// A chip followed in time: the series at the output instants, events and delivered volumes.
+#[derive(Debug)]
+pub struct EvolveOutcome {
+    pub chip: Chip,
+    pub evolution: crate::analysis::transient::Evolution,
+    pub events: Vec<crate::analysis::transient::events::Event>,
+    /// Volume each port delivered into the chip over the run [m³].
+    pub delivered: Vec<(crate::network::NodeId, f64)>,
+    /// Whether the run stopped early because a well ran dry.
+    pub stopped_dry: bool,
 }
 
 impl Outcome {

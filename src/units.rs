@@ -25,6 +25,16 @@ pub enum Dimension {
     MassConcentration,
     Temperature,
     Angle,
+    /// Volume (m³): trapped gas, stored liquid.
+    Volume,
+    /// Area (m²): a well's wetted cross-section.
+    Area,
+    /// Hydraulic compliance (m³/Pa): stored volume per unit pressure.
+    Compliance,
+    /// Duration (s).
+    Duration,
+    /// Acceleration (m/s²): gravity.
+    Acceleration,
 }
 
 impl Dimension {
@@ -44,6 +54,11 @@ impl Dimension {
             Dimension::MassConcentration => (1e-18, 1e4),
             Dimension::Temperature => (0.0, 1e4),
             Dimension::Angle => (0.0, 1e3),
+            Dimension::Volume => (1e-24, 1e3),
+            Dimension::Area => (1e-24, 1e4),
+            Dimension::Compliance => (1e-30, 1e-3),
+            Dimension::Duration => (1e-9, 1e9),
+            Dimension::Acceleration => (1e-6, 1e3),
         }
     }
 
@@ -60,6 +75,11 @@ impl Dimension {
             Dimension::MassConcentration => "0, or 1e-18 to 1e4 kg/m^3 (10 000 mg/mL)",
             Dimension::Temperature => "absolute zero to 10 000 K",
             Dimension::Angle => "magnitudes up to 1000 rad",
+            Dimension::Volume => "1e-24 to 1000 m^3, or 0",
+            Dimension::Area => "1e-24 to 1e4 m^2, or 0",
+            Dimension::Compliance => "1e-30 to 1e-3 m^3/Pa, or 0",
+            Dimension::Duration => "1 ns to 1e9 s, or 0",
+            Dimension::Acceleration => "1e-6 to 1000 m/s^2, or 0",
         }
     }
 
@@ -90,6 +110,11 @@ impl Dimension {
             Dimension::MassConcentration => "a mass concentration",
             Dimension::Temperature => "a temperature",
             Dimension::Angle => "an angle",
+            Dimension::Volume => "a volume",
+            Dimension::Area => "an area",
+            Dimension::Compliance => "a compliance",
+            Dimension::Duration => "a duration",
+            Dimension::Acceleration => "an acceleration",
         }
     }
 
@@ -115,6 +140,11 @@ impl Dimension {
             Dimension::MassConcentration => "2 mg/mL",
             Dimension::Temperature => "37 degC",
             Dimension::Angle => "54.74 deg",
+            Dimension::Volume => "20 uL",
+            Dimension::Area => "12 mm^2",
+            Dimension::Compliance => "0.5 uL/bar",
+            Dimension::Duration => "10 min",
+            Dimension::Acceleration => "9.80665 m/s^2",
         }
     }
 }
@@ -163,6 +193,15 @@ const HOUR: f64 = 1.0 / 3600.0;
 const PSI: f64 = 6_894.757_293_168_361;
 /// 1 mmHg = 133.322387415 Pa (NIST SP 811, Appendix B.8, conventional mmHg).
 const MMHG: f64 = 133.322_387_415;
+/// Conventional millimetre of water: 1 mmH2O = 9.80665 Pa (NIST SP 811, Appendix B.8).
+const MMH2O: f64 = 9.806_65;
+/// Conventional inch of water: 1 inH2O = 249.0889 Pa (NIST SP 811, Appendix B.8; 25.4 mmH2O
+/// conventional = 249.08891 Pa).
+const INH2O: f64 = 249.088_91;
+/// Standard atmosphere: 1 atm = 101 325 Pa exactly (NIST SP 811, Appendix B.8).
+const ATM: f64 = 101_325.0;
+/// 1 torr = 101 325/760 Pa exactly (NIST SP 811, Appendix B.8).
+const TORR: f64 = 101_325.0 / 760.0;
 /// 1 degree = π/180 rad.
 const DEGREE: f64 = std::f64::consts::PI / 180.0;
 
@@ -186,23 +225,101 @@ static UNITS: &[UnitDef] = &[
     u("bar", D::Pressure, 5),
     scaled(u("psi", D::Pressure, 0), PSI),
     scaled(u("mmHg", D::Pressure, 0), MMHG),
-    // volume flow
+    scaled(u("mmH2O", D::Pressure, 0), MMH2O),
+    scaled(u("cmH2O", D::Pressure, 1), MMH2O),
+    scaled(u("inH2O", D::Pressure, 0), INH2O),
+    scaled(u("atm", D::Pressure, 0), ATM),
+    scaled(u("torr", D::Pressure, 0), TORR),
+    alias(scaled(u("Torr", D::Pressure, 0), TORR)),
+    // volume flow (lower-case l accepted as an alias of L)
     u("m^3/s", D::VolumeFlow, 0),
     alias(u("m3/s", D::VolumeFlow, 0)),
     u("mL/s", D::VolumeFlow, -6),
+    alias(u("ml/s", D::VolumeFlow, -6)),
     scaled(u("mL/min", D::VolumeFlow, -6), MINUTE),
+    alias(scaled(u("ml/min", D::VolumeFlow, -6), MINUTE)),
     scaled(u("mL/h", D::VolumeFlow, -6), HOUR),
+    alias(scaled(u("ml/h", D::VolumeFlow, -6), HOUR)),
     u("uL/s", D::VolumeFlow, -9),
+    alias(u("ul/s", D::VolumeFlow, -9)),
     alias(u("µL/s", D::VolumeFlow, -9)),
+    alias(u("µl/s", D::VolumeFlow, -9)),
     alias(u("μL/s", D::VolumeFlow, -9)),
+    alias(u("μl/s", D::VolumeFlow, -9)),
     scaled(u("uL/min", D::VolumeFlow, -9), MINUTE),
+    alias(scaled(u("ul/min", D::VolumeFlow, -9), MINUTE)),
     alias(scaled(u("µL/min", D::VolumeFlow, -9), MINUTE)),
+    alias(scaled(u("µl/min", D::VolumeFlow, -9), MINUTE)),
     alias(scaled(u("μL/min", D::VolumeFlow, -9), MINUTE)),
+    alias(scaled(u("μl/min", D::VolumeFlow, -9), MINUTE)),
     scaled(u("uL/h", D::VolumeFlow, -9), HOUR),
+    alias(scaled(u("ul/h", D::VolumeFlow, -9), HOUR)),
     alias(scaled(u("µL/h", D::VolumeFlow, -9), HOUR)),
+    alias(scaled(u("µl/h", D::VolumeFlow, -9), HOUR)),
     alias(scaled(u("μL/h", D::VolumeFlow, -9), HOUR)),
+    alias(scaled(u("μl/h", D::VolumeFlow, -9), HOUR)),
     u("nL/s", D::VolumeFlow, -12),
+    alias(u("nl/s", D::VolumeFlow, -12)),
     scaled(u("nL/min", D::VolumeFlow, -12), MINUTE),
+    alias(scaled(u("nl/min", D::VolumeFlow, -12), MINUTE)),
+    // volume
+    u("m^3", D::Volume, 0),
+    alias(u("m3", D::Volume, 0)),
+    u("L", D::Volume, -3),
+    alias(u("l", D::Volume, -3)),
+    u("mL", D::Volume, -6),
+    alias(u("ml", D::Volume, -6)),
+    u("uL", D::Volume, -9),
+    alias(u("ul", D::Volume, -9)),
+    alias(u("µL", D::Volume, -9)),
+    alias(u("µl", D::Volume, -9)),
+    alias(u("μL", D::Volume, -9)),
+    alias(u("μl", D::Volume, -9)),
+    u("nL", D::Volume, -12),
+    alias(u("nl", D::Volume, -12)),
+    u("pL", D::Volume, -15),
+    alias(u("pl", D::Volume, -15)),
+    // area
+    u("m^2", D::Area, 0),
+    alias(u("m2", D::Area, 0)),
+    u("cm^2", D::Area, -4),
+    u("mm^2", D::Area, -6),
+    alias(u("mm2", D::Area, -6)),
+    u("um^2", D::Area, -12),
+    alias(u("µm^2", D::Area, -12)),
+    alias(u("μm^2", D::Area, -12)),
+    // compliance (volume per pressure); 1 bar = 1e5 Pa, 1 mbar = 100 Pa exactly
+    u("m^3/Pa", D::Compliance, 0),
+    alias(u("m3/Pa", D::Compliance, 0)),
+    u("mL/bar", D::Compliance, -11),
+    alias(u("ml/bar", D::Compliance, -11)),
+    u("uL/bar", D::Compliance, -14),
+    alias(u("ul/bar", D::Compliance, -14)),
+    alias(u("µL/bar", D::Compliance, -14)),
+    alias(u("µl/bar", D::Compliance, -14)),
+    alias(u("μL/bar", D::Compliance, -14)),
+    alias(u("μl/bar", D::Compliance, -14)),
+    u("uL/mbar", D::Compliance, -11),
+    alias(u("ul/mbar", D::Compliance, -11)),
+    alias(u("µL/mbar", D::Compliance, -11)),
+    u("uL/kPa", D::Compliance, -12),
+    alias(u("ul/kPa", D::Compliance, -12)),
+    u("nL/mbar", D::Compliance, -14),
+    alias(u("nl/mbar", D::Compliance, -14)),
+    u("nL/Pa", D::Compliance, -12),
+    alias(u("nl/Pa", D::Compliance, -12)),
+    scaled(u("uL/psi", D::Compliance, -9), 1.0 / PSI),
+    alias(scaled(u("ul/psi", D::Compliance, -9), 1.0 / PSI)),
+    // acceleration
+    u("m/s^2", D::Acceleration, 0),
+    alias(u("m/s2", D::Acceleration, 0)),
+    // duration
+    u("s", D::Duration, 0),
+    u("ms", D::Duration, -3),
+    scaled(u("min", D::Duration, 0), 60.0),
+    scaled(u("h", D::Duration, 0), 3600.0),
+    alias(scaled(u("hr", D::Duration, 0), 3600.0)),
+    scaled(u("day", D::Duration, 0), 86_400.0),
     // dynamic viscosity
     u("Pa*s", D::Viscosity, 0),
     alias(u("Pa.s", D::Viscosity, 0)),
@@ -545,6 +662,31 @@ quantity!(
     Angle,
     Angle
 );
+quantity!(
+    /// Volume in m³.
+    Volume,
+    Volume
+);
+quantity!(
+    /// Area in m².
+    Area,
+    Area
+);
+quantity!(
+    /// Hydraulic compliance in m³/Pa (stored volume per unit pressure).
+    Compliance,
+    Compliance
+);
+quantity!(
+    /// Duration in seconds.
+    Duration,
+    Duration
+);
+quantity!(
+    /// Acceleration in m/s².
+    Acceleration,
+    Acceleration
+);
 
 /// Display conversions used by the reports (SI → the units designers read).
 pub mod display {
@@ -659,6 +801,59 @@ mod tests {
             std::f64::consts::FRAC_PI_2,
             max_relative = 1e-15
         );
+    }
+
+    #[test]
+    fn heads_atmospheres_and_torr_follow_nist_sp811() {
+        // NIST SP 811 (2008), Appendix B.8: conventional mmH2O = 9.806 65 Pa, cmH2O = 98.0665 Pa,
+        // inH2O (conventional) = 249.0889 Pa, atm = 101 325 Pa, torr = 133.3224 Pa.
+        let p = |t: &str| parse_si(t, D::Pressure).unwrap();
+        approx::assert_relative_eq!(p("1 mmH2O"), 9.806_65, max_relative = 1e-15);
+        approx::assert_relative_eq!(p("5 mmH2O"), 49.033_25, max_relative = 1e-15);
+        approx::assert_relative_eq!(p("1 cmH2O"), 98.0665, max_relative = 1e-15);
+        // SP 811 prints 2.490 889 E+02 (7 digits).
+        approx::assert_relative_eq!(p("1 inH2O"), 249.0889, max_relative = 2.1e-7);
+        assert_eq!(p("1 atm"), 101_325.0);
+        // SP 811 prints 1.333 224 E+02 (7 digits: half a unit in the last place is 3.8e-7).
+        approx::assert_relative_eq!(p("1 torr"), 133.3224, max_relative = 3.8e-7);
+        approx::assert_relative_eq!(p("760 torr"), p("1 atm"), max_relative = 1e-15);
+        // 1 mmHg (conventional) and 1 torr differ by less than 2e-7 (NIST SP 811, B.8 note).
+        approx::assert_relative_eq!(p("1 mmHg"), p("1 torr"), max_relative = 2e-7);
+    }
+
+    #[test]
+    fn volumes_areas_compliances_and_durations() {
+        let v = |t: &str| parse_si(t, D::Volume).unwrap();
+        assert_eq!(v("20 uL"), 2e-8);
+        assert_eq!(v("20 ul"), 2e-8);
+        assert_eq!(v("20 µl"), 2e-8);
+        assert_eq!(v("1.5 mL"), 1.5e-6);
+        assert_eq!(v("3 nL"), 3e-12);
+        assert_eq!(v("1 m^3"), 1.0);
+        let a = |t: &str| parse_si(t, D::Area).unwrap();
+        assert_eq!(a("12 mm^2"), 1.2e-5);
+        assert_eq!(a("100 um^2"), 1e-10);
+        // 1 µL/bar = 1e-9 m³ / 1e5 Pa = 1e-14 m³/Pa (definitions of litre and bar, SI brochure).
+        let c = |t: &str| parse_si(t, D::Compliance).unwrap();
+        assert_eq!(c("0.5 uL/bar"), 5e-15);
+        assert_eq!(c("1 nL/mbar"), 1e-14);
+        assert_eq!(c("1 nl/mbar"), c("1 uL/bar"));
+        approx::assert_relative_eq!(c("1 uL/psi"), 1e-9 / 6_894.757, max_relative = 1e-6);
+        let t = |x: &str| parse_si(x, D::Duration).unwrap();
+        assert_eq!(t("2 h"), 7200.0);
+        assert_eq!(t("2 hr"), 7200.0);
+        assert_eq!(t("10 s"), 10.0);
+        assert_eq!(t("1.5 min"), 90.0);
+        assert_eq!(t("1 day"), 86_400.0);
+        let q = |x: &str| parse_si(x, D::VolumeFlow).unwrap();
+        approx::assert_relative_eq!(q("60 ul/min"), 1e-9, max_relative = 1e-15);
+        approx::assert_relative_eq!(q("3.6 ml/h"), 1e-9, max_relative = 1e-15);
+        approx::assert_relative_eq!(q("3600 µl/h"), 1e-9, max_relative = 1e-15);
+        // A volume is not a flow.
+        assert!(matches!(
+            parse_si("5 uL", D::VolumeFlow).unwrap_err(),
+            UnitError::WrongDimension { .. }
+        ));
     }
 
     #[test]

@@ -358,9 +358,10 @@ fn located(e: &Error) -> bool {
     match e {
         Error::Input(i) => i.line.is_some() || i.field.is_some() || i.message.contains("offset"),
         // Numerical and design refusals name the nodes, channels or targets involved.
-        Error::Solve { .. } | Error::Design { .. } | Error::Solutes { .. } => {
-            e.to_string().contains('\'')
-        }
+        Error::Solve { .. }
+        | Error::Design { .. }
+        | Error::Solutes { .. }
+        | Error::Evolve { .. } => e.to_string().contains('\''),
         Error::Read { .. } | Error::Write { .. } => true,
     }
 }

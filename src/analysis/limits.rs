@@ -245,8 +245,12 @@ pub fn findings(network: &Network, state: &SteadyState) -> Vec<Finding> {
             })
         }));
     }
-    for (i, &p) in state.solution.pressures.iter().enumerate() {
+    for (i, &piezometric) in state.solution.pressures.iter().enumerate() {
         let node = NodeId(i);
+        // The rating and vacuum concern the static pressure p = P − ρ·g·z at the node's
+        // elevation, not the piezometric pressure P the network is solved for (equal on the
+        // datum, z = 0).
+        let p = network.static_pressure(node, piezometric);
         if p < -STANDARD_ATMOSPHERE {
             out.push(exceeded(FindingKind::BelowVacuum {
                 node,

@@ -8,6 +8,7 @@
 //! [`Chip`]; `analysis::design` reads only the data types of [`design`].
 
 pub mod design;
+pub mod drives;
 pub mod species;
 
 use crate::fluid::RangeWarning;
@@ -92,6 +93,8 @@ pub struct Chip {
     pub species: Vec<species::Species>,
     /// Drawing positions given in the chip file (used by the pictures only).
     pub layout: DrawnLayout,
+    /// Drives that change in time (`evolve` only; a steady solve uses the file's settings).
+    pub drives: drives::Drives,
     /// Models used outside their published range (e.g. a fluid correlation), and how measured
     /// profiles were read.
     pub notes: Vec<ModelNote>,

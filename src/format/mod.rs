@@ -40,9 +40,12 @@ pub(crate) use quantity::Q;
 pub(crate) use section_spec::SectionSpec;
 pub use section_spec::{parse_profile_columns, parse_profile_csv, FileReader};
 
+use crate::chip::drives::{Drives, Rocking, SwitchOn};
 use crate::chip::{Chip, DrawnLayout, ModelNote, Source};
-use crate::network::{NetworkBuilder, NetworkError, Port, SectionId};
-use crate::units::{Length, Pressure, VolumeFlow};
+use crate::network::{NetworkBuilder, NetworkError, Port, SectionId, Storage, Well};
+use crate::units::{
+    Acceleration, Angle, Area, Compliance, Duration, Length, Pressure, Volume, VolumeFlow,
+};
 use serde::de::{self, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
 use std::fmt;
@@ -140,6 +143,20 @@ pub(crate) struct ChipFile {
     /// Design targets for `rillnet tune` and `rillnet size`.
     #[serde(default)]
     pub targets: Vec<TargetSpec>,
+    /// Gravitational acceleration for hydrostatic heads (default: standard gravity).
+    #[serde(default)]
+    pub gravity: Option<Q<Acceleration>>,
+    /// A rocking platform under the chip (`evolve`): nodes rise by `arm`·sin θ(t).
+    #[serde(default)]
+    pub rocking: Option<RockingSpec>,
+}
+
+/// `rocking:` — θ(t) = angle·sin(2πt/period).
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct RockingSpec {
+    pub angle: Q<Angle>,
+    pub period: Q<Duration>,
 }
 
 /// `nodes.NAME:` — a junction (`{}`), a pressure port or a flow port.
@@ -159,6 +176,39 @@ pub(crate) struct NodeSpec {
     /// Position on the chip drawing, `[x, y]` with units.
     #[serde(default)]
     pub at: Option<[Q<Length>; 2]>,
+    /// Height of the node above the datum (a well's bottom; an outlet tube's end).
+    #[serde(default)]
+    pub elevation: Option<Q<Length>>,
+    /// An open well at this node (then the node is a pressure port).
+    #[serde(default)]
+    pub reservoir: Option<ReservoirSpec>,
+    /// Gas trapped at the node (a bubble in a syringe), at the initial pressure.
+    #[serde(default)]
+    pub gas_volume: Option<Q<Volume>>,
+    /// A given compliance (soft tubing, a soft chamber).
+    #[serde(default)]
+    pub compliance: Option<Q<Compliance>>,
+    /// `evolve`: the port is off (flow 0, or only its head) until this time.
+    #[serde(default)]
+    pub on_at: Option<Q<Duration>>,
+    /// Horizontal distance from the rocking axis (signed), if the chip sits on a platform.
+    #[serde(default)]
+    pub arm: Option<Q<Length>>,
+}
+
+/// `nodes.NAME.reservoir:` — an open well: its level (free surface above the datum) and its
+/// wetted cross-section, as an area or a cylinder diameter.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct ReservoirSpec {
+    pub level: Q<Length>,
+    #[serde(default)]
+    pub area: Option<Q<Area>>,
+    #[serde(default)]
+    pub diameter: Option<Q<Length>>,
+    /// Gauge pressure of the gas above the surface (default 0: open to the room).
+    #[serde(default)]
+    pub gas_pressure: Option<Q<Pressure>>,
 }
 
 /// `channels.NAME:`.
@@ -239,12 +289,60 @@ impl From<NetworkError> for Misplaced {
 }
 
 impl ChipFile {
+    /// Time-varying drives: ports switched on, the rocking platform and its arms.
+    fn drives(&self, network: &crate::network::Network) -> Result<Drives, Misplaced> {
+        let mut drives = Drives::default();
+        let mut arms = Vec::new();
+        for (i, (name, spec)) in self.nodes.0.iter().enumerate() {
+            let node = crate::network::NodeId(i);
+            if let Some(t) = spec.on_at {
+                if network.nodes[node].port == Port::Junction {
+                    return Err(at(
+                        &["nodes", name, "on_at"],
+                        "only a port (pressure or flow) can be switched on",
+                    ));
+                }
+                if !(t.0.si().is_finite() && t.0.si() >= 0.0) {
+                    return Err(at(&["nodes", name, "on_at"], "must be a time from 0 on"));
+                }
+                drives.switch_on.push(SwitchOn { node, at: t.0.si() });
+            }
+            if let Some(a) = spec.arm {
+                if self.rocking.is_none() {
+                    return Err(at(
+                        &["nodes", name, "arm"],
+                        "an arm needs a platform: add 'rocking: {angle: 7 deg, period: 1 min}'",
+                    ));
+                }
+                arms.push((node, a.0.si()));
+            }
+        }
+        if let Some(r) = &self.rocking {
+            let (angle, period) = (r.angle.0.si(), r.period.0.si());
+            if !(period > 0.0 && angle.abs() < std::f64::consts::FRAC_PI_2) {
+                return Err(at(
+                    &["rocking"],
+                    "needs a positive period and an angle below 90 deg",
+                ));
+            }
+            drives.rocking = Some(Rocking {
+                amplitude: angle,
+                period,
+                arms,
+            });
+        }
+        Ok(drives)
+    }
+
     fn into_chip(self, read: FileReader<'_>, source: Source) -> Result<Chip, Misplaced> {
         let (fluid, notes) = self.fluid.to_fluid()?;
         let mut b =
             NetworkBuilder::new(fluid).with_capacity(self.nodes.0.len(), self.channels.0.len());
         if let Some(rating) = self.pressure_rating {
             b.pressure_rating(rating.0)?;
+        }
+        if let Some(g) = self.gravity {
+            b.gravity(g.0.si())?;
         }
         if let Some(tol) = self.section_tolerance {
             if !(tol.is_finite() && tol > 0.0 && tol < 0.1) {
@@ -264,21 +362,13 @@ impl ChipFile {
             b.add_section(name, shape)?;
         }
         for (name, spec) in &self.nodes.0 {
-            let port = match (spec.pressure, spec.flow) {
-                (Some(_), Some(_)) => {
-                    return Err(at(
-                        &["nodes", name, "flow"],
-                        format!(
-                            "node '{name}' has both 'pressure' and 'flow'; a port is either \
-                             pressure-controlled or flow-controlled. Keep one (a junction has neither)"
-                        ),
-                    ))
-                }
-                (Some(p), None) => Port::Pressure(p.0),
-                (None, Some(q)) => Port::Flow(q.0),
-                (None, None) => Port::Junction,
-            };
-            b.add_node(name, port)?;
+            let port = node_port(name, spec)?;
+            let id = b.add_node(name, port)?;
+            let storage = node_storage(name, spec)?;
+            if storage.is_some() || spec.elevation.is_some() {
+                let z = spec.elevation.map_or(Length::from_si(0.0), |e| e.0);
+                b.node_storage(id, z, storage)?;
+            }
         }
         for (name, spec) in &self.channels.0 {
             let section: SectionId = match &spec.section {
@@ -294,6 +384,7 @@ impl ChipFile {
             }
         }
         let network = b.build()?;
+        let drives = self.drives(&network)?;
         let node_at = self
             .nodes
             .0
@@ -341,9 +432,137 @@ impl ChipFile {
                 node_at,
                 channel_path,
             },
+            drives,
             notes,
         })
     }
+}
+
+/// A node's port: pressure, flow, a well (a pressure port at its gas pressure) or a junction.
+fn node_port(name: &str, spec: &NodeSpec) -> Result<Port, Misplaced> {
+    if let Some(r) = &spec.reservoir {
+        if spec.pressure.is_some() || spec.flow.is_some() {
+            let key = if spec.pressure.is_some() {
+                "pressure"
+            } else {
+                "flow"
+            };
+            return Err(at(
+                &["nodes", name, key],
+                format!(
+                    "node '{name}' is a reservoir, which sets its own pressure from its level; \
+                     remove '{key}' (a gas pressure above the surface goes in \
+                     'reservoir: {{gas_pressure: ...}}')"
+                ),
+            ));
+        }
+        if spec.adjust.is_some() {
+            return Err(at(
+                &["nodes", name, "adjust"],
+                format!("node '{name}': 'adjust' is not available on a reservoir"),
+            ));
+        }
+        return Ok(Port::Pressure(
+            r.gas_pressure.map_or(Pressure::from_si(0.0), |g| g.0),
+        ));
+    }
+    if spec.adjust.is_some() && spec.elevation.is_some_and(|e| e.0.si() != 0.0) {
+        return Err(at(
+            &["nodes", name, "adjust"],
+            format!(
+                "node '{name}': 'adjust' is not available on a port with an elevation \
+                 (tuned settings would mix the set pressure with the hydrostatic head)"
+            ),
+        ));
+    }
+    Ok(match (spec.pressure, spec.flow) {
+        (Some(_), Some(_)) => {
+            return Err(at(
+                &["nodes", name, "flow"],
+                format!(
+                    "node '{name}' has both 'pressure' and 'flow'; a port is either \
+                     pressure-controlled or flow-controlled. Keep one (a junction has neither)"
+                ),
+            ))
+        }
+        (Some(p), None) => Port::Pressure(p.0),
+        (None, Some(q)) => Port::Flow(q.0),
+        (None, None) => Port::Junction,
+    })
+}
+
+/// A node's storage: a well, trapped gas or a given compliance (at most one).
+fn node_storage(name: &str, spec: &NodeSpec) -> Result<Option<Storage>, Misplaced> {
+    let given = [
+        spec.reservoir.is_some(),
+        spec.gas_volume.is_some(),
+        spec.compliance.is_some(),
+    ];
+    if given.iter().filter(|g| **g).count() > 1 {
+        return Err(at(
+            &["nodes", name],
+            format!(
+                "node '{name}' has more than one of 'reservoir', 'gas_volume' and 'compliance'; \
+                 give one storage per node (split the node with a short channel if both exist)"
+            ),
+        ));
+    }
+    if let Some(v) = spec.gas_volume {
+        return Ok(Some(Storage::Gas { volume: v.0 }));
+    }
+    if let Some(c) = spec.compliance {
+        return Ok(Some(Storage::Compliance(c.0)));
+    }
+    match &spec.reservoir {
+        None => Ok(None),
+        Some(r) => well(name, r, spec.elevation.is_some()).map(|w| Some(Storage::Well(w))),
+    }
+}
+
+/// A well from its spec: the area given or from the diameter; a level on or above the datum
+/// unless the well's elevation is given (the builder then checks level ≥ bottom).
+fn well(name: &str, r: &ReservoirSpec, has_elevation: bool) -> Result<Well, Misplaced> {
+    let area = match (r.area, r.diameter) {
+        (Some(a), None) => a.0,
+        (None, Some(d)) if d.0.si() > 0.0 => {
+            Area::from_si(std::f64::consts::PI / 4.0 * d.0.si() * d.0.si())
+        }
+        (None, Some(d)) => {
+            return Err(at(
+                &["nodes", name, "reservoir", "diameter"],
+                format!("must be a positive length, got {} m", d.0.si()),
+            ));
+        }
+        (Some(_), Some(_)) => {
+            return Err(at(
+                &["nodes", name, "reservoir", "diameter"],
+                "give the well's 'area' or its 'diameter', not both",
+            ));
+        }
+        (None, None) => {
+            return Err(at(
+                &["nodes", name, "reservoir"],
+                format!(
+                    "reservoir '{name}' needs its wetted cross-section: 'area' (e.g. 12 mm^2) \
+                     or a cylinder 'diameter' (e.g. 5 mm)"
+                ),
+            ))
+        }
+    };
+    if r.level.0.si() < 0.0 && !has_elevation {
+        return Err(at(
+            &["nodes", name, "reservoir", "level"],
+            format!(
+                "must not be negative ({} m) for a well whose bottom is on the datum; \
+                 give the well's 'elevation' if it sits below the chip",
+                r.level.0.si()
+            ),
+        ));
+    }
+    Ok(Well {
+        level: r.level.0,
+        area,
+    })
 }
 
 /// The notes of every measured-profile section, in file order.

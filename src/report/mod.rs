@@ -5,6 +5,7 @@
 
 mod csv;
 mod design;
+mod evolve;
 pub mod findings;
 pub mod folder;
 mod html;
@@ -180,6 +181,9 @@ pub fn render(outcome: &Outcome, format: Format, w: &mut dyn Write) -> io::Resul
                 csv::solve_table(&after.chip, &after.state, &mut tables)
             }
         },
+        (Outcome::Evolved(o), Format::Table) => evolve::evolve_table(o, w),
+        (Outcome::Evolved(o), Format::Json) => evolve::evolve_json(o, w),
+        (Outcome::Evolved(o), Format::Csv) => evolve::evolve_csv(o, &mut csv::Tables::new(w)),
         (Outcome::Section(o), Format::Table) => w.write_all(section_report(o).as_bytes()),
         (Outcome::Section(o), Format::Json) => section::section_json(o, w),
         (Outcome::Section(o), Format::Csv) => section::section_csv(o, &mut csv::Tables::new(w)),

@@ -147,15 +147,28 @@ pub struct KirchhoffSystem {
     node_of: Vec<usize>,
     pattern: SymmetricPattern,
     slots: Vec<ChannelSlots>,
+    /// Slot of each unknown's diagonal entry.
+    diag: Vec<usize>,
 }
 
 impl KirchhoffSystem {
     /// Build the structure for `network`.
     pub fn new(network: &Network) -> Self {
+        let fixed: Vec<bool> = network
+            .nodes
+            .iter()
+            .map(|n| matches!(n.port, Port::Pressure(_)))
+            .collect();
+        Self::with_fixed(network, &fixed)
+    }
+
+    /// The structure with the nodes marked `fixed` as known pressures and every other node an
+    /// unknown (time evolution frees the wells, whose pressure follows their level).
+    pub fn with_fixed(network: &Network, fixed: &[bool]) -> Self {
         let mut unknown_of = Vec::with_capacity(network.nodes.len());
         let mut node_of = Vec::new();
-        for (i, node) in network.nodes.iter().enumerate() {
-            if matches!(node.port, Port::Pressure(_)) {
+        for (i, &f) in fixed.iter().enumerate().take(network.nodes.len()) {
+            if f {
                 unknown_of.push(None);
             } else {
                 unknown_of.push(Some(node_of.len()));
@@ -189,12 +202,19 @@ impl KirchhoffSystem {
                 off: off.map(|k| slot_of[k]),
             })
             .collect();
+        let diag = slot_of[..n].to_vec();
         KirchhoffSystem {
             unknown_of,
             node_of,
             pattern,
             slots,
+            diag,
         }
+    }
+
+    /// Slot of the diagonal entry of unknown `u` in the matrix values.
+    pub fn diagonal_slot(&self, u: usize) -> usize {
+        self.diag[u]
     }
 
     /// The sparsity pattern (lower triangle).
@@ -289,14 +309,18 @@ impl KirchhoffSystem {
     }
 }
 
-/// Each node's drive value: pressure of a pressure port, injected flow of a flow port, 0 at a
-/// junction (SI).
+/// Each node's drive value: the piezometric pressure of a pressure port (its set pressure plus
+/// ρ·g·z, or a well's gas pressure plus ρ·g·level: [`Network::imposed_head`]; the set pressure
+/// itself on the datum), injected flow of a flow port, 0 at a junction (SI).
 pub fn drive_values(network: &Network) -> Vec<f64> {
     network
         .nodes
         .iter()
-        .map(|n| match n.port {
-            Port::Pressure(p) => p.si(),
+        .enumerate()
+        .map(|(i, n)| match n.port {
+            Port::Pressure(p) => network
+                .imposed_head(crate::network::NodeId(i))
+                .unwrap_or(p.si()),
             Port::Flow(q) => q.si(),
             Port::Junction => 0.0,
         })

@@ -1,0 +1,202 @@
+//! `evolve` results: events and delivered volumes as a table; the series as JSON and CSV
+//! (SI, unit in every key: `times_s`, `flow_m3_per_s`, `level_m`).
+
+use super::csv::Tables;
+use super::fmt_sig;
+use super::json::write_json;
+use crate::analysis::transient::events::{Event, EventKind};
+use crate::outcome::EvolveOutcome;
+use serde::Serialize;
+use std::io::{self, Write};
+
+fn kind(k: EventKind) -> String {
+    match k {
+        EventKind::Settled(p) => format!("settled_{p}"),
+        EventKind::Dry => "dry".into(),
+        EventKind::LevelsEqual => "levels_equal".into(),
+    }
+}
+
+fn words(e: &Event) -> String {
+    match e.kind {
+        EventKind::Settled(p) => format!("flow in '{}' covers {p} % of its change", e.subject),
+        EventKind::Dry => format!(
+            "well '{}' runs dry: its port then carries no flow, which this model does not \
+             follow, so the run stops here",
+            e.subject
+        ),
+        EventKind::LevelsEqual => format!(
+            "levels of {} within 1 % of their initial difference",
+            e.subject.replace('=', " and ")
+        ),
+    }
+}
+
+/// The terminal report: the run, events in time order, volumes delivered, final levels.
+pub fn evolve_table(o: &EvolveOutcome, w: &mut dyn Write) -> io::Result<()> {
+    let ev = &o.evolution;
+    let end = ev.times.last().copied().unwrap_or(0.0);
+    writeln!(
+        w,
+        "Evolution over {} s: {} outputs, {} steps ({} rejected), {} factorisations",
+        fmt_sig(end, 4),
+        ev.times.len(),
+        ev.steps,
+        ev.rejected,
+        ev.factorizations
+    )?;
+    writeln!(
+        w,
+        "(pressures are piezometric, P = p + rho*g*z from the datum; levels above the datum)\n"
+    )?;
+    writeln!(w, "{:>12}  event", "time [s]")?;
+    for e in &o.events {
+        writeln!(w, "{:>12}  {}", fmt_sig(e.time, 5), words(e))?;
+    }
+    if o.events.is_empty() {
+        writeln!(w, "{:>12}  (no events)", "")?;
+    }
+    writeln!(w, "\n{:<20} {:>18}", "port", "delivered [uL]")?;
+    for (node, v) in &o.delivered {
+        let name = &o.chip.network.nodes[*node].name;
+        writeln!(w, "{:<20} {:>18}", name, fmt_sig(v * 1e9, 5))?;
+    }
+    if !ev.levels.is_empty() {
+        writeln!(
+            w,
+            "\n{:<20} {:>14} {:>14}",
+            "well", "start [mm]", "end [mm]"
+        )?;
+        for (node, l) in &ev.levels {
+            let name = &o.chip.network.nodes[*node].name;
+            let first = l.first().copied().unwrap_or(0.0) * 1e3;
+            let last = l.last().copied().unwrap_or(0.0) * 1e3;
+            writeln!(
+                w,
+                "{:<20} {:>14} {:>14}",
+                name,
+                fmt_sig(first, 5),
+                fmt_sig(last, 5)
+            )?;
+        }
+    }
+    writeln!(w, "\n{}", super::CAUTION)
+}
+
+#[derive(Serialize)]
+struct JsonChannel<'a> {
+    name: &'a str,
+    flow_m3_per_s: Vec<f64>,
+}
+
+#[derive(Serialize)]
+struct JsonWell<'a> {
+    name: &'a str,
+    level_m: &'a [f64],
+}
+
+#[derive(Serialize)]
+struct JsonEvent<'a> {
+    kind: String,
+    subject: &'a str,
+    time_s: f64,
+}
+
+#[derive(Serialize)]
+struct JsonDelivered<'a> {
+    name: &'a str,
+    volume_m3: f64,
+}
+
+#[derive(Serialize)]
+struct JsonEvolution<'a> {
+    schema_version: u32,
+    command: &'static str,
+    stopped_dry: bool,
+    times_s: &'a [f64],
+    channels: Vec<JsonChannel<'a>>,
+    reservoirs: Vec<JsonWell<'a>>,
+    events: Vec<JsonEvent<'a>>,
+    delivered: Vec<JsonDelivered<'a>>,
+}
+
+/// The JSON document: series at every output instant, events, delivered volumes.
+pub fn evolve_json(o: &EvolveOutcome, w: &mut dyn Write) -> io::Result<()> {
+    let net = &o.chip.network;
+    let ev = &o.evolution;
+    let doc = JsonEvolution {
+        schema_version: super::SCHEMA_VERSION,
+        command: "evolve",
+        stopped_dry: o.stopped_dry,
+        times_s: &ev.times,
+        channels: net
+            .channels
+            .iter()
+            .enumerate()
+            .map(|(c, ch)| JsonChannel {
+                name: &ch.name,
+                flow_m3_per_s: ev.flows.iter().map(|f| f[c] + 0.0).collect(),
+            })
+            .collect(),
+        reservoirs: ev
+            .levels
+            .iter()
+            .map(|(n, l)| JsonWell {
+                name: &net.nodes[*n].name,
+                level_m: l,
+            })
+            .collect(),
+        events: o
+            .events
+            .iter()
+            .map(|e| JsonEvent {
+                kind: kind(e.kind),
+                subject: &e.subject,
+                time_s: e.time,
+            })
+            .collect(),
+        delivered: o
+            .delivered
+            .iter()
+            .map(|(n, v)| JsonDelivered {
+                name: &net.nodes[*n].name,
+                volume_m3: *v,
+            })
+            .collect(),
+    };
+    write_json(&doc, w)
+}
+
+/// CSV: one series table (time, every channel's flow, every well's level), then events.
+pub fn evolve_csv(o: &EvolveOutcome, t: &mut Tables<'_>) -> io::Result<()> {
+    let net = &o.chip.network;
+    let ev = &o.evolution;
+    let mut header: Vec<String> = vec!["record".into(), "time_s".into()];
+    header.extend(
+        net.channels
+            .iter()
+            .map(|c| format!("{}_flow_m3_per_s", c.name)),
+    );
+    header.extend(
+        ev.levels
+            .iter()
+            .map(|(n, _)| format!("{}_level_m", net.nodes[*n].name)),
+    );
+    let header_refs: Vec<&str> = header.iter().map(String::as_str).collect();
+    let rows = ev.times.iter().enumerate().map(|(k, time)| {
+        let mut row = vec!["sample".to_string(), format!("{time:e}")];
+        row.extend(ev.flows[k].iter().map(|q| format!("{:e}", q + 0.0)));
+        row.extend(ev.levels.iter().map(|(_, l)| format!("{:e}", l[k])));
+        row
+    });
+    t.table(&header_refs, rows)?;
+    let events = o.events.iter().map(|e| {
+        vec![
+            "event".to_string(),
+            kind(e.kind),
+            e.subject.clone(),
+            format!("{:e}", e.time),
+        ]
+    });
+    t.table(&["record", "kind", "subject", "time_s"], events)
+}
