@@ -55,7 +55,7 @@ fn a_draining_well_decays_exponentially() {
     let run = Run {
         duration: 5.0 * tau,
         every: tau / 20.0,
-        rtol: 1e-9,
+        rtol: rillnet::commands::EVOLVE_RTOL,
     };
     let ev = evolve(&c.network, &Drives::default(), run).unwrap();
     let (_, levels) = &ev.levels[0];
@@ -104,7 +104,7 @@ fn two_wells_equalise_with_the_reduced_time_constant() {
         Run {
             duration: 6.0 * tau,
             every: tau / 10.0,
-            rtol: 1e-9,
+            rtol: rillnet::commands::EVOLVE_RTOL,
         },
     )
     .unwrap();
@@ -147,7 +147,7 @@ fn a_syringe_bubble_delays_the_flow() {
         Run {
             duration: 6.0 * tau,
             every: tau / 8.0,
-            rtol: 1e-9,
+            rtol: rillnet::commands::EVOLVE_RTOL,
         },
     )
     .unwrap();
