@@ -1,6 +1,8 @@
 //! Property tests on random connected networks: conservation, linearity, sign conventions.
 //! These follow from Kirchhoff's laws and the linearity of Stokes flow, not from a table.
 
+mod common;
+
 use proptest::prelude::*;
 use rillnet::analysis::kirchhoff::balance_residuals;
 use rillnet::prelude::*;
@@ -55,25 +57,7 @@ fn build(spec: &Spec, scale: f64, flip: Option<usize>, uniform_pressure: Option<
         };
         b.add_node(&format!("n{i}"), port).unwrap();
     }
-    for (k, &(a, c, d, l)) in spec.channels.iter().enumerate() {
-        let (a, c) = if flip == Some(k) { (c, a) } else { (a, c) };
-        let s = b
-            .inline_section(
-                &format!("c{k}"),
-                Shape::Circle {
-                    diameter: Length::from_si(d * 1e-6),
-                },
-            )
-            .unwrap();
-        b.add_channel(
-            &format!("c{k}"),
-            &format!("n{a}"),
-            &format!("n{c}"),
-            s,
-            Length::from_si(l * 1e-3),
-        )
-        .unwrap();
-    }
+    common::add_circle_channels(&mut b, &spec.channels, flip);
     b.build().unwrap()
 }
 

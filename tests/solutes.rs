@@ -245,24 +245,7 @@ fn build(spec: &Spec) -> Network {
         };
         b.add_node(&format!("n{i}"), port).unwrap();
     }
-    for (k, &(a, c, d, l)) in spec.channels.iter().enumerate() {
-        let s = b
-            .inline_section(
-                &format!("c{k}"),
-                Shape::Circle {
-                    diameter: Length::from_si(d * 1e-6),
-                },
-            )
-            .unwrap();
-        b.add_channel(
-            &format!("c{k}"),
-            &format!("n{a}"),
-            &format!("n{c}"),
-            s,
-            Length::from_si(l * 1e-3),
-        )
-        .unwrap();
-    }
+    common::add_circle_channels(&mut b, &spec.channels, None);
     b.build().unwrap()
 }
 

@@ -53,3 +53,33 @@ pub fn write_file(dir: &Path, name: &str, text: &str) -> std::path::PathBuf {
     std::fs::write(&p, text).unwrap();
     p
 }
+
+/// Add channels `c{k}` between nodes `n{a}` and `n{c}` for each (a, c, diameter µm, length mm),
+/// each a circle of its own inline section; `flip` reverses channel k's direction.
+pub fn add_circle_channels(
+    b: &mut rillnet::network::NetworkBuilder,
+    channels: &[(usize, usize, f64, f64)],
+    flip: Option<usize>,
+) {
+    use rillnet::section::Shape;
+    use rillnet::units::Length;
+    for (k, &(a, c, d, l)) in channels.iter().enumerate() {
+        let (a, c) = if flip == Some(k) { (c, a) } else { (a, c) };
+        let s = b
+            .inline_section(
+                &format!("c{k}"),
+                Shape::Circle {
+                    diameter: Length::from_si(d * 1e-6),
+                },
+            )
+            .unwrap();
+        b.add_channel(
+            &format!("c{k}"),
+            &format!("n{a}"),
+            &format!("n{c}"),
+            s,
+            Length::from_si(l * 1e-3),
+        )
+        .unwrap();
+    }
+}
