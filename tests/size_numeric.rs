@@ -7,25 +7,13 @@
 
 mod common;
 
-use common::{channel_flow, json_of, rillnet};
+use common::{channel_flow, converged_ln_k as ln_k, json_of, rillnet};
 use rillnet::analysis::design::{dimension, dlog_resistance_numeric, with_dimension};
-use rillnet::section::numeric::NumericOptions;
 use rillnet::section::Shape;
 use rillnet::units::Length;
 
 fn um(x: f64) -> Length {
     Length::from_si(x * 1e-6)
-}
-
-/// ln K and its relative error estimate from a converged solve at `tolerance`.
-fn ln_k(shape: &Shape, tolerance: f64) -> (f64, f64) {
-    let opts = NumericOptions {
-        tolerance,
-        ..NumericOptions::default()
-    };
-    let sol = shape.solve_numeric(&opts).expect("solvable section");
-    assert!(sol.converged, "{shape:?} did not converge");
-    (sol.conductance_factor.ln(), sol.relative_error_estimate)
 }
 
 /// The library's d ln R'/dw against a central difference of two converged solves done here

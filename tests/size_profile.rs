@@ -8,9 +8,8 @@
 
 mod common;
 
-use common::{channel_flow, json_of, rillnet, write_file};
+use common::{channel_flow, converged_ln_k as ln_k, json_of, rillnet, write_file};
 use rillnet::analysis::design::{dimension, dlog_resistance_numeric, with_dimension};
-use rillnet::section::numeric::NumericOptions;
 use rillnet::section::Shape;
 use rillnet::units::Length;
 
@@ -33,16 +32,6 @@ fn scan_shape() -> Shape {
             .map(|(x, d)| [Length::from_si(x * 1e-6), Length::from_si(d * 1e-6)])
             .collect(),
     }
-}
-
-fn ln_k(shape: &Shape, tolerance: f64) -> (f64, f64) {
-    let opts = NumericOptions {
-        tolerance,
-        ..NumericOptions::default()
-    };
-    let sol = shape.solve_numeric(&opts).expect("solvable section");
-    assert!(sol.converged, "did not converge");
-    (sol.conductance_factor.ln(), sol.relative_error_estimate)
 }
 
 #[test]

@@ -83,3 +83,15 @@ pub fn add_circle_channels(
         .unwrap();
     }
 }
+
+/// ln K of a numerically solved section at `tolerance`, with its relative error estimate;
+/// the solve must converge.
+pub fn converged_ln_k(shape: &rillnet::section::Shape, tolerance: f64) -> (f64, f64) {
+    let opts = rillnet::section::numeric::NumericOptions {
+        tolerance,
+        ..Default::default()
+    };
+    let sol = shape.solve_numeric(&opts).expect("solvable section");
+    assert!(sol.converged, "{shape:?} did not converge");
+    (sol.conductance_factor.ln(), sol.relative_error_estimate)
+}
