@@ -5,7 +5,8 @@
 //! - `src/network.rs` and `src/analysis/**` import no `Chip` (the design data types of
 //!   `chip::design` are fine), no format, report, plots or commands;
 //! - serde appears only in `src/format/**` and `src/report/**`;
-//! - `src/main.rs` stays thin: at most [`MAIN_MAX_LINES`] lines and no `std::fs`;
+//! - `src/main.rs` stays thin: at most [`MAIN_MAX_LINES`] lines and no `std::fs`; its
+//!   argument definitions (`src/cli.rs`, a module of the binary) use no `std::fs` either;
 //! - no `.unwrap()` in `src/**` outside `#[cfg(test)]` items (comments, doc examples and
 //!   string contents do not count).
 //!
@@ -641,12 +642,12 @@ fn serde_rule(src: &Source) -> Vec<Violation> {
 }
 
 fn main_rule(src: &Source) -> Vec<Violation> {
-    if src.rel != "src/main.rs" {
+    if src.rel != "src/main.rs" && src.rel != "src/cli.rs" {
         return vec![];
     }
     let mut out = Vec::new();
     let lines = src.text.lines().count();
-    if lines > MAIN_MAX_LINES {
+    if src.rel == "src/main.rs" && lines > MAIN_MAX_LINES {
         out.push(Violation {
             rule: "main-thin",
             file: src.rel.clone(),

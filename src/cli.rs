@@ -1,0 +1,193 @@
+//! The `rillnet` command line: every command, option and value the binary accepts (clap
+//! derive). Parsing only; `main.rs` calls the library with what was parsed.
+
+use clap::{Parser, Subcommand, ValueEnum};
+use rillnet::report::Format;
+use std::path::PathBuf;
+
+#[derive(Parser)]
+#[command(
+    name = "rillnet",
+    version,
+    about = "Laminar flow, pressure and wall shear in microfluidic channel networks"
+)]
+pub struct Cli {
+    /// Print nothing on standard error but errors (no status lines).
+    #[arg(long, short, global = true, conflicts_with = "verbose")]
+    pub quiet: bool,
+    /// Also print timings and solver figures on standard error.
+    #[arg(long, short, global = true)]
+    pub verbose: bool,
+    /// Syntax of a chip read from standard input ('-'); default: guessed from its first
+    /// character ('{' is JSON).
+    #[arg(long, value_enum, global = true)]
+    pub syntax: Option<SyntaxArg>,
+    /// Memory a run may plan to use, e.g. '8 GiB' (default: RILLNET_MEMORY_BUDGET, else half
+    /// the physical memory); larger chips are refused before they are built.
+    #[arg(long, global = true, value_parser = rillnet::memory::parse_size)]
+    pub memory_budget: Option<u64>,
+    #[command(subcommand)]
+    pub command: Command,
+}
+
+#[derive(Subcommand)]
+pub enum Command {
+    /// Solve a chip: every node pressure, channel flow, wall shear and port operating point.
+    Solve {
+        /// Chip file (.yaml/.yml, or .json); '-' reads standard input.
+        file: PathBuf,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+        /// Write to this new file instead of standard output (never overwrites).
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+        /// Draw the wall-shear margin chart to this new .svg or .png file.
+        #[arg(long)]
+        plot: Option<PathBuf>,
+        /// Also give d(flow)/d(width, height, length), absolute and relative, for the target
+        /// channels (or those named by --channels).
+        #[arg(long)]
+        sensitivity: bool,
+        /// Channels whose flows --sensitivity differentiates, comma-separated.
+        #[arg(long, value_delimiter = ',', requires = "sensitivity")]
+        channels: Vec<String>,
+    },
+    /// Tune the adjustable ports (pressure controllers, syringe pumps) to meet the chip's targets.
+    Tune {
+        /// Chip file with 'targets:' and ports marked 'adjust: {min: ..., max: ...}'.
+        file: PathBuf,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+        /// Write the tuned chip to this new file.
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+        /// Do not hold wall-shear limits and the pressure rating as constraints.
+        #[arg(long)]
+        ignore_limits: bool,
+    },
+    /// Size channel lengths/widths (marked 'size:') to meet the chip's targets, drives fixed.
+    Size {
+        /// Chip file with 'targets:' and channels marked 'size: {length: {min: ..., max: ...}}'.
+        file: PathBuf,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+        /// Write the sized chip to this new file.
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+        /// Straight run of a serpentine for long channels, e.g. '10 mm'.
+        #[arg(long, default_value = "10 mm")]
+        run: String,
+        /// Centre-line pitch of the serpentine, e.g. '400 um'.
+        #[arg(long, default_value = "400 um")]
+        pitch: String,
+        /// Do not hold wall-shear limits and the pressure rating as constraints.
+        #[arg(long)]
+        ignore_limits: bool,
+    },
+    /// Draw the chip: flow splits (default) or pressure along the flow paths, to SVG or PNG.
+    Plot {
+        /// Chip file; '-' reads standard input.
+        file: PathBuf,
+        /// Which picture.
+        #[arg(long, value_enum, default_value_t = Show::Splits)]
+        show: Show,
+        /// What the channel colours show (splits picture).
+        #[arg(long, value_enum, default_value_t = Colour::Pressure)]
+        colour: Colour,
+        /// New .svg or .png file to write.
+        #[arg(long, short)]
+        output: PathBuf,
+    },
+    /// Write tables (CSV, JSON, text), every picture and a self-contained HTML page into a new folder.
+    Report {
+        /// Chip file; '-' reads standard input.
+        file: PathBuf,
+        /// Folder to create (or an empty one).
+        #[arg(long, short)]
+        output: PathBuf,
+        /// Also write into a folder that has files already (never replacing any).
+        #[arg(long)]
+        into_existing: bool,
+    },
+    /// Follow a chip in time: wells, trapped gas, soft parts, ports switched on, rocking.
+    Evolve {
+        /// Chip file; '-' reads standard input.
+        file: PathBuf,
+        /// How long, e.g. '2 h'.
+        #[arg(long = "for")]
+        span: String,
+        /// Output interval, e.g. '10 s'.
+        #[arg(long, default_value = "10 s")]
+        every: String,
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+    },
+    /// Check a chip against its limits (cells' wall-shear limit, chip pressure rating,
+    /// vacuum); exits 1 when any limit is exceeded.
+    Check {
+        /// Chip file (.yaml/.yml, or .json); '-' reads standard input.
+        file: PathBuf,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+        /// Draw the wall-shear margin chart to this new .svg or .png file.
+        #[arg(long)]
+        plot: Option<PathBuf>,
+    },
+    /// Figures of one cross-section: area, perimeter, hydraulic diameter, resistance per
+    /// length, f·Re, mean and maximum wall shear per unit gradient, error estimate.
+    Section {
+        /// The section as a mapping in chip-file syntax, e.g.
+        /// '{shape: trapezoid, top: 120 um, depth: 40 um, sidewall: 54.74 deg}'.
+        spec: Option<String>,
+        /// Take the section from this chip file (with --name); '-' reads standard input.
+        #[arg(long, requires = "name")]
+        file: Option<PathBuf>,
+        /// Name of the section in the chip file (CHANNEL.section for an inline one).
+        #[arg(long, requires = "file")]
+        name: Option<String>,
+        /// Viscosity for the resistance, e.g. '1.0 mPa*s' (default: the chip's fluid, or
+        /// water at 20 °C).
+        #[arg(long)]
+        viscosity: Option<String>,
+        /// Relative error target for numerical shapes.
+        #[arg(long)]
+        tolerance: Option<f64>,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+        /// Draw the velocity field and the wall shear to this new .svg or .png file.
+        #[arg(long)]
+        plot: Option<PathBuf>,
+    },
+    /// Print a shell completion script for rillnet to standard output.
+    Completions {
+        /// The shell.
+        #[arg(value_enum)]
+        shell: clap_complete::Shell,
+    },
+    /// Print rillnet's manual page (roff) to standard output, e.g. `rillnet manual > rillnet.1`.
+    Manual,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+pub enum Show {
+    Splits,
+    Pressure,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+pub enum Colour {
+    Pressure,
+    Flow,
+    Margin,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+pub enum SyntaxArg {
+    Yaml,
+    Json,
+}
