@@ -33,6 +33,7 @@ fn main() {
             at: 0.1,
         }],
         rocking: None,
+        ..Drives::default()
     };
     for rtol in [1e-6, 1e-9, 1e-12] {
         let t = Instant::now();

@@ -282,11 +282,15 @@ pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
             source,
         })?;
     let dry = events::stop_at_dry(&chip.network, &mut evolution);
-    let switched = chip
-        .drives
-        .switch_on
-        .iter()
-        .map(|s| s.at)
+    // Settling is measured from the last change of a drive: a switch, or the end of a ramp
+    // or schedule.
+    let switched = (chip.drives.switch_on.iter().map(|s| s.at))
+        .chain(
+            chip.drives
+                .profiles
+                .iter()
+                .filter_map(|p| p.points.last().map(|q| q.0)),
+        )
         .fold(0.0, f64::max);
     let mut list = events::settling(&chip.network, &evolution, switched);
     list.extend(events::levels_equal(&chip.network, &evolution));

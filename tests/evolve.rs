@@ -140,6 +140,7 @@ fn a_syringe_bubble_delays_the_flow() {
             at: t0,
         }],
         rocking: None,
+        ..Drives::default()
     };
     let ev = evolve(
         &c.network,
@@ -187,6 +188,7 @@ fn stepping_to_rest_reaches_the_steady_solve() {
             at: 1.0,
         }],
         rocking: None,
+        ..Drives::default()
     };
     let ev = evolve(
         &c.network,
@@ -233,6 +235,7 @@ fn rocking_a_linear_network_averages_to_the_mean_head() {
             period,
             arms: vec![(n, -0.015), (m, 0.015)],
         }),
+        ..Drives::default()
     };
     let per_cycle = 400;
     let cycles = 30.0;

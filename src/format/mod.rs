@@ -21,6 +21,7 @@
 //! ```
 
 mod design_spec;
+mod drive_spec;
 pub mod edit;
 mod fluid_spec;
 mod locate;
@@ -33,6 +34,7 @@ mod yaml_guard;
 // The serde types of the file format stay inside the crate: the rest of the program sees
 // only Chip and the domain types they convert into.
 pub(crate) use design_spec::{AdjustSpec, SizeSpec, TargetSpec};
+pub use drive_spec::parse_schedule;
 pub(crate) use fluid_spec::FluidSpec;
 pub use locate::locate;
 pub(crate) use named::Named;
@@ -191,6 +193,12 @@ pub(crate) struct NodeSpec {
     /// `evolve`: the port is off (flow 0, or only its head) until this time.
     #[serde(default)]
     pub on_at: Option<Q<Duration>>,
+    /// `evolve`: the setting goes linearly to another value over an interval.
+    #[serde(default)]
+    pub ramp: Option<drive_spec::RampSpec>,
+    /// `evolve`: the setting follows a CSV file of (time, value) rows beside the chip file.
+    #[serde(default)]
+    pub schedule: Option<String>,
     /// Horizontal distance from the rocking axis (signed), if the chip sits on a platform.
     #[serde(default)]
     pub arm: Option<Q<Length>>,
@@ -290,7 +298,11 @@ impl From<NetworkError> for Misplaced {
 
 impl ChipFile {
     /// Time-varying drives: ports switched on, the rocking platform and its arms.
-    fn drives(&self, network: &crate::network::Network) -> Result<Drives, Misplaced> {
+    fn drives(
+        &self,
+        network: &crate::network::Network,
+        read: FileReader<'_>,
+    ) -> Result<Drives, Misplaced> {
         let mut drives = Drives::default();
         let mut arms = Vec::new();
         for (i, (name, spec)) in self.nodes.0.iter().enumerate() {
@@ -306,6 +318,27 @@ impl ChipFile {
                     return Err(at(&["nodes", name, "on_at"], "must be a time from 0 on"));
                 }
                 drives.switch_on.push(SwitchOn { node, at: t.0.si() });
+            }
+            let timed = [
+                spec.on_at.is_some(),
+                spec.ramp.is_some(),
+                spec.schedule.is_some(),
+            ];
+            if timed.iter().filter(|b| **b).count() > 1 {
+                return Err(at(
+                    &["nodes", name],
+                    "give a port at most one of 'on_at', 'ramp' and 'schedule'",
+                ));
+            }
+            if let Some(r) = &spec.ramp {
+                drives
+                    .profiles
+                    .push(drive_spec::ramp(network, node, name, r)?);
+            }
+            if let Some(f) = &spec.schedule {
+                drives
+                    .profiles
+                    .push(drive_spec::schedule(network, node, name, f, read)?);
             }
             if let Some(a) = spec.arm {
                 if self.rocking.is_none() {
@@ -384,7 +417,7 @@ impl ChipFile {
             }
         }
         let network = b.build()?;
-        let drives = self.drives(&network)?;
+        let drives = self.drives(&network, read)?;
         let node_at = self
             .nodes
             .0

@@ -8,7 +8,8 @@
 //! system is a DAE of index 1). Integrated by TR-BDF2 ([`integrator`]).
 //!
 //! Drives in time: a flow port or pressure port switched on at t₀ (off before: flow 0, or
-//! the pressure its elevation gives), and a rocking platform: angle θ(t) = θ₀·sin(2πt/T),
+//! the pressure its elevation gives), a port's setting following a piecewise-linear profile
+//! (a ramp or a schedule; steps land on its corners), and a rocking platform: angle θ(t) = θ₀·sin(2πt/T),
 //! each node with an arm (its horizontal distance from the rocking axis) rising by
 //! Δz = arm·sin θ(t).
 
@@ -19,7 +20,7 @@ use crate::analysis::kirchhoff::{conductances, drive_values, KirchhoffSystem};
 use crate::network::{Network, NodeId, Port, Storage, STANDARD_ATMOSPHERE};
 use integrator::{Forcing, LinearDae, Options};
 
-pub use crate::chip::drives::{Drives, Rocking, SwitchOn};
+pub use crate::chip::drives::{Drives, Profile, Rocking, SwitchOn};
 
 pub use integrator::{IntegrationError, Step, Trajectory};
 
@@ -134,6 +135,13 @@ impl<'n> Model<'n> {
                 };
             }
         }
+        for pr in &self.drives.profiles {
+            let i = pr.node.0;
+            d[i] = match self.network.nodes[pr.node].port {
+                Port::Pressure(p) => d[i] - p.si() + pr.at(t),
+                _ => pr.at(t),
+            };
+        }
         if let Some(r) = &self.drives.rocking {
             let rho_g = self.network.specific_weight();
             for (i, di) in d.iter_mut().enumerate() {
@@ -193,6 +201,9 @@ impl Forcing for Model<'_> {
 
     fn breakpoints(&self) -> Vec<f64> {
         let mut b: Vec<f64> = self.drives.switch_on.iter().map(|s| s.at).collect();
+        for p in &self.drives.profiles {
+            b.extend(p.points.iter().map(|&(t, _)| t));
+        }
         b.sort_by(f64::total_cmp);
         b.dedup();
         b
