@@ -276,12 +276,11 @@ pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
         every: every.min(duration),
         rtol: EVOLVE_RTOL,
     };
-    let mut evolution =
+    let evolution =
         transient::evolve(&chip.network, &chip.drives, run).map_err(|source| Error::Evolve {
             origin: chip.source.origin.clone(),
             source,
         })?;
-    let dry = events::stop_at_dry(&chip.network, &mut evolution);
     // Settling is measured from the last change of a drive: a switch, or the end of a ramp
     // or schedule.
     let switched = (chip.drives.switch_on.iter().map(|s| s.at))
@@ -294,8 +293,8 @@ pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
         .fold(0.0, f64::max);
     let mut list = events::settling(&chip.network, &evolution, switched);
     list.extend(events::levels_equal(&chip.network, &evolution));
-    let stopped_dry = dry.is_some();
-    list.extend(dry);
+    let stopped_dry = evolution.stopped_at.is_some();
+    list.extend(events::well_events(&chip.network, &evolution));
     list.sort_by(|a, b| a.time.total_cmp(&b.time));
     let delivered = events::delivered(&chip.network, &evolution);
     Ok(Outcome::Evolved(Box::new(crate::outcome::EvolveOutcome {

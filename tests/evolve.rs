@@ -324,8 +324,9 @@ fn evolve_json_has_the_promised_keys_at_every_instant() {
 }
 
 #[test]
-fn a_draining_well_runs_dry_and_the_run_stops_there() {
-    // Outlet 5 cm below the well bottom: the well empties; the run ends at its dry time.
+fn a_draining_well_runs_dry_and_its_port_then_carries_no_flow() {
+    // Outlet 5 cm below the well bottom: the well empties; its port then carries no flow and
+    // the run goes on to its end.
     let text = format!(
         "{}nodes:\n  well: {{reservoir: {{level: 3 mm, area: 1 mm^2}}}}\n  \
          out: {{pressure: 0 Pa, elevation: -5 cm}}\nchannels:\n{}",
@@ -344,7 +345,10 @@ fn a_draining_well_runs_dry_and_the_run_stops_there() {
         String::from_utf8_lossy(&out.stderr)
     );
     let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
-    assert_eq!(doc["stopped_dry"], true);
+    assert_eq!(doc["stopped_dry"], false);
+    let times = doc["times_s"].as_array().unwrap();
+    assert_eq!(times.len(), 36001);
+    assert_eq!(times.last().unwrap().as_f64(), Some(3600.0));
     let dry = doc["events"]
         .as_array()
         .unwrap()
@@ -360,4 +364,18 @@ fn a_draining_well_runs_dry_and_the_run_stops_there() {
         (t - estimate).abs() < 0.03 * estimate,
         "{t} against {estimate}"
     );
+    // After it: no flow, the level held at the bottom (0 m).
+    let flows = doc["channels"][0]["flow_m3_per_s"].as_array().unwrap();
+    let levels = doc["reservoirs"][0]["level_m"].as_array().unwrap();
+    let q0 = flows[0].as_f64().unwrap();
+    for (k, time) in times.iter().enumerate() {
+        if time.as_f64().unwrap() > t {
+            assert!(
+                flows[k].as_f64().unwrap().abs() <= 1e-9 * q0,
+                "{}",
+                flows[k]
+            );
+            assert_eq!(levels[k].as_f64(), Some(0.0));
+        }
+    }
 }

@@ -13,6 +13,8 @@ fn kind(k: EventKind) -> String {
     match k {
         EventKind::Settled(p) => format!("settled_{p}"),
         EventKind::Dry => "dry".into(),
+        EventKind::Refilled => "refilled".into(),
+        EventKind::DryStop => "dry_stop".into(),
         EventKind::LevelsEqual => "levels_equal".into(),
     }
 }
@@ -21,8 +23,17 @@ fn words(e: &Event) -> String {
     match e.kind {
         EventKind::Settled(p) => format!("flow in '{}' covers {p} % of its change", e.subject),
         EventKind::Dry => format!(
-            "well '{}' runs dry: its port then carries no flow, which this model does not \
-             follow, so the run stops here",
+            "well '{}' runs dry: its port carries no more flow (its node joins its channels \
+             as a plain junction); the run goes on",
+            e.subject
+        ),
+        EventKind::Refilled => format!(
+            "well '{}' takes liquid in again (pushed back from its channels)",
+            e.subject
+        ),
+        EventKind::DryStop => format!(
+            "well '{}' runs dry and leaves part of the chip with nothing to set its pressures \
+             (no pressure port, no storage): the run stops here",
             e.subject
         ),
         EventKind::LevelsEqual => format!(

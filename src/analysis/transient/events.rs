@@ -1,8 +1,9 @@
-//! Answers read off an evolution at its output instants: settling times after a switch,
-//! wells running dry, wells reaching the same level, volume delivered per port.
+//! Answers read off an evolution: settling times after a switch, wells running dry (found by
+//! the run itself on its dense output), wells reaching the same level, volume delivered per
+//! port.
 //!
-//! Event times are interpolated linearly between output instants, so they are as fine as
-//! `--every` (the integrator's own accuracy is finer).
+//! Settling and level times are interpolated linearly between output instants, so they are as
+//! fine as `--every` (the integrator's own accuracy is finer).
 
 use super::Evolution;
 use crate::network::{Network, NodeId, Port, Storage};
@@ -12,9 +13,14 @@ use crate::network::{Network, NodeId, Port, Storage};
 pub enum EventKind {
     /// A channel's flow covered 90 %, 95 % or 99 % of its change since the last switch.
     Settled(u8),
-    /// A well's level reached its bottom: the run stops there (a dry port carries no flow,
-    /// which this model does not follow).
+    /// A well's level reached its bottom: from then on its port carries no flow (its node is
+    /// a plain junction) and the run goes on.
     Dry,
+    /// A dry well took liquid in again (the junction's pressure rose above its empty head).
+    Refilled,
+    /// A well ran dry and left part of the chip with no pressure reference and no storage:
+    /// the run stops there.
+    DryStop,
     /// Two wells' levels came within 1 % of their initial difference.
     LevelsEqual,
 }
@@ -27,43 +33,20 @@ pub struct Event {
     pub time: f64,
 }
 
-/// Cut the evolution at the first output where a well is dry; the event, if any.
-pub fn stop_at_dry(network: &Network, ev: &mut Evolution) -> Option<Event> {
-    let mut first: Option<(usize, NodeId)> = None;
-    for (node, levels) in &ev.levels {
-        let bottom = network.nodes[*node].elevation.si();
-        if let Some(k) = levels.iter().position(|&h| h <= bottom) {
-            if first.is_none_or(|(f, _)| k < f) {
-                first = Some((k, *node));
-            }
-        }
-    }
-    let (k, node) = first?;
-    let levels = &ev.levels.iter().find(|(n, _)| *n == node)?.1;
-    let bottom = network.nodes[node].elevation.si();
-    let time = if k == 0 {
-        ev.times[0]
-    } else {
-        crossing(
-            ev.times[k - 1],
-            ev.times[k],
-            levels[k - 1],
-            levels[k],
-            bottom,
-        )
-    };
-    let keep = k + 1;
-    ev.times.truncate(keep);
-    ev.pressures.truncate(keep);
-    ev.flows.truncate(keep);
-    for (_, l) in &mut ev.levels {
-        l.truncate(keep);
-    }
-    Some(Event {
-        kind: EventKind::Dry,
-        subject: network.nodes[node].name.clone(),
-        time,
-    })
+/// The wells' switches as events: running dry, filling again, and where the run had to stop.
+pub fn well_events(network: &Network, ev: &Evolution) -> Vec<Event> {
+    ev.switches
+        .iter()
+        .map(|s| Event {
+            kind: match (s.dry, ev.stopped_at == Some(s.time)) {
+                (true, true) => EventKind::DryStop,
+                (true, false) => EventKind::Dry,
+                (false, _) => EventKind::Refilled,
+            },
+            subject: network.nodes[s.node].name.clone(),
+            time: s.time,
+        })
+        .collect()
 }
 
 fn crossing(t0: f64, t1: f64, y0: f64, y1: f64, y: f64) -> f64 {

@@ -64,6 +64,8 @@ pub struct Options {
     pub first_step: Option<f64>,
     /// Most accepted steps before giving up.
     pub max_steps: usize,
+    /// Time at which the state `x0` is given (a run resumed after a switch of the model).
+    pub start: f64,
 }
 
 impl Default for Options {
@@ -73,6 +75,7 @@ impl Default for Options {
             atol: 1e-6,
             first_step: None,
             max_steps: 1_000_000,
+            start: 0.0,
         }
     }
 }
@@ -82,8 +85,10 @@ impl Default for Options {
 pub struct Trajectory {
     pub times: Vec<f64>,
     pub states: Vec<Vec<f64>>,
-    /// The state at the end of the run.
+    /// The state at the end of the run (at `end`).
     pub last: Vec<f64>,
+    /// Where the run ended: `t_end`, or the time a step callback asked to stop at.
+    pub end: f64,
     pub steps: usize,
     pub rejected: usize,
     pub factorizations: usize,
@@ -155,8 +160,10 @@ fn make_consistent(
     Ok(())
 }
 
-/// Integrate from x0 at t = 0 to `t_end`, reporting the state at every time in `outputs`
-/// (sorted, within [0, t_end]) from the dense output; `on_step` sees every accepted step.
+/// Integrate from x0 at `options.start` to `t_end`, reporting the state at every time in
+/// `outputs` (sorted, within [start, t_end]) from the dense output. `on_step` sees every
+/// accepted step and may return a time within it at which to stop (the outputs up to that
+/// time are reported and `last` is the dense output there), e.g. where a well runs dry.
 pub fn integrate(
     dae: &LinearDae<'_>,
     forcing: &dyn Forcing,
@@ -164,7 +171,7 @@ pub fn integrate(
     t_end: f64,
     outputs: &[f64],
     options: Options,
-    on_step: &mut dyn FnMut(&Step<'_>) -> bool,
+    on_step: &mut dyn FnMut(&Step<'_>) -> Option<f64>,
 ) -> Result<Trajectory, IntegrationError> {
     let n = x0.len();
     let symbolic = SymbolicCholesky::analyse(dae.pattern, Parallelism::Sequential)?;
@@ -175,10 +182,11 @@ pub fn integrate(
     };
     let mut out = Trajectory::default();
     let mut x = x0.to_vec();
+    let start = options.start;
     let eta = 1e-12 * t_end.max(1e-300);
-    make_consistent(&w, forcing, 0.0, eta, &mut x)?;
+    make_consistent(&w, forcing, start, eta, &mut x)?;
     let mut next_out = 0;
-    while next_out < outputs.len() && outputs[next_out] <= 0.0 {
+    while next_out < outputs.len() && outputs[next_out] <= start {
         out.times.push(outputs[next_out]);
         out.states.push(x.clone());
         next_out += 1;
@@ -186,12 +194,12 @@ pub fn integrate(
     let mut stops: Vec<f64> = forcing
         .breakpoints()
         .into_iter()
-        .filter(|&b| b > 0.0 && b < t_end)
+        .filter(|&b| b > start && b < t_end)
         .collect();
     stops.push(t_end);
     let mut stop = 0;
-    let mut t = 0.0;
-    let mut h = options.first_step.unwrap_or(1e-6 * t_end);
+    let mut t = start;
+    let mut h = options.first_step.unwrap_or(1e-6 * (t_end - start));
     let k = (-3.0 * GAMMA * GAMMA + 4.0 * GAMMA - 2.0) / (12.0 * (2.0 - GAMMA));
     let (mut bn, mut bg, mut b1) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
     let (mut fnn, mut fg, mut f1) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
@@ -263,18 +271,23 @@ pub fn integrate(
             xg: &xg,
             x1: &x1,
         };
-        while next_out < outputs.len() && outputs[next_out] <= t1 {
+        let cut = on_step(&step).map(|tc| tc.clamp(t, t1));
+        let reach = cut.unwrap_or(t1);
+        while next_out < outputs.len() && outputs[next_out] <= reach {
             let to = outputs[next_out];
             out.times.push(to);
             out.states.push((0..n).map(|u| step.at(u, to)).collect());
             next_out += 1;
         }
-        let go_on = on_step(&step);
+        if let Some(tc) = cut {
+            let xc: Vec<f64> = (0..n).map(|u| step.at(u, tc)).collect();
+            out.last = xc;
+            out.end = tc;
+            out.factorizations = w.factorizations.get();
+            return Ok(out);
+        }
         x.copy_from_slice(&x1);
         t = t1;
-        if !go_on {
-            break;
-        }
         // Keep the step (and its factor) when the controller would grow it only a little.
         let base = if lands { h.max(hs) } else { hs };
         h = if grow > 1.5 {
@@ -293,6 +306,7 @@ pub fn integrate(
         }
     }
     out.last = x;
+    out.end = t;
     out.factorizations = w.factorizations.get();
     Ok(out)
 }

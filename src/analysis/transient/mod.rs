@@ -45,9 +45,23 @@ pub struct Evolution {
     pub flows: Vec<Vec<f64>>,
     /// Level of every well at each output [m] (file order of the wells).
     pub levels: Vec<(NodeId, Vec<f64>)>,
+    /// Wells running dry or filling again, in time order.
+    pub switches: Vec<WellSwitch>,
+    /// The run stopped here: a well ran dry and left part of the chip with no pressure
+    /// reference and no storage (nothing could then set its pressures).
+    pub stopped_at: Option<f64>,
     pub steps: usize,
     pub rejected: usize,
     pub factorizations: usize,
+}
+
+/// A well running dry (`dry: true`) or taking liquid in again (`dry: false`) at `time`
+/// (found on the integrator's dense output, not between outputs).
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct WellSwitch {
+    pub node: NodeId,
+    pub time: f64,
+    pub dry: bool,
 }
 
 /// Why an evolution could not be computed.
@@ -72,6 +86,8 @@ pub struct Model<'n> {
     drives: Drives,
     base: Vec<f64>,
     arm: Vec<f64>,
+    /// Wells that are empty: their unknown is then a plain junction (no storage, no offset).
+    dry: Vec<bool>,
 }
 
 impl<'n> Model<'n> {
@@ -120,6 +136,7 @@ impl<'n> Model<'n> {
             drives,
             base: drive_values(network),
             arm,
+            dry: vec![false; network.nodes.len()],
         }
     }
 
@@ -160,7 +177,9 @@ impl<'n> Model<'n> {
             .map(|u| {
                 let i = self.system.node(u);
                 match (&self.drives.rocking, self.network.nodes[NodeId(i)].storage) {
-                    (Some(r), Some(Storage::Well(_))) => rho_g * r.rise(self.arm[i], t),
+                    (Some(r), Some(Storage::Well(_))) if !self.dry[i] => {
+                        rho_g * r.rise(self.arm[i], t)
+                    }
                     _ => 0.0,
                 }
             })
@@ -220,7 +239,118 @@ fn initial_pressures(network: &Network, drives: &Drives) -> Result<Vec<f64>, Tra
     Ok(factor.solve(&d0)?.pressures)
 }
 
+/// A well's unknown and what it takes to be empty.
+#[derive(Clone, Copy)]
+struct WellSlot {
+    node: NodeId,
+    unknown: usize,
+    /// Gauge gas pressure above the surface [Pa].
+    gas: f64,
+    /// The well's bottom (its node's elevation) [m].
+    bottom: f64,
+    /// A/(ρ·g): the storage while it holds liquid.
+    storage: f64,
+}
+
+impl Model<'_> {
+    fn wells(&self) -> Vec<WellSlot> {
+        let rho_g = self.network.specific_weight();
+        (self.network.nodes.iter().enumerate())
+            .filter_map(|(i, n)| match (n.storage, n.port) {
+                (Some(Storage::Well(w)), Port::Pressure(gas)) => Some(WellSlot {
+                    node: NodeId(i),
+                    unknown: self.system.unknown(i)?,
+                    gas: gas.si(),
+                    bottom: n.elevation.si(),
+                    storage: w.area.si() / rho_g,
+                }),
+                _ => None,
+            })
+            .collect()
+    }
+
+    /// The pressure of an empty well at t, as its unknown holds it: in the platform's frame
+    /// while it holds liquid (`wet`), piezometric when it is a dry junction.
+    fn empty_pressure(&self, w: &WellSlot, t: f64, wet: bool) -> f64 {
+        let rho_g = self.network.specific_weight();
+        let rise = match (&self.drives.rocking, wet) {
+            (Some(r), false) => r.rise(self.arm[w.node.0], t),
+            _ => 0.0,
+        };
+        w.gas + rho_g * (w.bottom + rise)
+    }
+
+    /// Empty a well (its unknown becomes a junction's piezometric pressure, no storage) or fill
+    /// it again (level at its bottom, storage back), at t.
+    fn switch_well(&mut self, w: &WellSlot, t: f64, dry: bool, x: &mut [f64]) {
+        let offset = self.offsets(t)[w.unknown];
+        self.dry[w.node.0] = dry;
+        if dry {
+            x[w.unknown] += offset;
+            self.c[w.unknown] = 0.0;
+        } else {
+            x[w.unknown] = self.empty_pressure(w, t, true);
+            self.c[w.unknown] = w.storage;
+        }
+    }
+
+    /// Whether the unknowns joined to `node` (through channels, not through imposed nodes)
+    /// meet an imposed node or a storage other than `node`'s own: otherwise, once `node` loses
+    /// its storage, nothing would set their pressures.
+    fn anchored(&self, node: NodeId) -> bool {
+        let mut seen = vec![false; self.network.nodes.len()];
+        let mut stack = vec![node];
+        seen[node.0] = true;
+        while let Some(n) = stack.pop() {
+            let Some(u) = self.system.unknown(n.0) else {
+                return true;
+            };
+            if self.c[u] > 0.0 && n != node {
+                return true;
+            }
+            for (_, m) in self.network.incident(n) {
+                if !seen[m.0] {
+                    seen[m.0] = true;
+                    stack.push(m);
+                }
+            }
+        }
+        false
+    }
+}
+
+/// The first time in `[lo, hi]` where `f` changes sign from `f(lo) ≥ 0` to `f(hi) < 0`
+/// (bisection to rounding).
+fn first_crossing(lo: f64, hi: f64, f: impl Fn(f64) -> f64) -> f64 {
+    let (mut a, mut b) = (lo, hi);
+    for _ in 0..200 {
+        let m = 0.5 * (a + b);
+        if m <= a || m >= b {
+            break;
+        }
+        if f(m) >= 0.0 {
+            a = m;
+        } else {
+            b = m;
+        }
+    }
+    b
+}
+
+/// Most switches of wells (dry, filled again) in one run before it is refused as chattering.
+const MAX_SWITCHES: usize = 10_000;
+
 /// Integrate the network from its state at t = 0 over `run`.
+///
+/// A well is unilateral: its level cannot fall below its bottom. When it empties, its port
+/// carries no more flow: the node stays a liquid-filled junction (the channels meeting at the
+/// well's bottom still join there, and the meniscus is taken as pinned at the well's outlet,
+/// so no air enters the channels), with no storage. If the junction's pressure later rises
+/// above the empty well's head, liquid is pushed into the well and it holds liquid again
+/// (from its bottom). Both switches are found on the dense output of the step in which they
+/// happen, and the run resumes from there. Should a dry well leave part of the chip with
+/// neither an imposed pressure nor any storage (say a flow port drawing from it), that part's
+/// pressures are undetermined: the run stops there (`stopped_at`).
 pub fn evolve(network: &Network, drives: &Drives, run: Run) -> Result<Evolution, TransientError> {
     if !(run.duration.is_finite() && run.duration > 0.0) {
         return Err(TransientError::Bad(format!(
@@ -235,8 +365,8 @@ pub fn evolve(network: &Network, drives: &Drives, run: Run) -> Result<Evolution,
         )));
     }
     let p0 = initial_pressures(network, drives)?;
-    let model = Model::new(network, drives.clone(), &p0);
-    let x0 = model.unknowns(&p0);
+    let mut model = Model::new(network, drives.clone(), &p0);
+    let mut x = model.unknowns(&p0);
     let count = (run.duration / run.every).floor() as usize;
     let mut outputs: Vec<f64> = (0..=count).map(|k| k as f64 * run.every).collect();
     if outputs
@@ -246,62 +376,144 @@ pub fn evolve(network: &Network, drives: &Drives, run: Run) -> Result<Evolution,
         outputs.push(run.duration);
     }
     let scale = p0.iter().fold(1.0f64, |m, p| m.max(p.abs()));
-    let dae = LinearDae {
-        pattern: model.system.pattern(),
-        a: &model.a,
-        diag: &model.diag,
-        c: &model.c,
-    };
-    let options = Options {
-        rtol: run.rtol,
-        atol: run.rtol * scale,
-        ..Options::default()
-    };
-    let traj = integrator::integrate(
-        &dae,
-        &model,
-        &x0,
-        run.duration,
-        &outputs,
-        options,
-        &mut |_| true,
-    )?;
-    let pressures: Vec<Vec<f64>> = traj
-        .times
-        .iter()
-        .zip(&traj.states)
-        .map(|(&t, x)| model.node_pressures(x, t))
-        .collect();
-    let flows = pressures
-        .iter()
-        .map(|p| crate::analysis::kirchhoff::channel_flows(network, &model.g, p))
-        .collect();
+    let wells = model.wells();
     let rho_g = network.specific_weight();
-    let levels = network
-        .nodes
-        .iter()
-        .enumerate()
-        .filter_map(|(i, n)| match (n.storage, n.port) {
-            (Some(Storage::Well(_)), Port::Pressure(gas)) => Some((NodeId(i), gas.si())),
-            _ => None,
-        })
-        .map(|(node, gas)| {
-            let u = model.system.unknown(node.0);
-            let series = traj
-                .states
-                .iter()
-                .map(|x| u.map_or(0.0, |u| (x[u] - gas) / rho_g))
-                .collect();
-            (node, series)
-        })
-        .collect();
-    Ok(Evolution {
-        times: traj.times,
-        pressures,
-        flows,
-        levels,
-        steps: traj.steps,
-        rejected: traj.rejected,
-        factorizations: traj.factorizations,
-    })
+    let mut ev = Evolution {
+        times: Vec::new(),
+        pressures: Vec::new(),
+        flows: Vec::new(),
+        levels: wells.iter().map(|w| (w.node, Vec::new())).collect(),
+        switches: Vec::new(),
+        stopped_at: None,
+        steps: 0,
+        rejected: 0,
+        factorizations: 0,
+    };
+    // Wells empty from the start.
+    for w in &wells {
+        if x[w.unknown] <= model.empty_pressure(w, 0.0, true) {
+            let anchored = model.anchored(w.node);
+            ev.switches.push(WellSwitch {
+                node: w.node,
+                time: 0.0,
+                dry: true,
+            });
+            if !anchored {
+                ev.stopped_at = Some(0.0);
+                break;
+            }
+            model.switch_well(w, 0.0, true, &mut x);
+        }
+    }
+    let mut t = 0.0;
+    let mut next = 0;
+    while ev.stopped_at.is_none() {
+        let options = Options {
+            rtol: run.rtol,
+            atol: run.rtol * scale,
+            start: t,
+            ..Options::default()
+        };
+        // The first well to run dry or fill again within a step: (time, well, now dry).
+        let mut hit: Option<(f64, usize, bool)> = None;
+        let traj = {
+            let dae = LinearDae {
+                pattern: model.system.pattern(),
+                a: &model.a,
+                diag: &model.diag,
+                c: &model.c,
+            };
+            let m = &model;
+            let mut watch = |step: &Step<'_>| -> Option<f64> {
+                hit = None;
+                let t1 = step.t0 + step.h;
+                for (k, w) in wells.iter().enumerate() {
+                    let u = w.unknown;
+                    let wet = !m.dry[w.node.0];
+                    // Wet: the level falls through the bottom. Dry: the junction's pressure
+                    // rises above the empty well's head (by more than the tolerance).
+                    let margin = if wet { 0.0 } else { options.atol };
+                    let sign = if wet { 1.0 } else { -1.0 };
+                    let f = |t: f64| sign * (step.at(u, t) - m.empty_pressure(w, t, wet)) + margin;
+                    if f(t1) < 0.0 {
+                        // Already past at the step's start (a drive jumped there): switch now.
+                        let tc = if f(step.t0) < 0.0 {
+                            step.t0
+                        } else {
+                            first_crossing(step.t0, t1, f)
+                        };
+                        if hit.is_none_or(|(th, _, _)| tc < th) {
+                            hit = Some((tc, k, wet));
+                        }
+                    }
+                }
+                hit.map(|h| h.0)
+            };
+            integrator::integrate(
+                &dae,
+                m,
+                &x,
+                run.duration,
+                &outputs[next..],
+                options,
+                &mut watch,
+            )?
+        };
+        let record = |ev: &mut Evolution, time: f64, state: &[f64]| {
+            let p = model.node_pressures(state, time);
+            ev.flows.push(crate::analysis::kirchhoff::channel_flows(
+                network, &model.g, &p,
+            ));
+            ev.pressures.push(p);
+            ev.times.push(time);
+            for (w, (_, series)) in wells.iter().zip(ev.levels.iter_mut()) {
+                series.push(if model.dry[w.node.0] {
+                    w.bottom
+                } else {
+                    (state[w.unknown] - w.gas) / rho_g
+                });
+            }
+        };
+        for (time, state) in traj.times.iter().zip(&traj.states) {
+            record(&mut ev, *time, state);
+        }
+        next += traj.times.len();
+        ev.steps += traj.steps;
+        ev.rejected += traj.rejected;
+        ev.factorizations += traj.factorizations;
+        x = traj.last;
+        t = traj.end;
+        let Some((tc, k, to_dry)) = hit else {
+            break;
+        };
+        let w = wells[k];
+        if ev.switches.len() >= MAX_SWITCHES {
+            return Err(TransientError::Bad(format!(
+                "wells ran dry and filled again more than {MAX_SWITCHES} times; the run \
+                 stopped at t = {tc} s"
+            )));
+        }
+        if to_dry {
+            if !model.anchored(w.node) {
+                // The series ends with the state at the stop, past the last output.
+                if ev.times.last().is_some_and(|&last| last < tc) {
+                    record(&mut ev, tc, &x);
+                }
+                ev.switches.push(WellSwitch {
+                    node: w.node,
+                    time: tc,
+                    dry: true,
+                });
+                ev.stopped_at = Some(tc);
+                break;
+            }
+        }
+        model.switch_well(&w, tc, to_dry, &mut x);
+        ev.switches.push(WellSwitch {
+            node: w.node,
+            time: tc,
+            dry: to_dry,
+        });
+    }
+    Ok(ev)
 }
