@@ -291,7 +291,12 @@ pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
                 .filter_map(|p| p.points.last().map(|q| q.0)),
         )
         .fold(0.0, f64::max);
-    let mut list = events::settling(&chip.network, &evolution, switched);
+    // On a rocking platform the flows never settle: no settling times.
+    let mut list = if chip.drives.rocking.is_some() {
+        Vec::new()
+    } else {
+        events::settling(&chip.network, &evolution, switched)
+    };
     list.extend(events::levels_equal(&chip.network, &evolution));
     let stopped_dry = evolution.stopped_at.is_some();
     list.extend(events::well_events(&chip.network, &evolution));

@@ -4,6 +4,7 @@
 use super::csv::Tables;
 use super::fmt_sig;
 use super::json::write_json;
+use crate::analysis::transient::cycles::CycleStats;
 use crate::analysis::transient::events::{Event, EventKind};
 use crate::outcome::EvolveOutcome;
 use serde::Serialize;
@@ -91,7 +92,50 @@ pub fn evolve_table(o: &EvolveOutcome, w: &mut dyn Write) -> io::Result<()> {
             )?;
         }
     }
+    if let Some(c) = &ev.cycles {
+        cycle_table(o, c, w)?;
+    }
     writeln!(w, "\n{}", super::CAUTION)
+}
+
+/// Per tilt cycle: the last complete cycle's mean flow and wall shear per channel.
+fn cycle_table(o: &EvolveOutcome, c: &CycleStats, w: &mut dyn Write) -> io::Result<()> {
+    let Some(last) = &c.last else {
+        return writeln!(
+            w,
+            "\n(no complete tilt cycle of {} s in the run)",
+            fmt_sig(c.period, 4)
+        );
+    };
+    writeln!(
+        w,
+        "\nPer tilt cycle ({} complete cycles of {} s; the last, from {} s):",
+        c.mean_flows.len(),
+        fmt_sig(c.period, 4),
+        fmt_sig(last.start, 5)
+    )?;
+    writeln!(
+        w,
+        "{:<20} {:>18} {:>13} {:>15} {:>14}",
+        "channel", "mean flow [uL/min]", "mean tau [Pa]", "mean |tau| [Pa]", "max tau [Pa]"
+    )?;
+    let means = c.mean_flows.last().map(Vec::as_slice).unwrap_or(&[]);
+    for (k, ch) in o.chip.network.channels.iter().enumerate() {
+        writeln!(
+            w,
+            "{:<20} {:>18} {:>13} {:>15} {:>14}",
+            ch.name,
+            fmt_sig(means.get(k).copied().unwrap_or(0.0) * 6e10 + 0.0, 5),
+            fmt_sig(last.mean_wall_shear[k] + 0.0, 4),
+            fmt_sig(last.mean_abs_wall_shear[k], 4),
+            fmt_sig(last.max_wall_shear[k], 4)
+        )?;
+    }
+    writeln!(
+        w,
+        "(tau: wall shear averaged over the perimeter, time-averaged over the cycle; max tau: \
+         the largest on the perimeter during the cycle)"
+    )
 }
 
 #[derive(Serialize)]
@@ -120,6 +164,44 @@ struct JsonDelivered<'a> {
 }
 
 #[derive(Serialize)]
+struct JsonCycleChannel<'a> {
+    name: &'a str,
+    /// Mean flow over each complete cycle.
+    mean_flow_m3_per_s: Vec<f64>,
+    mean_wall_shear_pa: f64,
+    mean_abs_wall_shear_pa: f64,
+    max_wall_shear_pa: f64,
+}
+
+#[derive(Serialize)]
+struct JsonCycles<'a> {
+    period_s: f64,
+    complete_cycles: usize,
+    /// Start of the last complete cycle (the wall-shear figures are over it).
+    last_cycle_start_s: Option<f64>,
+    channels: Vec<JsonCycleChannel<'a>>,
+}
+
+fn json_cycles<'a>(o: &'a EvolveOutcome, c: &CycleStats) -> JsonCycles<'a> {
+    let pick = |v: Option<&Vec<f64>>, k: usize| v.and_then(|v| v.get(k)).map_or(0.0, |x| x + 0.0);
+    let last = c.last.as_ref();
+    JsonCycles {
+        period_s: c.period,
+        complete_cycles: c.mean_flows.len(),
+        last_cycle_start_s: last.map(|l| l.start),
+        channels: (o.chip.network.channels.iter().enumerate())
+            .map(|(k, ch)| JsonCycleChannel {
+                name: &ch.name,
+                mean_flow_m3_per_s: c.mean_flows.iter().map(|m| m[k] + 0.0).collect(),
+                mean_wall_shear_pa: pick(last.map(|l| &l.mean_wall_shear), k),
+                mean_abs_wall_shear_pa: pick(last.map(|l| &l.mean_abs_wall_shear), k),
+                max_wall_shear_pa: pick(last.map(|l| &l.max_wall_shear), k),
+            })
+            .collect(),
+    }
+}
+
+#[derive(Serialize)]
 struct JsonEvolution<'a> {
     schema_version: u32,
     command: &'static str,
@@ -129,6 +211,9 @@ struct JsonEvolution<'a> {
     reservoirs: Vec<JsonWell<'a>>,
     events: Vec<JsonEvent<'a>>,
     delivered: Vec<JsonDelivered<'a>>,
+    /// With a rocking platform only.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    cycles: Option<JsonCycles<'a>>,
 }
 
 /// The JSON document: series at every output instant, events, delivered volumes.
@@ -174,6 +259,7 @@ pub fn evolve_json(o: &EvolveOutcome, w: &mut dyn Write) -> io::Result<()> {
                 volume_m3: *v,
             })
             .collect(),
+        cycles: ev.cycles.as_ref().map(|c| json_cycles(o, c)),
     };
     write_json(&doc, w)
 }
@@ -209,5 +295,30 @@ pub fn evolve_csv(o: &EvolveOutcome, t: &mut Tables<'_>) -> io::Result<()> {
             format!("{:e}", e.time),
         ]
     });
-    t.table(&["record", "kind", "subject", "time_s"], events)
+    t.table(&["record", "kind", "subject", "time_s"], events)?;
+    if let Some(c) = &ev.cycles {
+        let doc = json_cycles(o, c);
+        let rows = doc.channels.iter().map(|ch| {
+            vec![
+                "cycle".to_string(),
+                ch.name.to_string(),
+                format!("{:e}", ch.mean_flow_m3_per_s.last().copied().unwrap_or(0.0)),
+                format!("{:e}", ch.mean_wall_shear_pa),
+                format!("{:e}", ch.mean_abs_wall_shear_pa),
+                format!("{:e}", ch.max_wall_shear_pa),
+            ]
+        });
+        t.table(
+            &[
+                "record",
+                "channel",
+                "last_cycle_mean_flow_m3_per_s",
+                "mean_wall_shear_pa",
+                "mean_abs_wall_shear_pa",
+                "max_wall_shear_pa",
+            ],
+            rows,
+        )?;
+    }
+    Ok(())
 }

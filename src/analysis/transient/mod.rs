@@ -13,6 +13,7 @@
 //! each node with an arm (its horizontal distance from the rocking axis) rising by
 //! Δz = arm·sin θ(t).
 
+pub mod cycles;
 pub mod events;
 pub mod integrator;
 
@@ -47,6 +48,8 @@ pub struct Evolution {
     pub levels: Vec<(NodeId, Vec<f64>)>,
     /// Wells running dry or filling again, in time order.
     pub switches: Vec<WellSwitch>,
+    /// Answers per tilt cycle, with a rocking platform.
+    pub cycles: Option<cycles::CycleStats>,
     /// The run stopped here: a well ran dry and left part of the chip with no pressure
     /// reference and no storage (nothing could then set its pressures).
     pub stopped_at: Option<f64>,
@@ -384,6 +387,7 @@ pub fn evolve(network: &Network, drives: &Drives, run: Run) -> Result<Evolution,
         flows: Vec::new(),
         levels: wells.iter().map(|w| (w.node, Vec::new())).collect(),
         switches: Vec::new(),
+        cycles: None,
         stopped_at: None,
         steps: 0,
         rejected: 0,
@@ -405,6 +409,8 @@ pub fn evolve(network: &Network, drives: &Drives, run: Run) -> Result<Evolution,
             model.switch_well(w, 0.0, true, &mut x);
         }
     }
+    let mut per_cycle =
+        (drives.rocking.as_ref()).map(|r| cycles::Accumulator::new(network, r.period));
     let mut t = 0.0;
     let mut next = 0;
     while ev.stopped_at.is_none() {
@@ -446,6 +452,15 @@ pub fn evolve(network: &Network, drives: &Drives, run: Run) -> Result<Evolution,
                             hit = Some((tc, k, wet));
                         }
                     }
+                }
+                if let Some(acc) = per_cycle.as_mut() {
+                    let n = step.x0.len();
+                    let flows = |t: f64| {
+                        let x: Vec<f64> = (0..n).map(|u| step.at(u, t)).collect();
+                        let p = m.node_pressures(&x, t);
+                        crate::analysis::kirchhoff::channel_flows(network, &m.g, &p)
+                    };
+                    acc.add(step.t0, hit.map_or(t1, |h| h.0), &flows);
                 }
                 hit.map(|h| h.0)
             };
@@ -515,5 +530,6 @@ pub fn evolve(network: &Network, drives: &Drives, run: Run) -> Result<Evolution,
             dry: to_dry,
         });
     }
+    ev.cycles = per_cycle.map(cycles::Accumulator::finish);
     Ok(ev)
 }
