@@ -124,6 +124,13 @@ pub enum Command {
         every: String,
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,
+        /// Draw flows (and well levels) against time to this new .svg or .png file.
+        #[arg(long)]
+        plot: Option<PathBuf>,
+        /// Channels to draw, e.g. 'feed,c3' (default: the targets' channels, else those at
+        /// the ports; at most 8).
+        #[arg(long, value_delimiter = ',', requires = "plot")]
+        channels: Vec<String>,
     },
     /// Check a chip against its limits (cells' wall-shear limit, chip pressure rating,
     /// vacuum); exits 1 when any limit is exceeded.

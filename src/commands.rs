@@ -246,6 +246,10 @@ pub struct EvolveRequest<'a> {
     pub chip: ChipInput<'a>,
     pub duration: &'a str,
     pub every: &'a str,
+    /// Draw flows (and well levels) against time to this new .svg/.png file.
+    pub plot: Option<&'a Path>,
+    /// Channels to draw (names); empty: [`plots::default_channels`].
+    pub channels: &'a [String],
 }
 
 impl<'a> EvolveRequest<'a> {
@@ -254,8 +258,40 @@ impl<'a> EvolveRequest<'a> {
             chip,
             duration,
             every,
+            plot: None,
+            channels: &[],
         }
     }
+}
+
+/// The channels named by `--channels`, or the default choice.
+fn picture_channels(chip: &Chip, names: &[String]) -> Result<Vec<ChannelId>, Error> {
+    if names.is_empty() {
+        return Ok(plots::default_channels(chip));
+    }
+    names
+        .iter()
+        .map(|n| {
+            chip.network.channel_id(n).ok_or_else(|| {
+                let known: Vec<&str> = (chip.network.channels.iter())
+                    .take(12)
+                    .map(|c| c.name.as_str())
+                    .collect();
+                Error::Input(format::InputError::whole_file(
+                    "--channels",
+                    format!(
+                        "no channel '{n}' in the chip; it has {}{}",
+                        known.join(", "),
+                        if chip.network.channels.len() > 12 {
+                            ", …"
+                        } else {
+                            ""
+                        }
+                    ),
+                ))
+            })
+        })
+        .collect()
 }
 
 /// Relative (per-step) tolerance of `evolve`'s time stepping. The global error grows as its
@@ -271,6 +307,10 @@ pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
     let duration = positive_duration("--for", req.duration)?;
     let every = positive_duration("--every", req.every)?;
     let chip = req.chip.load()?;
+    let drawn = match req.plot {
+        Some(_) => picture_channels(&chip, req.channels)?,
+        None => Vec::new(),
+    };
     let run = transient::Run {
         duration,
         every: every.min(duration),
@@ -302,6 +342,10 @@ pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
     list.extend(events::well_events(&chip.network, &evolution));
     list.sort_by(|a, b| a.time.total_cmp(&b.time));
     let delivered = events::delivered(&chip.network, &evolution);
+    if let Some(path) = req.plot {
+        let picture = plots::TimePicture::new(&chip, &evolution, &drawn);
+        plots::save(&picture, path, &req.chip.protected())?;
+    }
     Ok(Outcome::Evolved(Box::new(crate::outcome::EvolveOutcome {
         chip,
         evolution,

@@ -64,9 +64,14 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             span,
             every,
             format,
+            plot,
+            channels,
         } => {
+            picture_arg(plot.as_deref())?;
             let arg = chip(file)?;
-            let req = commands::EvolveRequest::new(arg.input(), span, every);
+            let mut req = commands::EvolveRequest::new(arg.input(), span, every);
+            req.plot = plot.as_deref();
+            req.channels = channels;
             (commands::evolve(&req)?, *format, None, vec![arg.path])
         }
         Command::Check { file, format, plot } => {

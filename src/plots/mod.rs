@@ -12,11 +12,13 @@ mod chip;
 mod margins;
 mod pressure;
 mod section_field;
+mod time;
 
 pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT};
 pub use margins::MarginChart;
 pub use pressure::{PressurePath, PressurePicture};
 pub use section_field::SectionPicture;
+pub use time::{default_channels, Curve, TimePicture, DEFAULT_CURVES};
 
 use crate::error::Error;
 use plotters::coord::Shift;

@@ -66,6 +66,8 @@ pub struct Options {
     pub max_steps: usize,
     /// Time at which the state `x0` is given (a run resumed after a switch of the model).
     pub start: f64,
+    /// Longest step [s] (default: no limit).
+    pub max_step: f64,
 }
 
 impl Default for Options {
@@ -76,6 +78,7 @@ impl Default for Options {
             first_step: None,
             max_steps: 1_000_000,
             start: 0.0,
+            max_step: f64::INFINITY,
         }
     }
 }
@@ -209,7 +212,7 @@ pub fn integrate(
     let mut e = vec![0.0; n];
     while t < t_end {
         let target = stops[stop];
-        let hs = h.min(target - t);
+        let hs = h.min(options.max_step).min(target - t);
         let lands = hs >= target - t;
         let t1 = if lands { target } else { t + hs };
         let hs = t1 - t;

@@ -355,6 +355,16 @@ const MAX_SWITCHES: usize = 10_000;
 /// neither an imposed pressure nor any storage (say a flow port drawing from it), that part's
 /// pressures are undetermined: the run stops there (`stopped_at`).
 pub fn evolve(network: &Network, drives: &Drives, run: Run) -> Result<Evolution, TransientError> {
+    evolve_with_step_limit(network, drives, run, f64::INFINITY)
+}
+
+/// [`evolve`] with steps no longer than `max_step` [s] (benchmarks force a step count so).
+pub fn evolve_with_step_limit(
+    network: &Network,
+    drives: &Drives,
+    run: Run,
+    max_step: f64,
+) -> Result<Evolution, TransientError> {
     if !(run.duration.is_finite() && run.duration > 0.0) {
         return Err(TransientError::Bad(format!(
             "the duration must be positive, got {} s",
@@ -418,6 +428,7 @@ pub fn evolve(network: &Network, drives: &Drives, run: Run) -> Result<Evolution,
             rtol: run.rtol,
             atol: run.rtol * scale,
             start: t,
+            max_step,
             ..Options::default()
         };
         // The first well to run dry or fill again within a step: (time, well, now dry).
