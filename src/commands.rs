@@ -303,7 +303,6 @@ pub const EVOLVE_RTOL: f64 = 1e-9;
 /// the series at every `every` instant, settling times, wells running dry or equalising, and
 /// the volume each port delivered.
 pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
-    use analysis::transient::{self, events};
     let duration = positive_duration("--for", req.duration)?;
     let every = positive_duration("--every", req.every)?;
     let chip = req.chip.load()?;
@@ -311,6 +310,21 @@ pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
         Some(_) => picture_channels(&chip, req.channels)?,
         None => Vec::new(),
     };
+    let outcome = evolve_chip(chip, duration, every)?;
+    if let Some(path) = req.plot {
+        let picture = plots::TimePicture::new(&outcome.chip, &outcome.evolution, &drawn);
+        plots::save(&picture, path, &req.chip.protected())?;
+    }
+    Ok(Outcome::Evolved(Box::new(outcome)))
+}
+
+/// The evolution of a loaded chip and the answers read off it.
+fn evolve_chip(
+    chip: Chip,
+    duration: f64,
+    every: f64,
+) -> Result<crate::outcome::EvolveOutcome, Error> {
+    use analysis::transient::{self, events};
     let run = transient::Run {
         duration,
         every: every.min(duration),
@@ -321,16 +335,7 @@ pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
             origin: chip.source.origin.clone(),
             source,
         })?;
-    // Settling is measured from the last change of a drive: a switch, or the end of a ramp
-    // or schedule.
-    let switched = (chip.drives.switch_on.iter().map(|s| s.at))
-        .chain(
-            chip.drives
-                .profiles
-                .iter()
-                .filter_map(|p| p.points.last().map(|q| q.0)),
-        )
-        .fold(0.0, f64::max);
+    let switched = last_drive_change(&chip);
     // On a rocking platform the flows never settle: no settling times.
     let mut list = if chip.drives.rocking.is_some() {
         Vec::new()
@@ -342,17 +347,63 @@ pub fn evolve(req: &EvolveRequest<'_>) -> Result<Outcome, Error> {
     list.extend(events::well_events(&chip.network, &evolution));
     list.sort_by(|a, b| a.time.total_cmp(&b.time));
     let delivered = events::delivered(&chip.network, &evolution);
-    if let Some(path) = req.plot {
-        let picture = plots::TimePicture::new(&chip, &evolution, &drawn);
-        plots::save(&picture, path, &req.chip.protected())?;
-    }
-    Ok(Outcome::Evolved(Box::new(crate::outcome::EvolveOutcome {
+    Ok(crate::outcome::EvolveOutcome {
         chip,
         evolution,
         events: list,
         delivered,
         stopped_dry,
-    })))
+    })
+}
+
+/// The last change of a drive: a switch, or the end of a ramp or schedule [s].
+fn last_drive_change(chip: &Chip) -> f64 {
+    (chip.drives.switch_on.iter().map(|s| s.at))
+        .chain(
+            chip.drives
+                .profiles
+                .iter()
+                .filter_map(|p| p.points.last().map(|q| q.0)),
+        )
+        .fold(0.0, f64::max)
+}
+
+/// Whether a chip changes in time on its own: storage, or drives that change.
+fn has_dynamics(chip: &Chip) -> bool {
+    let d = &chip.drives;
+    chip.network.nodes.iter().any(|n| n.storage.is_some())
+        || !d.switch_on.is_empty()
+        || !d.profiles.is_empty()
+        || d.rocking.is_some()
+}
+
+/// Longest run `report` tries while waiting for the flows to settle [s] (30 days).
+const REPORT_LONGEST_RUN: f64 = 30.0 * 86_400.0;
+
+/// The evolution `report` shows (200 outputs): on a rocking platform, the last drive change
+/// and 10 tilt cycles; otherwise at least a minute and twice the last drive change, ten times
+/// longer until every channel's flow changes by less than 0.1 % of the largest flow over the
+/// last tenth of the run (or the run reaches 30 days).
+fn evolve_for_report(chip: &Chip) -> Result<crate::outcome::EvolveOutcome, Error> {
+    let last = last_drive_change(chip);
+    if let Some(r) = &chip.drives.rocking {
+        let t = last + 10.0 * r.period;
+        return evolve_chip(chip.clone(), t, t / 200.0);
+    }
+    let mut t = (2.0 * last).max(60.0);
+    loop {
+        let o = evolve_chip(chip.clone(), t, t / 200.0)?;
+        let f = &o.evolution.flows;
+        let scale = f.iter().flatten().fold(0.0f64, |m, q| m.max(q.abs()));
+        let settled = match (f.last(), f.get(f.len().saturating_sub(21))) {
+            (Some(a), Some(b)) => a.iter().zip(b).all(|(x, y)| (x - y).abs() <= 1e-3 * scale),
+            _ => true,
+        };
+        if settled || o.stopped_dry || t >= REPORT_LONGEST_RUN {
+            return Ok(o);
+        }
+        t = (10.0 * t).min(REPORT_LONGEST_RUN);
+    }
 }
 
 /// A positive duration argument such as `--for '2 h'` [s].
@@ -691,7 +742,19 @@ pub fn report(req: &ReportRequest<'_>) -> Result<Outcome, Error> {
         path: req.folder.to_path_buf(),
         reason: e.to_string(),
     })?;
-    let files = crate::report::folder::write(&chip, &state, req.folder, &req.chip.protected())?;
+    // A chip with storage or drives that change also gets its evolution (tables, picture).
+    let evolved = if has_dynamics(&chip) {
+        Some(evolve_for_report(&chip)?)
+    } else {
+        None
+    };
+    let files = crate::report::folder::write(
+        &chip,
+        &state,
+        evolved.as_ref(),
+        req.folder,
+        &req.chip.protected(),
+    )?;
     Ok(Outcome::Wrote(files))
 }
 

@@ -97,3 +97,71 @@ fn chosen_channels_only_and_png_decodes() {
     let out = draw(dir.path(), "cp.svg", &[]);
     assert_eq!(out.status.code(), Some(2));
 }
+
+#[test]
+fn report_adds_the_evolution_when_the_chip_has_storage() {
+    let dir = tempfile::tempdir().unwrap();
+    let chip = dir.path().join("wells.yaml");
+    std::fs::write(&chip, CHIP).unwrap();
+    let folder = dir.path().join("rep");
+    let out = common::rillnet()
+        .args([
+            "report".as_ref(),
+            chip.as_os_str(),
+            "-o".as_ref(),
+            folder.as_os_str(),
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    for f in [
+        "evolve.txt",
+        "evolve.json",
+        "evolve.csv",
+        "evolve.svg",
+        "evolve.png",
+    ] {
+        assert!(folder.join(f).exists(), "{f}");
+    }
+    let page = std::fs::read_to_string(folder.join("index.html")).unwrap();
+    assert!(page.contains("flows against time"));
+    // The run went on until the flows settled: the wells equalise (levels_equal) and the
+    // last outputs agree with the steady flows of the pump (2 uL/min into the wells).
+    let doc: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(folder.join("evolve.json")).unwrap()).unwrap();
+    let cp = doc["channels"][2]["flow_m3_per_s"].as_array().unwrap();
+    let q = cp.last().unwrap().as_f64().unwrap();
+    assert!((q - 2e-9 / 60.0).abs() <= 1e-9 * 2e-9 / 60.0, "{q}");
+    // A chip without storage or timed drives gets no evolution.
+    let plain = CHIP
+        .replace(
+            "{reservoir: {level: 12 mm, area: 2 mm^2}}",
+            "{pressure: 100 Pa}",
+        )
+        .replace(
+            "{reservoir: {level: 3 mm, diameter: 1.5 mm}}",
+            "{pressure: 0 Pa}",
+        )
+        .replace(", on_at: 5 min", "");
+    std::fs::write(dir.path().join("plain.yaml"), plain).unwrap();
+    let folder = dir.path().join("rep2");
+    let out = common::rillnet()
+        .args([
+            "report".as_ref(),
+            dir.path().join("plain.yaml").as_os_str(),
+            "-o".as_ref(),
+            folder.as_os_str(),
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(!folder.join("evolve.txt").exists());
+}

@@ -40,13 +40,17 @@ impl Folder<'_> {
 }
 
 /// The files a report writes, in order.
-fn file_names(state: &SteadyState) -> Vec<String> {
+fn file_names(state: &SteadyState, evolved: bool) -> Vec<String> {
     let mut names: Vec<String> = ["summary.txt", "results.json", "results.csv"]
         .map(String::from)
         .to_vec();
     let mut pictures = vec!["splits", "pressure"];
     if state.channels.iter().any(|s| s.shear_limit.is_some()) {
         pictures.push("margins");
+    }
+    if evolved {
+        names.extend(["evolve.txt", "evolve.json", "evolve.csv"].map(String::from));
+        pictures.push("evolve");
     }
     for p in pictures {
         names.push(format!("{p}.svg"));
@@ -58,8 +62,8 @@ fn file_names(state: &SteadyState) -> Vec<String> {
 
 /// Refuse before writing anything when a file of the report exists already, so a report is
 /// never left half written over an old one.
-fn refuse_existing(state: &SteadyState, dir: &Path) -> Result<(), Error> {
-    let taken: Vec<String> = file_names(state)
+fn refuse_existing(state: &SteadyState, evolved: bool, dir: &Path) -> Result<(), Error> {
+    let taken: Vec<String> = file_names(state, evolved)
         .into_iter()
         .filter(|n| std::fs::symlink_metadata(dir.join(n)).is_ok())
         .collect();
@@ -80,10 +84,11 @@ fn refuse_existing(state: &SteadyState, dir: &Path) -> Result<(), Error> {
 pub fn write(
     chip: &Chip,
     state: &SteadyState,
+    evolved: Option<&crate::outcome::EvolveOutcome>,
     dir: &Path,
     protected: &[&Path],
 ) -> Result<Vec<PathBuf>, Error> {
-    refuse_existing(state, dir)?;
+    refuse_existing(state, evolved.is_some(), dir)?;
     let mut folder = Folder {
         dir,
         protected,
@@ -112,6 +117,29 @@ pub fn write(
         pictures.push((
             "Wall-shear margin per channel (limit / maximum wall shear).".into(),
             folder.picture("margins", &chart)?,
+        ));
+    }
+    if let Some(o) = evolved {
+        let fail = |e: std::io::Error| Error::Write {
+            path: dir.to_path_buf(),
+            reason: e.to_string(),
+        };
+        let mut text = Vec::new();
+        super::evolve::evolve_table(o, &mut text).map_err(fail)?;
+        folder.put("evolve.txt", &text)?;
+        let mut json = Vec::new();
+        super::evolve::evolve_json(o, &mut json).map_err(fail)?;
+        folder.put("evolve.json", &json)?;
+        let mut csv = Vec::new();
+        super::evolve::evolve_csv(o, &mut super::csv::Tables::new(&mut csv)).map_err(fail)?;
+        folder.put("evolve.csv", &csv)?;
+        let channels = plots::default_channels(&o.chip);
+        let picture = plots::TimePicture::new(&o.chip, &o.evolution, &channels);
+        pictures.push((
+            "Flows (and well levels) against time from the state at t = 0; the events and \
+             volumes are in evolve.txt."
+                .into(),
+            folder.picture("evolve", &picture)?,
         ));
     }
     let page = super::html_page(chip, state, &pictures);
