@@ -519,20 +519,18 @@ pub fn evolve_with_step_limit(
                  stopped at t = {tc} s"
             )));
         }
-        if to_dry {
-            if !model.anchored(w.node) {
-                // The series ends with the state at the stop, past the last output.
-                if ev.times.last().is_some_and(|&last| last < tc) {
-                    record(&mut ev, tc, &x);
-                }
-                ev.switches.push(WellSwitch {
-                    node: w.node,
-                    time: tc,
-                    dry: true,
-                });
-                ev.stopped_at = Some(tc);
-                break;
+        if to_dry && !model.anchored(w.node) {
+            // The series ends with the state at the stop, past the last output.
+            if ev.times.last().is_some_and(|&last| last < tc) {
+                record(&mut ev, tc, &x);
             }
+            ev.switches.push(WellSwitch {
+                node: w.node,
+                time: tc,
+                dry: true,
+            });
+            ev.stopped_at = Some(tc);
+            break;
         }
         model.switch_well(&w, tc, to_dry, &mut x);
         ev.switches.push(WellSwitch {
