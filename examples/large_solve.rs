@@ -186,7 +186,7 @@ fn main() {
         .unwrap_or(1_000_000);
     let mtx = flag("--write-mtx").map(std::path::PathBuf::from);
     // Grid side for ≈ size channels (708 → 1 001 112 channels at the default size).
-    let side = ((size as f64 / 2.0).sqrt().round() as usize).max(3);
+    let side = ((size as f64 / 2.0).sqrt().ceil() as usize).max(3);
     // Targets of the issue at 10⁶ unknowns (analyse + factor + solve, one core).
     type Make = Box<dyn Fn() -> Network>;
     let systems: [(&str, Make, f64); 3] = [
@@ -217,8 +217,15 @@ fn main() {
         let g = conductances(&net);
         let drives = drive_values(&net);
         let (mut an, mut fa, mut so, mut whole) = (vec![], vec![], vec![], vec![]);
+        let (mut st, mut de) = (vec![], vec![]);
         let (mut unknowns, mut eliminated, mut residual) = (0, 0, 0.0);
         for _ in 0..runs {
+            let t = Instant::now();
+            drop(KirchhoffSystem::new(&net));
+            st.push(secs(t));
+            let t = Instant::now();
+            drop(net.dead_end_channels());
+            de.push(secs(t));
             let t = Instant::now();
             let solver = Solver::new(&net).expect("analysis");
             an.push(secs(t));
@@ -246,6 +253,11 @@ fn main() {
             whole.push(secs(t));
         }
         let (a, f, s) = (median(an), median(fa), median(so));
+        println!(
+            "{name}: of the analysis, Kirchhoff structure {:.3} s, dead-end marking {:.3} s",
+            median(st),
+            median(de)
+        );
         println!(
             "{:<7} {:>9} {:>10} {:>9.3} {:>9.3} {:>12.3} {:>9.3} {:>9.2} {:>9.3}  {:.1e}",
             name,
