@@ -7,7 +7,7 @@
 //! to the approximate-minimum-degree ordering and the supernodal factor. This is the
 //! minimum-degree rule applied first to the vertices whose elimination creates at most one
 //! fill edge (George & Liu, *Computer Solution of Large Sparse Positive Definite Systems*,
-//! 1981, ch. 5), which in network terms is the series–parallel reduction of circuit analysis
+//! 1981), which in network terms is the series–parallel reduction of circuit analysis
 //! (common practice): a node with one neighbour is a dead end, a node with two is a series
 //! joint whose two conductances become one, g₁g₂/(g₁ + g₂), merged in parallel with any
 //! existing channel between its neighbours. The ordering, not the arithmetic, dominates a
