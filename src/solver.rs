@@ -129,6 +129,13 @@ impl SymmetricPattern {
         self.row_idx.len()
     }
 
+    /// The stored rows of column `j` (sorted, all ≥ `j`) and the slot of the first of them in
+    /// the value array (the others follow in order).
+    pub fn column(&self, j: usize) -> (usize, &[usize]) {
+        let range = self.col_ptr[j]..self.col_ptr[j + 1];
+        (range.start, &self.row_idx[range])
+    }
+
     fn symbolic(&self) -> SymbolicSparseColMatRef<'_, usize> {
         // SAFETY-free constructor: faer checks the invariants we maintain by construction.
         SymbolicSparseColMatRef::new_checked(self.n, self.n, &self.col_ptr, None, &self.row_idx)

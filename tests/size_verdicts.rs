@@ -125,7 +125,14 @@ fn snapping_miss_is_reported_and_allowed() {
         .map(|c| channel_flow(&solved, c))
         .collect();
     let share = q[0] / q.iter().sum::<f64>();
-    assert_eq!(share, t["reached"].as_f64().unwrap());
+    // Equal up to the parsing: serde_json reads floats best-effort (an ulp off at times; exact
+    // only with its float_roundtrip feature), so a share recomputed from parsed flows may differ
+    // from the printed one in the last bit.
+    let reached = t["reached"].as_f64().unwrap();
+    assert!(
+        (share - reached).abs() <= 4.0 * f64::EPSILON * reached,
+        "{share} vs {reached}"
+    );
     let table = rillnet().arg("size").arg(&chip).output().unwrap();
     assert!(String::from_utf8_lossy(&table.stdout).contains("snapping to the fabrication steps"));
 }

@@ -17,6 +17,7 @@
 //! Sign convention: a channel's flow is positive from its `from` node to its `to` node; a
 //! port's flow is positive into the chip.
 
+mod eliminate;
 pub mod flows;
 mod session;
 

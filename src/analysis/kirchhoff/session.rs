@@ -15,6 +15,7 @@
 //! the order of the unit roundoff when A is not too ill-conditioned) and refuse a result
 //! whose residual stays above [`RESIDUAL_LIMIT`].
 
+use super::eliminate::{Eliminated, Plan};
 use super::{
     balance_residuals_for, channel_flows, conductances, drive_values, node_outflows, worst,
     FlowSolution, KirchhoffSystem, SolveError, MAX_REFINEMENTS, RESIDUAL_LIMIT,
@@ -30,14 +31,16 @@ use std::sync::atomic::{AtomicUsize, Ordering};
 const NEGLIGIBLE_RATIO: f64 = 1e6;
 
 /// Solves for one network topology: the Kirchhoff structure ([`KirchhoffSystem`]) and its
-/// symbolic analysis ([`SymbolicCholesky::analyse`]), computed once in [`Solver::new`] and
-/// reused by every [`Solver::factorize`] — for new drives (the matrix does not depend on
-/// them) and for new conductances on the same topology (sizing).
+/// symbolic analysis, computed once in [`Solver::new`] and reused by every
+/// [`Solver::factorize`] — for new drives (the matrix does not depend on them) and for new
+/// conductances on the same topology (sizing). The analysis eliminates dead ends and series
+/// chains exactly and orders only what is left for the sparse Cholesky factor (see
+/// [`super::eliminate`]).
 #[derive(Debug)]
 pub struct Solver<'n> {
     network: &'n Network,
     system: KirchhoffSystem,
-    symbolic: SymbolicCholesky,
+    plan: Plan,
     dead_end: Vec<bool>,
     factorizations: AtomicUsize,
 }
@@ -51,11 +54,11 @@ impl<'n> Solver<'n> {
     /// Assemble and analyse `network`, factorising with `par` threads.
     pub fn with_parallelism(network: &'n Network, par: Parallelism) -> Result<Self, SolveError> {
         let system = KirchhoffSystem::new(network);
-        let symbolic = SymbolicCholesky::analyse(system.pattern(), par)?;
+        let plan = Plan::new(network, &system, par)?;
         Ok(Solver {
             network,
             system,
-            symbolic,
+            plan,
             dead_end: network.dead_end_channels(),
             factorizations: AtomicUsize::new(0),
         })
@@ -75,6 +78,13 @@ impl<'n> Solver<'n> {
     /// construction re-analyses. Exposed so that callers and tests can state the invariant.
     pub fn analyses(&self) -> usize {
         1
+    }
+
+    /// Unknowns the analysis eliminates exactly before the sparse factorisation (dead ends and
+    /// series chains, see [`super::eliminate`]); the other `system().dim() − eliminated()`
+    /// are factorised by sparse Cholesky.
+    pub fn eliminated(&self) -> usize {
+        self.plan.eliminated()
     }
 
     /// Numeric factorisations requested through [`Solver::factorize`] so far.
@@ -98,7 +108,7 @@ impl<'n> Solver<'n> {
         Factor::build(
             self.network,
             &self.system,
-            &self.symbolic,
+            Analysis::Eliminating(&self.plan),
             g,
             Cow::Borrowed(&self.dead_end),
         )
@@ -147,8 +157,33 @@ pub struct Factor<'a> {
     system: &'a KirchhoffSystem,
     g: Vec<f64>,
     values: Vec<f64>,
-    cholesky: Cholesky<'a>,
+    linear: Linear<'a>,
     dead_end: Cow<'a, [bool]>,
+}
+
+/// The analysis a factor is built on: a [`Solver`]'s elimination plan, or a caller's symbolic
+/// Cholesky of the whole pattern ([`super::solve_with`]).
+#[derive(Clone, Copy)]
+enum Analysis<'a> {
+    Eliminating(&'a Plan),
+    Whole(&'a SymbolicCholesky),
+}
+
+/// The numeric factor behind a [`Factor`].
+#[derive(Debug)]
+enum Linear<'a> {
+    Eliminated(Eliminated<'a>),
+    Whole(Cholesky<'a>),
+}
+
+impl Linear<'_> {
+    /// Solve A·x = b for every column of `rhs` (column-major), in place.
+    fn solve_in_place(&self, rhs: &mut [f64]) -> Result<(), SolverError> {
+        match self {
+            Linear::Eliminated(e) => e.solve_in_place(rhs),
+            Linear::Whole(c) => c.solve_in_place(rhs),
+        }
+    }
 }
 
 /// A factorisation failure with the channel most likely behind it named (see
@@ -204,13 +239,13 @@ impl<'a> Factor<'a> {
         g: Vec<f64>,
     ) -> Result<Self, SolveError> {
         let dead_end = Cow::Owned(network.dead_end_channels());
-        Self::build(network, system, symbolic, g, dead_end)
+        Self::build(network, system, Analysis::Whole(symbolic), g, dead_end)
     }
 
     fn build(
         network: &'a Network,
         system: &'a KirchhoffSystem,
-        symbolic: &'a SymbolicCholesky,
+        analysis: Analysis<'a>,
         g: Vec<f64>,
         dead_end: Cow<'a, [bool]>,
     ) -> Result<Self, SolveError> {
@@ -218,15 +253,21 @@ impl<'a> Factor<'a> {
         expect_len("system channels", network.channels.len(), system.channels())?;
         expect_len("conductances", network.channels.len(), g.len())?;
         let values = system.matrix_values(&g);
-        let cholesky = symbolic
-            .factorize(system.pattern(), &values)
-            .map_err(|e| name_the_cause(network, &g, e))?;
+        let linear = match analysis {
+            Analysis::Eliminating(plan) => plan
+                .factorize(&g, |u| values[system.diagonal_slot(u)])
+                .map(Linear::Eliminated),
+            Analysis::Whole(symbolic) => symbolic
+                .factorize(system.pattern(), &values)
+                .map(Linear::Whole),
+        }
+        .map_err(|e| name_the_cause(network, &g, e))?;
         Ok(Factor {
             network,
             system,
             g,
             values,
-            cholesky,
+            linear,
             dead_end,
         })
     }
@@ -248,7 +289,7 @@ impl<'a> Factor<'a> {
         expect_len("drives", self.network.nodes.len(), drives.len())?;
         let b = self.system.rhs_for(self.network, &self.g, drives);
         let mut x = b.clone();
-        self.cholesky.solve_in_place(&mut x)?;
+        self.linear.solve_in_place(&mut x)?;
         self.finish_forward(drives, &b, x)
     }
 
@@ -262,7 +303,7 @@ impl<'a> Factor<'a> {
             b.extend(self.system.rhs_for(self.network, &self.g, d));
         }
         let mut x = b.clone();
-        self.cholesky.solve_in_place(&mut x)?;
+        self.linear.solve_in_place(&mut x)?;
         drive_sets
             .iter()
             .enumerate()
@@ -285,7 +326,7 @@ impl<'a> Factor<'a> {
             b.extend((0..n).map(|u| r[self.system.node(u)]));
         }
         let mut x = b.clone();
-        self.cholesky.solve_in_place(&mut x)?;
+        self.linear.solve_in_place(&mut x)?;
         let abs_values: Vec<f64> = self.values.iter().map(|v| v.abs()).collect();
         (0..rhs.len())
             .map(|k| {
@@ -311,7 +352,7 @@ impl<'a> Factor<'a> {
             let mut d = vec![0.0; x.len()];
             self.system.pattern().multiply(&self.values, x, &mut d);
             d.iter_mut().zip(b).for_each(|(di, bi)| *di = bi - *di);
-            self.cholesky.solve_in_place(&mut d)?;
+            self.linear.solve_in_place(&mut d)?;
             x.iter_mut().zip(&d).for_each(|(xi, di)| *xi += di);
             (residual, last) = check(x);
             refinements += 1;
@@ -399,7 +440,7 @@ impl<'a> Factor<'a> {
                 });
             }
             let mut d = self.channel_residual(&pressures, &injection);
-            self.cholesky.solve_in_place(&mut d)?;
+            self.linear.solve_in_place(&mut d)?;
             x.iter_mut().zip(&d).for_each(|(xi, di)| *xi += di);
             pressures = self.system.node_pressures_for(&x, drives);
             residuals = balance_residuals_for(self.network, &pressures, &self.g, drives);
@@ -609,7 +650,7 @@ mod tests {
     /// The first solution of A·x = b, perturbed by `rel` relative (alternating signs).
     fn perturbed_first_solve(factor: &Factor<'_>, b: &[f64], rel: f64) -> Vec<f64> {
         let mut x = b.to_vec();
-        factor.cholesky.solve_in_place(&mut x).unwrap();
+        factor.linear.solve_in_place(&mut x).unwrap();
         x.iter()
             .enumerate()
             .map(|(i, v)| v * (1.0 + if i % 2 == 0 { rel } else { -rel }))

@@ -1,0 +1,482 @@
+//! Dead ends and series chains eliminated exactly before the sparse factorisation.
+//!
+//! Most of a chip is dead ends and chains of channels in series. Before the sparse Cholesky
+//! factorisation, every unknown with at most two neighbouring unknowns is eliminated in O(1),
+//! repeatedly (eliminating one lowers its neighbours' degrees, so trees, ladders and every
+//! series–parallel part reduce completely); only what is left (e.g. the inside of a grid) goes
+//! to the approximate-minimum-degree ordering and the supernodal factor. This is the
+//! minimum-degree rule applied first to the vertices whose elimination creates at most one
+//! fill edge (George & Liu, *Computer Solution of Large Sparse Positive Definite Systems*,
+//! 1981), which in network terms is the series–parallel reduction of circuit analysis
+//! (common practice): a node with one neighbour is a dead end, a node with two is a series
+//! joint whose two conductances become one, g₁g₂/(g₁ + g₂), merged in parallel with any
+//! existing channel between its neighbours. The ordering, not the arithmetic, dominates a
+//! tree's or a ladder's factorisation; done this way it costs O(nodes + channels).
+//!
+//! Why not plain Schur updates of the assembled matrix: they subtract, a_jj − a_vj²/a_vv, and
+//! lose a conductance far smaller than its neighbours' (the assembled diagonal Σg has already
+//! rounded it away). The reduction is instead carried on the network form of the matrix —
+//! edge conductances w ≥ 0 and each unknown's conductance to the pressure ports s ≥ 0, with
+//! the pivot d = s + Σw formed from them — so every update is a sum of positive terms and each
+//! reduced value carries a relative error of a few units of rounding, whatever the ratio of
+//! the conductances (the idea of Grassmann, Taksar & Heyman 1985, Oper. Res. 33, for Markov
+//! chains). The ill-conditioning the assembled system has is still detected: a pivot below
+//! ε times the unknown's assembled diagonal is what the full factorisation would have failed
+//! on, and is reported as such (the balance checks of the solve work on that matrix too).
+//!
+//! Symbolic and numeric work are split as in the factorisation itself: [`Plan::new`] decides
+//! the elimination order, the fill edges and the reduced pattern (and analyses it) once per
+//! topology; [`Plan::factorize`] replays the order on new conductances in a few array passes.
+//! Pressures of eliminated unknowns are recovered by back substitution, in reverse order; an
+//! unknown that carries no drive and no conductance to a port, between neighbours at equal
+//! pressure, takes that pressure exactly (a loop hanging off one node then carries exactly 0).
+
+use super::KirchhoffSystem;
+use crate::network::Network;
+use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky, SymmetricPattern};
+
+/// No index.
+const NONE: u32 = u32::MAX;
+
+/// A series joint is eliminated only when one of its neighbours has at most this many entries
+/// in its neighbour list (the check that the two are not already joined scans that list); a
+/// joint between two hubs stays in the reduced system instead, which keeps the work O(n).
+const SCAN_LIMIT: usize = 64;
+
+/// One elimination: unknown `v`, its neighbours `j`, `k` (or [`NONE`]) through edges `e1`,
+/// `e2`, and `e3` the edge between `j` and `k` that receives the series conductance.
+#[derive(Clone, Copy, Debug)]
+struct Step {
+    v: u32,
+    j: u32,
+    k: u32,
+    e1: u32,
+    e2: u32,
+    e3: u32,
+}
+
+/// The elimination order, fill and reduced system of one topology (see the module
+/// documentation).
+#[derive(Debug)]
+pub(crate) struct Plan {
+    n: usize,
+    /// Edge slots: an original edge is its slot in the full pattern, fill edges follow.
+    edges: usize,
+    /// Per channel: its edge, or [`NONE`] when an end is a pressure port.
+    channel_edge: Vec<u32>,
+    /// Per channel with exactly one unknown end: that unknown, else [`NONE`].
+    channel_ground: Vec<u32>,
+    steps: Vec<Step>,
+    /// Reduced index → unknown.
+    kept: Vec<u32>,
+    /// Edges left between kept unknowns: (edge, reduced a, reduced b) and their value slots.
+    live: Vec<(u32, u32, u32)>,
+    live_slot: Vec<usize>,
+    diag_slot: Vec<usize>,
+    pattern: SymmetricPattern,
+    symbolic: Option<SymbolicCholesky>,
+}
+
+/// Growable neighbour lists in one pool, with lazy removal of eliminated neighbours.
+struct Adjacency {
+    start: Vec<usize>,
+    len: Vec<u32>,
+    cap: Vec<u32>,
+    nbr: Vec<u32>,
+    edge: Vec<u32>,
+}
+
+impl Adjacency {
+    fn compact(&mut self, v: usize, alive: &[bool]) {
+        let s = self.start[v];
+        let mut w = 0;
+        for r in 0..self.len[v] as usize {
+            let u = self.nbr[s + r];
+            if alive[u as usize] {
+                self.nbr[s + w] = u;
+                self.edge[s + w] = self.edge[s + r];
+                w += 1;
+            }
+        }
+        self.len[v] = w as u32;
+    }
+
+    fn push(&mut self, v: usize, u: u32, e: u32, alive: &[bool]) {
+        if self.len[v] == self.cap[v] {
+            self.compact(v, alive);
+        }
+        if self.len[v] == self.cap[v] {
+            let (s, l) = (self.start[v], self.len[v] as usize);
+            let cap = 2 * l + 2;
+            let new = self.nbr.len();
+            self.nbr.extend_from_within(s..s + l);
+            self.edge.extend_from_within(s..s + l);
+            self.nbr.resize(new + cap, NONE);
+            self.edge.resize(new + cap, NONE);
+            self.start[v] = new;
+            self.cap[v] = cap as u32;
+        }
+        let at = self.start[v] + self.len[v] as usize;
+        self.nbr[at] = u;
+        self.edge[at] = e;
+        self.len[v] += 1;
+    }
+
+    fn entries(&self, v: usize) -> impl Iterator<Item = (u32, u32)> + '_ {
+        let s = self.start[v];
+        let l = self.len[v] as usize;
+        self.nbr[s..s + l]
+            .iter()
+            .copied()
+            .zip(self.edge[s..s + l].iter().copied())
+    }
+}
+
+impl Plan {
+    /// Decide the elimination for `system` (built for `network`) and analyse what is left.
+    pub(crate) fn new(
+        network: &Network,
+        system: &KirchhoffSystem,
+        par: Parallelism,
+    ) -> Result<Plan, SolverError> {
+        let n = system.dim();
+        let full = system.pattern();
+        // Indices are u32; a system beyond that is factorised whole.
+        let fits = n < NONE as usize / 2 && full.nnz() < NONE as usize / 2;
+        let mut degree = vec![0u32; n];
+        for j in 0..n {
+            for &i in full.column(j).1.iter().filter(|&&i| i != j) {
+                degree[i] += 1;
+                degree[j] += 1;
+            }
+        }
+        let mut adj = Adjacency {
+            start: Vec::with_capacity(n),
+            len: vec![0; n],
+            cap: Vec::with_capacity(n),
+            nbr: Vec::new(),
+            edge: Vec::new(),
+        };
+        let mut total = 0usize;
+        for &d in &degree {
+            adj.start.push(total);
+            adj.cap.push(d + 2);
+            total += d as usize + 2;
+        }
+        adj.nbr = vec![NONE; total];
+        adj.edge = vec![NONE; total];
+        let mut alive = vec![true; n];
+        for j in 0..n {
+            let (first, rows) = full.column(j);
+            for (t, &i) in rows.iter().enumerate().filter(|(_, &i)| i != j) {
+                let e = (first + t) as u32;
+                adj.push(i, j as u32, e, &alive);
+                adj.push(j, i as u32, e, &alive);
+            }
+        }
+        let mut edges = full.nnz();
+        let mut steps = Vec::with_capacity(n);
+        // Dead ends first (their elimination adds nothing), then series joints; 0 = not queued,
+        // 1 = queued as a joint, 2 = queued as a dead end.
+        let mut queued = vec![0u8; n];
+        let (mut ends, mut joints) = (Vec::new(), Vec::new());
+        let enqueue = |u: usize,
+                       degree: &[u32],
+                       queued: &mut [u8],
+                       ends: &mut Vec<u32>,
+                       joints: &mut Vec<u32>| {
+            if degree[u] <= 1 && queued[u] != 2 {
+                queued[u] = 2;
+                ends.push(u as u32);
+            } else if degree[u] == 2 && queued[u] == 0 {
+                queued[u] = 1;
+                joints.push(u as u32);
+            }
+        };
+        if fits {
+            for v in (0..n).rev() {
+                enqueue(v, &degree, &mut queued, &mut ends, &mut joints);
+            }
+        }
+        while let Some(v) = ends.pop().or_else(|| joints.pop()) {
+            let v = v as usize;
+            if !alive[v] || degree[v] > 2 {
+                continue;
+            }
+            let mut nb = [(NONE, NONE); 2];
+            let mut count = 0;
+            for (u, e) in adj.entries(v) {
+                if alive[u as usize] && count < 2 {
+                    nb[count] = (u, e);
+                    count += 1;
+                }
+            }
+            let [(j, e1), (k, e2)] = nb;
+            let mut e3 = NONE;
+            if count == 2 {
+                let (a, b) = if adj.len[j as usize] <= adj.len[k as usize] {
+                    (j as usize, k)
+                } else {
+                    (k as usize, j)
+                };
+                if adj.len[a] as usize > SCAN_LIMIT {
+                    adj.compact(a, &alive);
+                }
+                if adj.len[a] as usize > SCAN_LIMIT {
+                    queued[v] = 0;
+                    continue;
+                }
+                e3 = adj
+                    .entries(a)
+                    .find(|&(u, _)| u == b && alive[u as usize])
+                    .map_or(NONE, |(_, e)| e);
+            }
+            alive[v] = false;
+            if count == 2 && e3 == NONE {
+                e3 = edges as u32;
+                edges += 1;
+                adj.push(j as usize, k, e3, &alive);
+                adj.push(k as usize, j, e3, &alive);
+            } else {
+                for u in [j, k].into_iter().filter(|&u| u != NONE) {
+                    degree[u as usize] -= 1;
+                }
+            }
+            for u in [j, k].into_iter().filter(|&u| u != NONE) {
+                enqueue(u as usize, &degree, &mut queued, &mut ends, &mut joints);
+            }
+            steps.push(Step {
+                v: v as u32,
+                j,
+                k,
+                e1,
+                e2,
+                e3,
+            });
+        }
+        // The reduced system: kept unknowns and the edges left between them.
+        let mut reduced_of = vec![NONE; n];
+        let kept: Vec<u32> = (0..n as u32).filter(|&v| alive[v as usize]).collect();
+        for (r, &v) in kept.iter().enumerate() {
+            reduced_of[v as usize] = r as u32;
+        }
+        let m = kept.len();
+        let mut live = Vec::new();
+        for (r, &v) in kept.iter().enumerate() {
+            for (u, e) in adj.entries(v as usize) {
+                if alive[u as usize] && u > v {
+                    live.push((e, r as u32, reduced_of[u as usize]));
+                }
+            }
+        }
+        drop(adj);
+        let mut positions: Vec<(usize, usize)> = (0..m).map(|i| (i, i)).collect();
+        positions.extend(live.iter().map(|&(_, a, b)| (a as usize, b as usize)));
+        let (pattern, slot) = SymmetricPattern::from_positions(m, &positions);
+        let symbolic = if m > 0 {
+            Some(SymbolicCholesky::analyse(&pattern, par)?)
+        } else {
+            None
+        };
+        let (mut channel_edge, mut channel_ground) = (Vec::new(), Vec::new());
+        for (c, s) in network.channels.iter().zip(&system.slots) {
+            channel_edge.push(s.off.map_or(NONE, |e| e as u32));
+            let ground = match (system.unknown_of[c.from.0], system.unknown_of[c.to.0]) {
+                (Some(a), None) | (None, Some(a)) => a as u32,
+                _ => NONE,
+            };
+            channel_ground.push(ground);
+        }
+        Ok(Plan {
+            n,
+            edges,
+            channel_edge,
+            channel_ground,
+            steps,
+            kept,
+            live_slot: slot[m..].to_vec(),
+            diag_slot: slot[..m].to_vec(),
+            live,
+            pattern,
+            symbolic,
+        })
+    }
+
+    /// Unknowns eliminated before the factorisation (the rest are factorised by Cholesky).
+    pub(crate) fn eliminated(&self) -> usize {
+        self.steps.len()
+    }
+
+    /// Replay the elimination on conductances `g` and factorise what is left. `diagonal(u)` is
+    /// unknown u's assembled diagonal Σg: a pivot below ε times it fails as the full
+    /// factorisation would (see the module documentation) — leaving out the conductance
+    /// towards free parts already eliminated (a pump or dead end with no conductance of its
+    /// own to a port, which hands back exactly nothing to the pivot).
+    pub(crate) fn factorize(
+        &self,
+        g: &[f64],
+        diagonal: impl Fn(usize) -> f64,
+    ) -> Result<Eliminated<'_>, SolverError> {
+        let mut w = vec![0.0; self.edges];
+        let mut s = vec![0.0; self.n];
+        for ((&e, &u), &gk) in self.channel_edge.iter().zip(&self.channel_ground).zip(g) {
+            if e != NONE {
+                w[e as usize] += gk;
+            } else if u != NONE {
+                s[u as usize] += gk;
+            }
+        }
+        let mut numeric = Vec::with_capacity(self.steps.len());
+        // Conductance from each unknown into free parts already eliminated (see `factorize`).
+        let mut free = vec![0.0; self.n];
+        for (t, st) in self.steps.iter().enumerate() {
+            let sv = s[st.v as usize];
+            let w1 = if st.e1 == NONE {
+                0.0
+            } else {
+                w[st.e1 as usize]
+            };
+            let w2 = if st.e2 == NONE {
+                0.0
+            } else {
+                w[st.e2 as usize]
+            };
+            let d = sv + w1 + w2;
+            let floor = f64::EPSILON * (diagonal(st.v as usize) - free[st.v as usize]);
+            if d.is_nan() || d <= floor {
+                return Err(SolverError::NotPositiveDefinite {
+                    pivot: t,
+                    n: self.n,
+                });
+            }
+            if sv != 0.0 {
+                if st.j != NONE {
+                    s[st.j as usize] += w1 / d * sv;
+                }
+                if st.k != NONE {
+                    s[st.k as usize] += w2 / d * sv;
+                }
+            } else {
+                if st.j != NONE {
+                    free[st.j as usize] += w1;
+                }
+                if st.k != NONE {
+                    free[st.k as usize] += w2;
+                }
+            }
+            if st.e3 != NONE {
+                w[st.e3 as usize] += w1 / d * w2;
+            }
+            numeric.push(Pivot {
+                d,
+                m1: w1 / d,
+                m2: w2 / d,
+                free: sv == 0.0,
+            });
+        }
+        let cholesky = match &self.symbolic {
+            None => None,
+            Some(symbolic) => {
+                let mut values = vec![0.0; self.pattern.nnz()];
+                let mut sum: Vec<f64> = self.kept.iter().map(|&v| s[v as usize]).collect();
+                for (&(e, a, b), &slot) in self.live.iter().zip(&self.live_slot) {
+                    let we = w[e as usize];
+                    values[slot] -= we;
+                    sum[a as usize] += we;
+                    sum[b as usize] += we;
+                }
+                for (&slot, &d) in self.diag_slot.iter().zip(&sum) {
+                    values[slot] = d;
+                }
+                let shift = self.steps.len();
+                Some(
+                    symbolic
+                        .factorize(&self.pattern, &values)
+                        .map_err(|e| match e {
+                            SolverError::NotPositiveDefinite { pivot, .. } => {
+                                SolverError::NotPositiveDefinite {
+                                    pivot: shift + pivot,
+                                    n: self.n,
+                                }
+                            }
+                            other => other,
+                        })?,
+                )
+            }
+        };
+        Ok(Eliminated {
+            plan: self,
+            pivots: numeric,
+            cholesky,
+        })
+    }
+}
+
+/// One eliminated unknown's pivot d = s + w₁ + w₂ and multipliers wᵢ/d; `free` when it had
+/// no conductance to a port (s = 0).
+#[derive(Clone, Copy, Debug)]
+struct Pivot {
+    d: f64,
+    m1: f64,
+    m2: f64,
+    free: bool,
+}
+
+/// The numeric elimination for one set of conductances, with the factor of what is left.
+#[derive(Debug)]
+pub(crate) struct Eliminated<'p> {
+    plan: &'p Plan,
+    pivots: Vec<Pivot>,
+    cholesky: Option<Cholesky<'p>>,
+}
+
+impl Eliminated<'_> {
+    /// Solve A·x = b for every column of `rhs` (column-major, n rows each), in place.
+    pub(crate) fn solve_in_place(&self, rhs: &mut [f64]) -> Result<(), SolverError> {
+        let plan = self.plan;
+        let n = plan.n;
+        if n == 0 {
+            return Ok(());
+        }
+        let at = |i: u32| i as usize;
+        for col in rhs.chunks_mut(n) {
+            for (st, p) in plan.steps.iter().zip(&self.pivots) {
+                let bv = col[at(st.v)];
+                if bv != 0.0 {
+                    if st.j != NONE {
+                        col[at(st.j)] += p.m1 * bv;
+                    }
+                    if st.k != NONE {
+                        col[at(st.k)] += p.m2 * bv;
+                    }
+                }
+            }
+        }
+        if let Some(cholesky) = &self.cholesky {
+            let m = plan.kept.len();
+            let mut y = Vec::with_capacity(m * rhs.len() / n);
+            for col in rhs.chunks(n) {
+                y.extend(plan.kept.iter().map(|&v| col[at(v)]));
+            }
+            cholesky.solve_in_place(&mut y)?;
+            for (col, ys) in rhs.chunks_mut(n).zip(y.chunks(m)) {
+                for (&v, &yv) in plan.kept.iter().zip(ys) {
+                    col[at(v)] = yv;
+                }
+            }
+        }
+        for col in rhs.chunks_mut(n) {
+            for (st, p) in plan.steps.iter().zip(&self.pivots).rev() {
+                let bv = col[at(st.v)];
+                let xj = if st.j == NONE { 0.0 } else { col[at(st.j)] };
+                let xk = if st.k == NONE { xj } else { col[at(st.k)] };
+                col[at(st.v)] = if p.free && bv == 0.0 && st.j != NONE && xj == xk {
+                    xj
+                } else {
+                    bv / p.d + p.m1 * xj + p.m2 * if st.k == NONE { 0.0 } else { xk }
+                };
+            }
+        }
+        Ok(())
+    }
+}
