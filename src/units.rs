@@ -699,9 +699,16 @@ pub mod display {
         if !x.is_finite() {
             return format!("{x}");
         }
-        let mag = x.abs().log10().floor() as i32;
+        // The magnitude after rounding to `sig` digits, so that 9.99999 prints as "10.00", not
+        // "10.000" (a set 10 µL/min that comes back as 9.999999999 must not gain a digit).
+        let rounded = format!("{:.*e}", sig.saturating_sub(1), x);
+        let mag = rounded
+            .rsplit('e')
+            .next()
+            .and_then(|e| e.parse::<i32>().ok())
+            .unwrap_or(0);
         if !(-3..6).contains(&mag) {
-            return format!("{:.*e}", sig.saturating_sub(1), x);
+            return rounded;
         }
         let decimals = (sig as i32 - 1 - mag).max(0) as usize;
         format!("{x:.decimals$}")
@@ -732,6 +739,18 @@ pub mod display {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn rounding_up_to_the_next_decade_keeps_the_digit_count() {
+        use display::fmt_sig;
+        assert_eq!(fmt_sig(9.999_999_999, 4), "10.00");
+        assert_eq!(fmt_sig(10.000_000_001, 4), "10.00");
+        assert_eq!(fmt_sig(0.999_999_999_9, 4), "1.000");
+        assert_eq!(fmt_sig(-99.999_99, 3), "-100");
+        assert_eq!(fmt_sig(999_999.9, 4), "1.000e6");
+        assert_eq!(fmt_sig(1.234_5e-4, 3), "1.23e-4");
+        assert_eq!(fmt_sig(0.012_34, 3), "0.0123");
+    }
 
     #[test]
     fn decimal_units_are_exact() {
