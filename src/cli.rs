@@ -52,6 +52,10 @@ pub enum Command {
         /// Channels whose flows --sensitivity differentiates, comma-separated.
         #[arg(long, value_delimiter = ',', requires = "sensitivity")]
         channels: Vec<String>,
+        /// Solute model: complete mixing at every junction, or side-by-side streams with a
+        /// profile across each channel's width (default: the chip's 'mixing:', else well).
+        #[arg(long, value_enum)]
+        mixing: Option<MixingArg>,
     },
     /// Tune the adjustable ports (pressure controllers, syringe pumps) to meet the chip's targets.
     Tune {
@@ -184,6 +188,12 @@ pub enum Colour {
     Pressure,
     Flow,
     Margin,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+pub enum MixingArg {
+    Well,
+    Lateral,
 }
 
 #[derive(Clone, Copy, ValueEnum)]

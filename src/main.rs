@@ -44,6 +44,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             plot,
             sensitivity,
             channels,
+            mixing,
         } => {
             picture_arg(plot.as_deref())?;
             let arg = chip(file)?;
@@ -52,11 +53,16 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 (true, true) => SensitivityChoice::Targets,
                 (true, false) => SensitivityChoice::Channels(channels.clone()),
             };
-            let outcome = commands::solve(&commands::SolveRequest {
+            let mixing = mixing.map(|m| match m {
+                cli::MixingArg::Well => rillnet::chip::species::Mixing::Well,
+                cli::MixingArg::Lateral => rillnet::chip::species::Mixing::Lateral,
+            });
+            let request = commands::SolveRequest {
                 chip: arg.input(),
                 plot: plot.as_deref(),
                 sensitivity: choice,
-            })?;
+            };
+            let outcome = commands::solve_mixing(&request, mixing)?;
             (outcome, *format, output.clone(), vec![arg.path])
         }
         Command::Evolve {
