@@ -101,6 +101,9 @@ pub enum Command {
         /// What the channel colours show (splits picture).
         #[arg(long, value_enum, default_value_t = Colour::Pressure)]
         colour: Colour,
+        /// The species '--colour species' shows (default: the first the chip declares).
+        #[arg(long)]
+        species: Option<String>,
         /// New .svg or .png file to write.
         #[arg(long, short)]
         output: PathBuf,
@@ -181,6 +184,8 @@ pub enum Command {
 pub enum Show {
     Splits,
     Pressure,
+    /// Outlet concentrations against outlet (the gradient a generator makes).
+    Outlets,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -188,6 +193,8 @@ pub enum Colour {
     Pressure,
     Flow,
     Margin,
+    /// Mean concentration of a species (with --species).
+    Species,
 }
 
 #[derive(Clone, Copy, ValueEnum)]

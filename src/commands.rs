@@ -642,6 +642,71 @@ pub fn plot(req: &PlotRequest<'_>) -> Result<Outcome, Error> {
     Ok(Outcome::Wrote(vec![req.output.to_path_buf()]))
 }
 
+/// A picture of the solutes for `plot`.
+#[derive(Clone, Copy, Debug)]
+pub enum SolutePicture<'a> {
+    /// The flow-split picture coloured by a species' mean concentration (by name; `None`: the
+    /// first species).
+    Splits { species: Option<&'a str> },
+    /// Outlet concentrations against outlet.
+    Outlets,
+}
+
+/// Draw a picture of the chip's solutes (in the chip's solute model).
+pub fn plot_solutes(
+    chip: &ChipInput<'_>,
+    picture: SolutePicture<'_>,
+    output: &Path,
+) -> Result<Outcome, Error> {
+    let (chip_data, state) = load_and_solve(chip)?;
+    let refuse =
+        |option: &str, msg: String| Error::Input(format::InputError::whole_file(option, msg));
+    if chip_data.species.is_empty() {
+        return Err(refuse(
+            "--colour",
+            "the chip declares no species; add them under 'species:' with concentrations at \
+             the inlets, e.g. 'species: {drug: {diffusivity: 5e-10 m^2/s}}'"
+                .into(),
+        ));
+    }
+    let protected = chip.protected();
+    match picture {
+        SolutePicture::Splits { species } => {
+            let k = match species {
+                None => 0,
+                Some(name) => chip_data
+                    .species
+                    .iter()
+                    .position(|s| s.name == name)
+                    .ok_or_else(|| {
+                        let names: Vec<&str> =
+                            chip_data.species.iter().map(|s| s.name.as_str()).collect();
+                        refuse(
+                            "--species",
+                            format!(
+                                "the chip has no species '{name}'; it declares: {}",
+                                names.join(", ")
+                            ),
+                        )
+                    })?,
+            };
+            let picture = plots::ChipPicture::new(&chip_data, &state, plots::ColourBy::Species(k));
+            plots::save(&picture, output, &protected)?;
+        }
+        SolutePicture::Outlets => {
+            let chart = plots::OutletChart::new(&chip_data, &state).ok_or_else(|| {
+                refuse(
+                    "--show",
+                    "the chip has fewer than two outlets with flow; there is no gradient to plot"
+                        .into(),
+                )
+            })?;
+            plots::save(&chart, output, &protected)?;
+        }
+    }
+    Ok(Outcome::Wrote(vec![output.to_path_buf()]))
+}
+
 /// What the `report` command needs.
 #[derive(Clone, Debug)]
 pub struct ReportRequest<'a> {

@@ -155,10 +155,22 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             file,
             show,
             colour,
+            species,
             output,
         } => {
             picture_arg(Some(output))?;
             let arg = chip(file)?;
+            let solutes = match (show, colour) {
+                (Show::Outlets, _) => Some(commands::SolutePicture::Outlets),
+                (Show::Splits, Colour::Species) => Some(commands::SolutePicture::Splits {
+                    species: species.as_deref(),
+                }),
+                _ => None,
+            };
+            if let Some(picture) = solutes {
+                let outcome = commands::plot_solutes(&arg.input(), picture, output)?;
+                return Ok((outcome, Format::Table, None, vec![arg.path]));
+            }
             let outcome = commands::plot(&commands::PlotRequest {
                 chip: arg.input(),
                 pressure_profile: matches!(show, Show::Pressure),
@@ -166,6 +178,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                     Colour::Pressure => rillnet::plots::ColourBy::Pressure,
                     Colour::Flow => rillnet::plots::ColourBy::Flow,
                     Colour::Margin => rillnet::plots::ColourBy::Margin,
+                    Colour::Species => rillnet::plots::ColourBy::Pressure,
                 },
                 output,
             })?;

@@ -474,3 +474,111 @@ fn solve_mixing_lateral_writes_min_max_and_index() {
     assert!(well.get("solute_model").is_none());
     assert!(well["channels"][0].get("mixing_index").is_none());
 }
+
+// ---------------------------------------------------------------------------------------
+// Pictures
+// ---------------------------------------------------------------------------------------
+
+/// A split after a short mixing channel, drawn, lateral by the chip-file key.
+const SPLIT: &str = "mixing: lateral
+fluid: {viscosity: 1 mPa*s, density: 1000 kg/m^3}
+species:
+  drug: {diffusivity: 5e-10 m^2/s}
+  dye: {diffusivity: 4e-10 m^2/s}
+sections:
+  s: {shape: rectangle, width: 100 um, height: 50 um}
+nodes:
+  a: {pressure: 100 mbar, concentrations: {drug: 10 uM}, at: [0 mm, 1 mm]}
+  b: {pressure: 90 mbar, concentrations: {dye: 1}, at: [0 mm, -1 mm]}
+  j: {at: [1 mm, 0 mm]}
+  s: {at: [11 mm, 0 mm]}
+  o1: {pressure: 0 Pa, at: [12 mm, 1 mm]}
+  o2: {pressure: 0 Pa, at: [12 mm, -1 mm]}
+  o3: {pressure: 0 Pa, at: [12 mm, -2 mm]}
+channels:
+  ca: {from: a, to: j, section: s, length: 100 mm}
+  cb: {from: b, to: j, section: s, length: 100 mm}
+  mix: {from: j, to: s, section: s, length: 20 mm}
+  c1: {from: s, to: o1, section: s, length: 5 mm}
+  c2: {from: s, to: o2, section: s, length: 5 mm}
+  c3: {from: s, to: o3, section: s, length: 5 mm}
+";
+
+fn svg_texts(svg: &str) -> Vec<String> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter(|n| n.has_tag_name("text"))
+        .filter_map(|n| {
+            n.descendants()
+                .filter_map(|t| t.text())
+                .map(str::trim)
+                .find(|t| !t.is_empty())
+                .map(String::from)
+        })
+        .collect()
+}
+
+#[test]
+fn species_pictures_are_drawn_and_deterministic() {
+    let dir = tempfile::tempdir().unwrap();
+    let chip = dir.path().join("split.yaml");
+    std::fs::write(&chip, SPLIT).unwrap();
+    let run = |args: &[&str], out: &str| {
+        let path = dir.path().join(out);
+        common::rillnet()
+            .arg("plot")
+            .arg(&chip)
+            .args(args)
+            .arg("-o")
+            .arg(&path)
+            .assert()
+            .success();
+        std::fs::read_to_string(path).unwrap()
+    };
+    let coloured = run(&["--colour", "species", "--species", "dye"], "dye.svg");
+    let texts = svg_texts(&coloured);
+    assert!(texts.iter().any(|t| t.contains("colour: dye")), "{texts:?}");
+    assert!(texts.iter().any(|t| t == "dye [fraction]"), "{texts:?}");
+    let outlets = run(&["--show", "outlets"], "outlets.svg");
+    let texts = svg_texts(&outlets);
+    for name in ["o1", "o2", "o3", "drug (1 = 10.0 µM)", "dye (1 = 1.00)"] {
+        assert!(texts.iter().any(|t| t == name), "{name}: {texts:?}");
+    }
+    // Three outlets per species: circles for the first, triangles (paths/polygons) for the
+    // second; at least the three circles are there.
+    let doc = roxmltree::Document::parse(&outlets).unwrap();
+    assert!(
+        doc.descendants()
+            .filter(|n| n.has_tag_name("circle"))
+            .count()
+            >= 3
+    );
+    // Same input, same bytes.
+    assert_eq!(run(&["--show", "outlets"], "again.svg"), outlets);
+    assert_eq!(
+        run(&["--colour", "species", "--species", "dye"], "dye2.svg"),
+        coloured
+    );
+    // An unknown species is refused with the names the chip declares (exit 2).
+    let refused = common::rillnet()
+        .arg("plot")
+        .arg(&chip)
+        .args(["--colour", "species", "--species", "dgu", "-o"])
+        .arg(dir.path().join("x.svg"))
+        .output()
+        .unwrap();
+    assert_eq!(refused.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&refused.stderr).contains("declares: drug, dye"));
+    // The report folder has both pictures.
+    let folder = dir.path().join("report");
+    common::rillnet()
+        .arg("report")
+        .arg(&chip)
+        .arg("-o")
+        .arg(&folder)
+        .assert()
+        .success();
+    for f in ["species.svg", "species.png", "outlets.svg", "outlets.png"] {
+        assert!(folder.join(f).exists(), "{f}");
+    }
+}

@@ -10,11 +10,13 @@
 
 mod chip;
 mod margins;
+mod outlets;
 mod pressure;
 mod section_field;
 
 pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT};
 pub use margins::MarginChart;
+pub use outlets::{OutletChart, OutletSeries};
 pub use pressure::{PressurePath, PressurePicture};
 pub use section_field::SectionPicture;
 
