@@ -413,8 +413,8 @@ proptest! {
         // check that those flows are at rounding level.
         let means = &result.fields[0].channels;
         let (mut sunk, mut sunk_flow) = (0.0, 0.0);
-        for i in 0..network.nodes.len() {
-            let (mut q_in, mut m_in, mut leaves) = (0.0, 0.0, into[i] < 0.0
+        for (i, &net) in into.iter().enumerate() {
+            let (mut q_in, mut m_in, mut leaves) = (0.0, 0.0, net < 0.0
                 && !matches!(network.nodes[NodeId(i)].port, Port::Junction));
             for (k, c) in network.channels.iter().enumerate() {
                 let q = flows[k];
