@@ -615,3 +615,15 @@ fn species_pictures_are_drawn_and_deterministic() {
         assert!(folder.join(f).exists(), "{f}");
     }
 }
+
+#[test]
+fn a_wrong_mixing_key_is_located() {
+    let text = format!("mixing: lateal\n{}", x_chip(true));
+    let err = parse_chip(&text, "chip.yaml", Syntax::Yaml)
+        .unwrap_err()
+        .to_string();
+    assert!(
+        err.contains("chip.yaml:1:9") && err.contains("expected `well` or `lateral`"),
+        "{err}"
+    );
+}

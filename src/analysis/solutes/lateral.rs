@@ -538,10 +538,18 @@ pub(super) fn sweep(
         // A channel from a node nothing reaches (flows at rounding level) carries nothing,
         // as in the well-mixed balance.
         let nothing = Profile::uniform(0.0);
-        for s in &j.ins[node] {
+        // Each channel's profile is handed on once: take it (memory stays O(front)).
+        let taken: Vec<Option<Profile>> = j.ins[node]
+            .iter()
+            .map(|s| match *s {
+                Stream::Outside(_) => None,
+                Stream::Channel(c, _) => arriving[c.0].take(),
+            })
+            .collect();
+        for (s, held) in j.ins[node].iter().zip(&taken) {
             let p = match *s {
                 Stream::Outside(_) => &outside,
-                Stream::Channel(c, _) => arriving[c.0].as_ref().unwrap_or(&nothing),
+                Stream::Channel(..) => held.as_ref().unwrap_or(&nothing),
             };
             parts.push((s.flow(), p));
             mass += s.flow() * p.mean();
