@@ -45,6 +45,7 @@ fn main() {
             network,
             design: Default::default(),
             species: Vec::new(),
+            mixing: Default::default(),
             layout: DrawnLayout::default(),
             drives: Default::default(),
             notes: Vec::new(),

@@ -52,6 +52,10 @@ pub enum Command {
         /// Channels whose flows --sensitivity differentiates, comma-separated.
         #[arg(long, value_delimiter = ',', requires = "sensitivity")]
         channels: Vec<String>,
+        /// Solute model: complete mixing at every junction, or side-by-side streams with a
+        /// profile across each channel's width (default: the chip's 'mixing:', else well).
+        #[arg(long, value_enum)]
+        mixing: Option<MixingArg>,
     },
     /// Tune the adjustable ports (pressure controllers, syringe pumps) to meet the chip's targets.
     Tune {
@@ -97,6 +101,9 @@ pub enum Command {
         /// What the channel colours show (splits picture).
         #[arg(long, value_enum, default_value_t = Colour::Pressure)]
         colour: Colour,
+        /// The species '--colour species' shows (default: the first the chip declares).
+        #[arg(long)]
+        species: Option<String>,
         /// New .svg or .png file to write.
         #[arg(long, short)]
         output: PathBuf,
@@ -184,6 +191,8 @@ pub enum Command {
 pub enum Show {
     Splits,
     Pressure,
+    /// Outlet concentrations against outlet (the gradient a generator makes).
+    Outlets,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -191,6 +200,14 @@ pub enum Colour {
     Pressure,
     Flow,
     Margin,
+    /// Mean concentration of a species (with --species).
+    Species,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+pub enum MixingArg {
+    Well,
+    Lateral,
 }
 
 #[derive(Clone, Copy, ValueEnum)]

@@ -99,7 +99,18 @@ pub struct SolveRequest<'a> {
 /// Load a chip and solve it (flows, then the solutes it declares), mapping a failed solve
 /// to an error.
 fn load_and_solve(input: &ChipInput<'_>) -> Result<(Chip, SteadyState), Error> {
-    let chip = input.load()?;
+    load_and_solve_with(input, None)
+}
+
+/// [`load_and_solve`] with the solute model chosen on the command line (else the chip's).
+fn load_and_solve_with(
+    input: &ChipInput<'_>,
+    mixing: Option<crate::chip::species::Mixing>,
+) -> Result<(Chip, SteadyState), Error> {
+    let mut chip = input.load()?;
+    if let Some(m) = mixing {
+        chip.mixing = m;
+    }
     let mut state = analysis::steady_state(&chip.network).map_err(|source| Error::Solve {
         origin: chip.source.origin.clone(),
         source,
@@ -108,10 +119,21 @@ fn load_and_solve(input: &ChipInput<'_>) -> Result<(Chip, SteadyState), Error> {
     Ok((chip, state))
 }
 
-/// Well-mixed concentrations of the chip's species (none declared: `None`).
+/// Concentrations of the chip's species in the chip's own model (`mixing:`; none declared:
+/// `None`).
 pub fn solve_solutes(
     chip: &Chip,
     state: &SteadyState,
+) -> Result<Option<analysis::solutes::Solutes>, Error> {
+    solve_solutes_with(chip, state, chip.mixing)
+}
+
+/// Concentrations of the chip's species in the given model (none declared: `None`). The
+/// lateral model orders streams by the chip's drawing.
+pub fn solve_solutes_with(
+    chip: &Chip,
+    state: &SteadyState,
+    mixing: crate::chip::species::Mixing,
 ) -> Result<Option<analysis::solutes::Solutes>, Error> {
     if chip.species.is_empty() {
         return Ok(None);
@@ -125,11 +147,21 @@ pub fn solve_solutes(
         })
         .collect();
     let flows: Vec<f64> = state.channels.iter().map(|c| c.flow).collect();
-    analysis::solutes::solve(
+    let model = match mixing {
+        crate::chip::species::Mixing::Well => analysis::solutes::Model::WellMixed,
+        crate::chip::species::Mixing::Lateral => {
+            analysis::solutes::Model::Lateral(analysis::solutes::Layout {
+                node_at: &chip.layout.node_at,
+                channel_path: &chip.layout.channel_path,
+            })
+        }
+    };
+    analysis::solutes::solve_with(
         &chip.network,
         &flows,
         &state.solution.node_net_inflow,
         &loads,
+        model,
     )
     .map(Some)
     .map_err(|source| Error::Solutes {
@@ -154,9 +186,17 @@ fn margin_plot(
     plots::save(&chart, path, &input.protected())
 }
 
-/// Load and solve a chip (and its sensitivities when asked).
+/// Load and solve a chip (and its sensitivities when asked), solutes in the chip's model.
 pub fn solve(req: &SolveRequest<'_>) -> Result<Outcome, Error> {
-    let (chip, state) = load_and_solve(&req.chip)?;
+    solve_mixing(req, None)
+}
+
+/// [`solve`] with the solute model chosen for this run (`solve --mixing`; `None`: the chip's).
+pub fn solve_mixing(
+    req: &SolveRequest<'_>,
+    mixing: Option<crate::chip::species::Mixing>,
+) -> Result<Outcome, Error> {
+    let (chip, state) = load_and_solve_with(&req.chip, mixing)?;
     if let Some(path) = req.plot {
         margin_plot(&chip, &state, path, &req.chip)?;
     }
@@ -703,6 +743,71 @@ pub fn plot(req: &PlotRequest<'_>) -> Result<Outcome, Error> {
         )?;
     }
     Ok(Outcome::Wrote(vec![req.output.to_path_buf()]))
+}
+
+/// A picture of the solutes for `plot`.
+#[derive(Clone, Copy, Debug)]
+pub enum SolutePicture<'a> {
+    /// The flow-split picture coloured by a species' mean concentration (by name; `None`: the
+    /// first species).
+    Splits { species: Option<&'a str> },
+    /// Outlet concentrations against outlet.
+    Outlets,
+}
+
+/// Draw a picture of the chip's solutes (in the chip's solute model).
+pub fn plot_solutes(
+    chip: &ChipInput<'_>,
+    picture: SolutePicture<'_>,
+    output: &Path,
+) -> Result<Outcome, Error> {
+    let (chip_data, state) = load_and_solve(chip)?;
+    let refuse =
+        |option: &str, msg: String| Error::Input(format::InputError::whole_file(option, msg));
+    if chip_data.species.is_empty() {
+        return Err(refuse(
+            "--colour",
+            "the chip declares no species; add them under 'species:' with concentrations at \
+             the inlets, e.g. 'species: {drug: {diffusivity: 5e-10 m^2/s}}'"
+                .into(),
+        ));
+    }
+    let protected = chip.protected();
+    match picture {
+        SolutePicture::Splits { species } => {
+            let k = match species {
+                None => 0,
+                Some(name) => chip_data
+                    .species
+                    .iter()
+                    .position(|s| s.name == name)
+                    .ok_or_else(|| {
+                        let names: Vec<&str> =
+                            chip_data.species.iter().map(|s| s.name.as_str()).collect();
+                        refuse(
+                            "--species",
+                            format!(
+                                "the chip has no species '{name}'; it declares: {}",
+                                names.join(", ")
+                            ),
+                        )
+                    })?,
+            };
+            let picture = plots::ChipPicture::new(&chip_data, &state, plots::ColourBy::Species(k));
+            plots::save(&picture, output, &protected)?;
+        }
+        SolutePicture::Outlets => {
+            let chart = plots::OutletChart::new(&chip_data, &state).ok_or_else(|| {
+                refuse(
+                    "--show",
+                    "the chip has fewer than two outlets with flow; there is no gradient to plot"
+                        .into(),
+                )
+            })?;
+            plots::save(&chart, output, &protected)?;
+        }
+    }
+    Ok(Outcome::Wrote(vec![output.to_path_buf()]))
 }
 
 /// What the `report` command needs.

@@ -44,6 +44,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             plot,
             sensitivity,
             channels,
+            mixing,
         } => {
             picture_arg(plot.as_deref())?;
             let arg = chip(file)?;
@@ -52,11 +53,16 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 (true, true) => SensitivityChoice::Targets,
                 (true, false) => SensitivityChoice::Channels(channels.clone()),
             };
-            let outcome = commands::solve(&commands::SolveRequest {
+            let mixing = mixing.map(|m| match m {
+                cli::MixingArg::Well => rillnet::chip::species::Mixing::Well,
+                cli::MixingArg::Lateral => rillnet::chip::species::Mixing::Lateral,
+            });
+            let request = commands::SolveRequest {
                 chip: arg.input(),
                 plot: plot.as_deref(),
                 sensitivity: choice,
-            })?;
+            };
+            let outcome = commands::solve_mixing(&request, mixing)?;
             (outcome, *format, output.clone(), vec![arg.path])
         }
         Command::Evolve {
@@ -154,10 +160,22 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             file,
             show,
             colour,
+            species,
             output,
         } => {
             picture_arg(Some(output))?;
             let arg = chip(file)?;
+            let solutes = match (show, colour) {
+                (Show::Outlets, _) => Some(commands::SolutePicture::Outlets),
+                (Show::Splits, Colour::Species) => Some(commands::SolutePicture::Splits {
+                    species: species.as_deref(),
+                }),
+                _ => None,
+            };
+            if let Some(picture) = solutes {
+                let outcome = commands::plot_solutes(&arg.input(), picture, output)?;
+                return Ok((outcome, Format::Table, None, vec![arg.path]));
+            }
             let outcome = commands::plot(&commands::PlotRequest {
                 chip: arg.input(),
                 pressure_profile: matches!(show, Show::Pressure),
@@ -165,6 +183,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                     Colour::Pressure => rillnet::plots::ColourBy::Pressure,
                     Colour::Flow => rillnet::plots::ColourBy::Flow,
                     Colour::Margin => rillnet::plots::ColourBy::Margin,
+                    Colour::Species => rillnet::plots::ColourBy::Pressure,
                 },
                 output,
             })?;

@@ -91,6 +91,8 @@ pub struct Chip {
     pub design: design::Design,
     /// Solutes carried by the flow, in file order (empty when none are declared).
     pub species: Vec<species::Species>,
+    /// The solute model runs use unless told otherwise (`mixing:`).
+    pub mixing: species::Mixing,
     /// Drawing positions given in the chip file (used by the pictures only).
     pub layout: DrawnLayout,
     /// Drives that change in time (`evolve` only; a steady solve uses the file's settings).

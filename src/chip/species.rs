@@ -28,3 +28,14 @@ pub struct Species {
     /// the chip there, in SI of `measure`; 0 where the file gives none.
     pub inlet: Vec<f64>,
 }
+
+/// Which solute model a run uses: the chip file's `mixing:` (default well mixed), overridden
+/// by `solve --mixing`.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum Mixing {
+    /// Complete mixing at every junction.
+    #[default]
+    Well,
+    /// Laminar co-flow: a lateral profile across each channel, ordered by the drawing.
+    Lateral,
+}

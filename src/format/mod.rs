@@ -132,6 +132,9 @@ pub(crate) struct ChipFile {
     /// Solutes carried by the flow (`species.NAME: {diffusivity: …}`).
     #[serde(default)]
     pub species: Named<species_spec::SpeciesSpec>,
+    /// Solute model: `well` (default) or `lateral` (laminar co-flow across the width).
+    #[serde(default)]
+    pub mixing: Option<species_spec::MixingSpec>,
     #[serde(default)]
     pub sections: Named<SectionSpec>,
     pub nodes: Named<NodeSpec>,
@@ -461,6 +464,9 @@ impl ChipFile {
             network,
             design,
             species,
+            mixing: self
+                .mixing
+                .map_or(Default::default(), species_spec::MixingSpec::to_mixing),
             layout: DrawnLayout {
                 node_at,
                 channel_path,

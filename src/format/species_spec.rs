@@ -20,6 +20,23 @@ use serde::de::{self, Deserializer, Visitor};
 use serde::Deserialize;
 use std::fmt;
 
+/// `mixing:` — the solute model a run uses unless `solve --mixing` says otherwise.
+#[derive(Debug, Clone, Copy, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub(crate) enum MixingSpec {
+    Well,
+    Lateral,
+}
+
+impl MixingSpec {
+    pub(crate) fn to_mixing(self) -> crate::chip::species::Mixing {
+        match self {
+            MixingSpec::Well => crate::chip::species::Mixing::Well,
+            MixingSpec::Lateral => crate::chip::species::Mixing::Lateral,
+        }
+    }
+}
+
 /// `species.NAME:`.
 #[derive(Debug, Deserialize)]
 #[serde(deny_unknown_fields)]

@@ -24,6 +24,8 @@ pub enum ColourBy {
     Pressure,
     Flow,
     Margin,
+    /// The mean concentration of the chip's species with this index (see `plots::solutes`).
+    Species(usize),
 }
 
 /// Above this many channels, per-channel labels are left out (ports stay labelled).
@@ -216,6 +218,7 @@ impl<'a> ChipPicture<'a> {
                         .map(|m| m.max(1e-6).log10())
                 })
                 .collect(),
+            ColourBy::Species(k) => super::outlets::channel_values(self.chip, st, k),
         };
         let finite = vals.iter().flatten().copied();
         let (mut lo, mut hi) = finite.fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), v| {
@@ -228,11 +231,12 @@ impl<'a> ChipPicture<'a> {
             hi = lo + 1.0;
         }
         let label = match self.colour {
-            ColourBy::Pressure => "mean pressure [mbar]",
-            ColourBy::Flow => "|flow| [µL/min]",
-            ColourBy::Margin => "shear margin (log10)",
+            ColourBy::Pressure => "mean pressure [mbar]".to_string(),
+            ColourBy::Flow => "|flow| [µL/min]".to_string(),
+            ColourBy::Margin => "shear margin (log10)".to_string(),
+            ColourBy::Species(k) => super::outlets::species_label(self.chip, k),
         };
-        (vals, lo, hi, label.to_string())
+        (vals, lo, hi, label)
     }
 }
 
@@ -320,6 +324,11 @@ impl Figure for ChipPicture<'_> {
                 ColourBy::Pressure => "pressure",
                 ColourBy::Flow => "flow",
                 ColourBy::Margin => "shear margin",
+                ColourBy::Species(k) => self
+                    .chip
+                    .species
+                    .get(k)
+                    .map_or("species", |s| s.name.as_str()),
             }
         );
         area.draw(&Text::new(title, (16, 12), text_style(20, INK)))

@@ -10,12 +10,14 @@
 
 mod chip;
 mod margins;
+mod outlets;
 mod pressure;
 mod section_field;
 mod time;
 
 pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT};
 pub use margins::MarginChart;
+pub use outlets::{OutletChart, OutletSeries};
 pub use pressure::{PressurePath, PressurePicture};
 pub use section_field::SectionPicture;
 pub use time::{default_channels, Curve, TimePicture, DEFAULT_CURVES};

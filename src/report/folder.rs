@@ -52,6 +52,10 @@ fn file_names(state: &SteadyState, evolved: bool) -> Vec<String> {
         names.extend(["evolve.txt", "evolve.json", "evolve.csv"].map(String::from));
         pictures.push("evolve");
     }
+    if state.solutes.is_some() {
+        pictures.push("species");
+        pictures.push("outlets");
+    }
     for p in pictures {
         names.push(format!("{p}.svg"));
         names.push(format!("{p}.png"));
@@ -141,6 +145,23 @@ pub fn write(
                 .into(),
             folder.picture("evolve", &picture)?,
         ));
+    }
+    if state.solutes.is_some() {
+        let name = chip.species.first().map_or("", |s| s.name.as_str());
+        let species = plots::ChipPicture::new(chip, state, plots::ColourBy::Species(0));
+        pictures.push((
+            format!("Flow split coloured by the mean concentration of '{name}'."),
+            folder.picture("species", &species)?,
+        ));
+        // (Fewer than two outlets: no gradient to draw.)
+        if let Some(chart) = plots::OutletChart::new(chip, state) {
+            pictures.push((
+                "Outlet concentrations (each species as a fraction of its largest inlet \
+                 concentration)."
+                    .into(),
+                folder.picture("outlets", &chart)?,
+            ));
+        }
     }
     let page = super::html_page(chip, state, &pictures);
     folder.put("index.html", page.as_bytes())?;

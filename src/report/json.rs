@@ -22,6 +22,9 @@ pub(crate) struct JsonReport<'a> {
     /// The chip's species (absent when none are declared).
     #[serde(skip_serializing_if = "Option::is_none")]
     species: Option<Vec<super::solutes::JsonSpecies<'a>>>,
+    /// The solute model that gave the concentrations, and its notes (only with species).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    solute_model: Option<super::solutes::JsonSoluteModel>,
     max_relative_residual: f64,
     /// The chip's pressure rating, null when none is given.
     pressure_rating_pa: Option<f64>,
@@ -121,6 +124,7 @@ pub(crate) fn solve_report<'a>(chip: &'a Chip, state: &'a SteadyState) -> JsonRe
             shear_limit_pa: network.fluid.shear_limit.map(|p| p.si()),
         },
         species: super::solutes::species_json(chip),
+        solute_model: super::solutes::model_json(chip, state),
         max_relative_residual: sol.max_relative_residual,
         pressure_rating_pa: network.pressure_rating.map(|p| p.si()),
         findings: super::findings::records(chip, &crate::analysis::findings(network, state)),

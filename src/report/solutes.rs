@@ -36,6 +36,22 @@ pub(crate) struct JsonConc<'a> {
     concentrations_kg_per_m3: Option<ConcMap<'a>>,
     #[serde(skip_serializing_if = "Option::is_none")]
     concentrations: Option<ConcMap<'a>>,
+    /// Lateral model, per channel at its end: smallest and largest bin across the width.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    concentrations_min_mol_per_m3: Option<ConcMap<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    concentrations_max_mol_per_m3: Option<ConcMap<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    concentrations_min_kg_per_m3: Option<ConcMap<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    concentrations_max_kg_per_m3: Option<ConcMap<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    concentrations_min: Option<ConcMap<'a>>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    concentrations_max: Option<ConcMap<'a>>,
+    /// Lateral model: 1 − σ/σ₀ across the width at the channel's end, per species.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    mixing_index: Option<ConcMap<'a>>,
 }
 
 /// Where a value is read: a node or a channel index.
@@ -53,23 +69,114 @@ fn value(state: &SteadyState, species: usize, at: At) -> Option<f64> {
     }
 }
 
+/// What the lateral model says of a channel across its width.
+#[derive(Clone, Copy)]
+enum Across {
+    Min,
+    Max,
+    Index,
+}
+
+fn across(state: &SteadyState, species: usize, channel: usize, what: Across) -> Option<f64> {
+    let field = state.solutes.as_ref()?.fields.get(species)?;
+    let spread = field.lateral.as_ref()?.channels.get(channel)?.as_ref()?;
+    Some(match what {
+        Across::Min => spread.min,
+        Across::Max => spread.max,
+        Across::Index => spread.mixing_index,
+    })
+}
+
+/// Whether the lateral model gave the results.
+fn lateral(state: &SteadyState) -> bool {
+    state.solutes.as_ref().is_some_and(|s| s.lateral)
+}
+
 /// The concentration keys of a node or channel.
 pub(crate) fn json<'a>(chip: &'a Chip, state: &SteadyState, at: At) -> JsonConc<'a> {
-    let pick = |measure: Measure| {
+    let pick_with = |measure: Option<Measure>, get: &dyn Fn(usize) -> Option<f64>| {
         let entries: Vec<(&str, Option<f64>)> = chip
             .species
             .iter()
             .enumerate()
-            .filter(|(_, s)| s.measure == measure)
-            .map(|(k, s)| (s.name.as_str(), value(state, k, at)))
+            .filter(|(_, s)| measure.is_none_or(|m| s.measure == m))
+            .map(|(k, s)| (s.name.as_str(), get(k)))
             .collect();
         (!entries.is_empty()).then_some(ConcMap(entries))
     };
-    JsonConc {
+    let pick = |measure: Measure| pick_with(Some(measure), &|k| value(state, k, at));
+    let mut out = JsonConc {
         concentrations_mol_per_m3: pick(Measure::Molar),
         concentrations_kg_per_m3: pick(Measure::Mass),
         concentrations: pick(Measure::Fraction),
+        ..Default::default()
+    };
+    if let (At::Channel(c), true) = (at, lateral(state)) {
+        let side = |m: Measure, what: Across| pick_with(Some(m), &|k| across(state, k, c, what));
+        out.concentrations_min_mol_per_m3 = side(Measure::Molar, Across::Min);
+        out.concentrations_max_mol_per_m3 = side(Measure::Molar, Across::Max);
+        out.concentrations_min_kg_per_m3 = side(Measure::Mass, Across::Min);
+        out.concentrations_max_kg_per_m3 = side(Measure::Mass, Across::Max);
+        out.concentrations_min = side(Measure::Fraction, Across::Min);
+        out.concentrations_max = side(Measure::Fraction, Across::Max);
+        out.mixing_index = pick_with(None, &|k| across(state, k, c, Across::Index));
     }
+    out
+}
+
+/// The solute model and what it rests on, for the top of the JSON document.
+#[derive(serde::Serialize)]
+pub(crate) struct JsonSoluteModel {
+    /// "well" or "lateral" (the model that gave the results).
+    model: &'static str,
+    notes: Vec<String>,
+}
+
+/// Present when the lateral model was asked for (so documents of well-mixed runs keep their
+/// keys).
+pub(crate) fn model_json(chip: &Chip, state: &SteadyState) -> Option<JsonSoluteModel> {
+    let solutes = state.solutes.as_ref()?;
+    if chip.mixing != crate::chip::species::Mixing::Lateral {
+        return None;
+    }
+    Some(JsonSoluteModel {
+        model: if solutes.lateral { "lateral" } else { "well" },
+        notes: note_lines(chip, state),
+    })
+}
+
+/// The solute notes in words.
+fn note_lines(chip: &Chip, state: &SteadyState) -> Vec<String> {
+    use crate::analysis::solutes::SoluteNote;
+    let Some(solutes) = state.solutes.as_ref() else {
+        return Vec::new();
+    };
+    solutes
+        .notes
+        .iter()
+        .map(|n| match n {
+            SoluteNote::LateralRecirculates => "the flow recirculates (a loop in the flow \
+                 directions), so the lateral model has no channel to start from: the \
+                 concentrations are those of the well-mixed model"
+                .to_string(),
+            SoluteNote::FileOrder(nodes) => {
+                let names: Vec<&str> = nodes
+                    .iter()
+                    .take(8)
+                    .map(|&i| chip.network.nodes[i].name.as_str())
+                    .collect();
+                format!(
+                    "lateral model: the drawing does not give the direction of every channel at \
+                     {} node(s) ({}{}), so the streams there are placed side by side in the \
+                     order of the file; give 'at:' positions (and 'path:' points) for the order \
+                     on the chip",
+                    nodes.len(),
+                    names.join(", "),
+                    if nodes.len() > 8 { ", …" } else { "" }
+                )
+            }
+        })
+        .collect()
 }
 
 /// The species as declared, for the top of the JSON document.
@@ -102,23 +209,49 @@ fn measure_code(m: Measure) -> &'static str {
     }
 }
 
-/// CSV column names of the species, in file order.
-pub(crate) fn csv_columns(chip: &Chip) -> Vec<String> {
-    chip.species
-        .iter()
-        .map(|s| match s.measure {
-            Measure::Molar => format!("concentration_{}_mol_per_m3", s.name),
-            Measure::Mass => format!("concentration_{}_kg_per_m3", s.name),
-            Measure::Fraction => format!("concentration_{}", s.name),
-        })
-        .collect()
+fn unit_suffix(m: Measure) -> &'static str {
+    match m {
+        Measure::Molar => "_mol_per_m3",
+        Measure::Mass => "_kg_per_m3",
+        Measure::Fraction => "",
+    }
 }
 
-/// CSV cells of a node or channel (empty where there is no well-mixed value).
+/// CSV column names of the species, in file order; in the lateral model (`mixing: lateral`
+/// or `solve --mixing lateral`) also min, max and mixing index per species.
+pub(crate) fn csv_columns(chip: &Chip) -> Vec<String> {
+    let mut out: Vec<String> = chip
+        .species
+        .iter()
+        .map(|s| format!("concentration_{}{}", s.name, unit_suffix(s.measure)))
+        .collect();
+    if chip.mixing == crate::chip::species::Mixing::Lateral {
+        for s in &chip.species {
+            let u = unit_suffix(s.measure);
+            out.push(format!("concentration_{}_min{u}", s.name));
+            out.push(format!("concentration_{}_max{u}", s.name));
+            out.push(format!("mixing_index_{}", s.name));
+        }
+    }
+    out
+}
+
+/// CSV cells of a node or channel (empty where there is no value).
 pub(crate) fn csv_cells(chip: &Chip, state: &SteadyState, at: At) -> Vec<String> {
-    (0..chip.species.len())
+    let mut out: Vec<String> = (0..chip.species.len())
         .map(|k| super::csv::num(value(state, k, at)))
-        .collect()
+        .collect();
+    if chip.mixing == crate::chip::species::Mixing::Lateral {
+        for k in 0..chip.species.len() {
+            for what in [Across::Min, Across::Max, Across::Index] {
+                out.push(super::csv::num(match at {
+                    At::Channel(c) => across(state, k, c, what),
+                    At::Node(_) => None,
+                }));
+            }
+        }
+    }
+    out
 }
 
 /// A display unit for a species: (label, SI → display factor), chosen from the largest inlet
@@ -170,20 +303,46 @@ pub(crate) fn text_section(chip: &Chip, state: &SteadyState, out: &mut String) {
         row.extend(cells(At::Node(i)));
         nodes.push(row);
     }
+    let lateral = lateral(state);
     let mut channels: Vec<Vec<String>> = Vec::new();
     for (k, c) in network.channels.iter().enumerate() {
         let mut row = vec![c.name.clone(), String::new()];
         row.extend(cells(At::Channel(k)));
+        if lateral {
+            for (j, (_, f)) in units.iter().enumerate() {
+                let get = |what| across(state, j, k, what);
+                row.push(get(Across::Min).map_or("—".into(), |c| fmt_sig(c * f, 4)));
+                row.push(get(Across::Max).map_or("—".into(), |c| fmt_sig(c * f, 4)));
+                row.push(get(Across::Index).map_or("—".into(), |c| format!("{c:.3}")));
+            }
+        }
         channels.push(row);
     }
-    out.push_str(
-        "\nSolutes, well mixed at every junction (— where no flow passes: no well-mixed value)\n",
-    );
+    if lateral {
+        out.push_str(
+            "\nSolutes, streams side by side (lateral model: mean, and at each channel's end \
+             min/max across the width and mixing index 1 − σ/σ₀; — where no flow passes)\n",
+        );
+    } else {
+        out.push_str(
+            "\nSolutes, well mixed at every junction (— where no flow passes: no well-mixed value)\n",
+        );
+    }
+    for line in note_lines(chip, state) {
+        out.push_str(&format!("Note: {line}\n"));
+    }
     let mut h = vec!["Node".to_string(), "Kind".to_string()];
     h.extend(header.iter().cloned());
     super::text::render_rows(&h, 2, &nodes, out);
     out.push('\n');
     let mut h = vec!["Channel".to_string(), String::new()];
     h.extend(header);
+    if lateral {
+        for (s, (u, _)) in chip.species.iter().zip(&units) {
+            h.push(format!("{} min [{u}]", s.name));
+            h.push(format!("{} max [{u}]", s.name));
+            h.push(format!("{} mixing", s.name));
+        }
+    }
     super::text::render_rows(&h, 2, &channels, out);
 }

@@ -26,12 +26,14 @@
 //!
 //! The module sees flows and the graph only (no chip, no file format).
 
+pub mod lateral;
 pub mod mixing;
 
-use crate::network::{ChannelId, Network};
+use crate::network::{ChannelId, Network, NodeId};
 use faer::sparse::{SparseColMat, Triplet};
 use faer::Mat;
 
+pub use lateral::{LateralField, Layout, Spread};
 pub use mixing::{mixed_fraction, Unmixed, MIXED_ENOUGH};
 
 /// Largest relative residual of a node balance accepted after a solve (as for the flows).
@@ -291,13 +293,38 @@ pub struct Load<'a> {
     pub source: &'a [f64],
 }
 
-/// Well-mixed concentrations of one species.
+/// Concentrations of one species.
 #[derive(Clone, Debug, PartialEq)]
 pub struct Field {
-    /// Per node; `None` where no flow enters (stagnant).
+    /// Per node: what arrives, mixed (the flow-weighted mean); `None` where no flow enters
+    /// (stagnant).
     pub nodes: Vec<Option<f64>>,
-    /// Per channel: the concentration of its upstream node; `None` without flow.
+    /// Per channel: its mean concentration (well mixed: that of its upstream node; lateral:
+    /// the mean of its slice); `None` without flow.
     pub channels: Vec<Option<f64>>,
+    /// The lateral model's profiles (`None` in the well-mixed model).
+    pub lateral: Option<LateralField>,
+}
+
+/// Which transport model to solve.
+#[derive(Clone, Copy, Debug, Default)]
+pub enum Model<'a> {
+    /// Complete mixing at every junction (the default).
+    #[default]
+    WellMixed,
+    /// Laminar co-flow with the lateral profile across each channel ([`lateral`]), ordered by
+    /// the drawing.
+    Lateral(Layout<'a>),
+}
+
+/// What the results rest on, beyond the model's stated assumptions (data; `report` words it).
+#[derive(Clone, Debug, PartialEq)]
+pub enum SoluteNote {
+    /// The lateral model was asked for but the flow recirculates: well mixed instead.
+    LateralRecirculates,
+    /// The lateral model ordered the streams at these nodes as in the file: the drawing does
+    /// not give every angle there.
+    FileOrder(Vec<NodeId>),
 }
 
 /// The solutes of a solved chip: one field per species (in the order given), how they were
@@ -307,6 +334,9 @@ pub struct Solutes {
     pub fields: Vec<Field>,
     pub method: Method,
     pub unmixed: Vec<Unmixed>,
+    /// Whether the lateral model gave the fields.
+    pub lateral: bool,
+    pub notes: Vec<SoluteNote>,
 }
 
 /// Solve every species on the flows of a solved network (`flows` per channel, `into_chip`
@@ -316,6 +346,19 @@ pub fn solve(
     flows: &[f64],
     into_chip: &[f64],
     loads: &[Load<'_>],
+) -> Result<Solutes, SoluteError> {
+    solve_with(network, flows, into_chip, loads, Model::WellMixed)
+}
+
+/// [`solve`] with a chosen model. The lateral model needs an acyclic flow graph; where the
+/// flow recirculates it falls back to the well-mixed model with a note. The `not_mixed`
+/// check is the well-mixed model's (where its assumption fails) in both.
+pub fn solve_with(
+    network: &Network,
+    flows: &[f64],
+    into_chip: &[f64],
+    loads: &[Load<'_>],
+    model: Model<'_>,
 ) -> Result<Solutes, SoluteError> {
     let g = FlowGraph::of_network(network, flows, into_chip);
     let mut fields = Vec::with_capacity(loads.len());
@@ -341,13 +384,42 @@ pub fn solve(
                 _ => None,
             })
             .collect();
-        fields.push(Field { nodes, channels });
+        fields.push(Field {
+            nodes,
+            channels,
+            lateral: None,
+        });
     }
     let unmixed = mixing::unmixed(network, flows, &g, loads, &fields);
+    let mut notes = Vec::new();
+    let mut lateral = false;
+    if let Model::Lateral(layout) = model {
+        if g.has_cycles() {
+            notes.push(SoluteNote::LateralRecirculates);
+        } else {
+            let junctions = lateral::Junctions::new(network, flows, into_chip, &layout);
+            let t_over_w2 = lateral::geometric_fourier(network, flows);
+            for (field, load) in fields.iter_mut().zip(loads) {
+                let (nodes, channels, profiles) =
+                    lateral::sweep(&g, &junctions, &t_over_w2, load.diffusivity, load.source);
+                *field = Field {
+                    nodes,
+                    channels,
+                    lateral: Some(profiles),
+                };
+            }
+            if !junctions.file_order.is_empty() {
+                notes.push(SoluteNote::FileOrder(junctions.file_order));
+            }
+            lateral = true;
+        }
+    }
     Ok(Solutes {
         fields,
         method: g.method(),
         unmixed,
+        lateral,
+        notes,
     })
 }
 
