@@ -47,6 +47,7 @@ fn main() {
             species: Vec::new(),
             layout: DrawnLayout::default(),
             drives: Default::default(),
+            tolerances: Default::default(),
             notes: Vec::new(),
         };
         let t = Instant::now();
