@@ -126,6 +126,8 @@ struct JsonSpread<'a> {
     targets: Vec<JsonTarget>,
     pressure_rating: Option<JsonRating>,
     method: &'static str,
+    /// Channels whose numerically solved section is linearised (not re-solved per sample).
+    linearised_sections_in: Vec<&'a str>,
     caution: &'static str,
     state: JsonState,
 }
@@ -294,6 +296,9 @@ pub(crate) fn spread_json(o: &SpreadOutcome, w: &mut dyn Write) -> io::Result<()
             probability_over_rating: p,
         }),
         method: METHOD,
+        linearised_sections_in: (r.linearised.iter())
+            .map(|c| net.channels[*c].name.as_str())
+            .collect(),
         caution: super::CAUTION,
         state: json_state(o),
     };
@@ -432,6 +437,17 @@ pub(crate) fn spread_table(o: &SpreadOutcome, w: &mut dyn Write) -> io::Result<(
     ));
     if let Some((i, why)) = &r.first_withheld {
         s.push_str(&format!("First withheld sample: #{i}: {why}\n"));
+    }
+    if !r.linearised.is_empty() {
+        let names: Vec<&str> = (r.linearised.iter())
+            .map(|c| chip.network.channels[*c].name.as_str())
+            .collect();
+        s.push_str(&format!(
+            "\nNumerically solved sections are not re-solved per sample: ln K is taken linear in \
+             each toleranced dimension (slope from converged solves) and tau_max/G kept \
+             nominal, in channels {}.\n",
+            names.join(", ")
+        ));
     }
     s.push_str(&format!("\nMethod: {METHOD}.\n"));
     if !r.shear_exceed.is_empty() || r.rating_exceed.is_some() {

@@ -153,7 +153,7 @@ impl<'n> Prepared<'n> {
         }
         let solver = Solver::new(network)?;
         let (variables, atoms) = variables(network, tolerances);
-        let models = section_models(network)?;
+        let models = section_models(network, tolerances)?;
         let mut quantities: Vec<Quantity> = Vec::new();
         let targets = design.target_channels();
         let flows: Vec<ChannelId> = if targets.is_empty() {
@@ -442,7 +442,7 @@ impl<'n> Prepared<'n> {
             .map(|(d, v)| d * d * v.variance())
             .collect();
         let total: f64 = terms.iter().sum();
-        if !(total > 0.0) {
+        if total.is_nan() || total <= 0.0 {
             return Vec::new();
         }
         let mut ranked: Vec<(usize, f64)> = terms
@@ -537,8 +537,17 @@ fn variables(network: &Network, tolerances: &Tolerances) -> (Vec<Variable>, Vec<
 }
 
 /// Each channel's section model: closed forms as they are; numerically solved sections
-/// linearised in width and height from converged solves (once per section).
-fn section_models(network: &Network) -> Result<Vec<SectionModel>, SpreadError> {
+/// linearised in each toleranced dimension from converged solves (once per section).
+fn section_models(
+    network: &Network,
+    tolerances: &Tolerances,
+) -> Result<Vec<SectionModel>, SpreadError> {
+    let toleranced = |section, dim| {
+        tolerances
+            .items
+            .iter()
+            .any(|t| t.what == Toleranced::SectionDim { section, dim })
+    };
     let mut per_section: Vec<Option<SectionModel>> = vec![None; network.sections.len()];
     let mut out = Vec::with_capacity(network.channels.len());
     for c in network.channels.iter() {
@@ -550,6 +559,9 @@ fn section_models(network: &Network) -> Result<Vec<SectionModel>, SpreadError> {
             } else {
                 let mut dlnk = [0.0; 2];
                 for (i, dim) in [Dim::Width, Dim::Height].into_iter().enumerate() {
+                    if !toleranced(c.section, dim) {
+                        continue;
+                    }
                     let d = dlog_resistance_numeric(shape, dim.name(), network.section_tolerance)
                         .map_err(|e| SpreadError::Section {
                         channel: c.name.clone(),
@@ -751,7 +763,7 @@ impl Prepared<'_> {
         }
         let mu0 = net.fluid.viscosity.si();
         let mu = mu0 + dmu;
-        if !(mu > 0.0) {
+        if mu.is_nan() || mu <= 0.0 {
             return Sample::Withheld("viscosity drawn at or below zero".into());
         }
         let mut g = self.base_g.clone();
@@ -772,7 +784,7 @@ impl Prepared<'_> {
                                 continue;
                             }
                             let v = dimension(&s, dim.name()).unwrap_or(0.0) + d;
-                            if !(v > 0.0) {
+                            if v.is_nan() || v <= 0.0 {
                                 return Sample::Withheld(format!(
                                     "the {} of channel '{}' drawn at or below zero",
                                     dim.name(),
@@ -799,7 +811,7 @@ impl Prepared<'_> {
                     }
                 }
             }
-            if !(length > 0.0) {
+            if length.is_nan() || length <= 0.0 {
                 return Sample::Withheld(format!(
                     "the length of channel '{}' drawn at or below zero",
                     ch.name
@@ -937,6 +949,9 @@ pub struct SpreadResult {
     pub shard: Shard,
     /// Samples of the whole run (all shards).
     pub total_samples: u64,
+    /// Channels whose numerically solved section is linearised in a toleranced dimension
+    /// (not re-solved per sample; see the module documentation).
+    pub linearised: Vec<ChannelId>,
     /// The raw accumulated state, for merging shards.
     pub state: McState,
 }
@@ -1003,6 +1018,12 @@ impl Prepared<'_> {
             seed,
             shard,
             total_samples: total,
+            linearised: (self.models.iter().enumerate())
+                .filter(
+                    |(_, m)| matches!(m, SectionModel::Linearised { dlnk } if *dlnk != [0.0, 0.0]),
+                )
+                .map(|(k, _)| ChannelId(k))
+                .collect(),
             state,
         }
     }
