@@ -679,21 +679,21 @@ impl Prepared<'_> {
             .map(|qi| stats::scale_for(self.nominal[qi], self.std_linear(qi)))
             .collect();
         let range = shard.range(samples);
-        // Blocks of samples are the unit of work; the result does not depend on them.
-        const BLOCK: u64 = 16;
-        let blocks = (range.end - range.start).div_ceil(BLOCK);
-        (0..blocks)
+        // A few contiguous parts per thread, each accumulated in one state (few partial
+        // states alive at once); the result does not depend on the parts (exact merges).
+        let parts = (rayon::current_num_threads() as u64 * 4).max(1);
+        let len = range.end - range.start;
+        let at =
+            |k: u64| range.start + (u128::from(k) * u128::from(len) / u128::from(parts)) as u64;
+        (0..parts)
             .into_par_iter()
-            .fold(
-                || McState::empty(self),
-                |mut st, b| {
-                    let from = range.start + b * BLOCK;
-                    for i in from..(from + BLOCK).min(range.end) {
-                        self.add_sample(&mut st, &scales, seed, i);
-                    }
-                    st
-                },
-            )
+            .map(|k| {
+                let mut st = McState::empty(self);
+                for i in at(k)..at(k + 1) {
+                    self.add_sample(&mut st, &scales, seed, i);
+                }
+                st
+            })
             .reduce(|| McState::empty(self), McState::merge)
     }
 
