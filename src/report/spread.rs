@@ -135,7 +135,7 @@ struct JsonSpread<'a> {
 /// How the numbers were made (in every output).
 pub const METHOD: &str = "first order: adjoint sensitivities, variance summed over independent \
 draws (one per correlation group); Monte Carlo: counter-based draws per sample, each sample \
-through the balance-checked solve; percentiles nearest-rank within 0.05 % relative; \
+through the balance-checked solve; percentiles nearest-rank within 0.05 % relative (or 1e-4 of max(|nominal|, linear std) near 0); \
 linear_agrees = |s - s_lin| <= 3 s/sqrt(2(n-1)) and |mean - nominal| <= 3 s/sqrt(n)";
 
 fn contributions<'a>(r: &'a SpreadResult, s: &Stat) -> Vec<JsonContribution<'a>> {

@@ -675,13 +675,17 @@ enum Sample {
 impl Prepared<'_> {
     /// Run the samples of `shard` out of `samples` with `seed`, in parallel (rayon).
     pub fn monte_carlo(&self, samples: u64, seed: u64, shard: Shard) -> McState {
-        let scales: Vec<f64> = (0..self.quantities.len())
-            .map(|qi| stats::scale_for(self.nominal[qi], self.std_linear(qi)))
+        let scales: Vec<(f64, f64)> = (0..self.quantities.len())
+            .map(|qi| {
+                let (x0, s) = (self.nominal[qi], self.std_linear(qi));
+                (stats::scale_for(x0, s), stats::floor_for(x0, s))
+            })
             .collect();
         let range = shard.range(samples);
-        // A few contiguous parts per thread, each accumulated in one state (few partial
-        // states alive at once); the result does not depend on the parts (exact merges).
-        let parts = (rayon::current_num_threads() as u64 * 4).max(1);
+        // One contiguous part per thread, each accumulated in one state (the histograms of a
+        // partial state are the memory that grows, up to their bound, with the samples it
+        // sees); the result does not depend on the parts (exact merges).
+        let parts = (rayon::current_num_threads() as u64).max(1);
         let len = range.end - range.start;
         let at =
             |k: u64| range.start + (u128::from(k) * u128::from(len) / u128::from(parts)) as u64;
@@ -698,7 +702,7 @@ impl Prepared<'_> {
     }
 
     /// Draw, solve and judge sample `i`, and add it to `st`.
-    fn add_sample(&self, st: &mut McState, scales: &[f64], seed: u64, i: u64) {
+    fn add_sample(&self, st: &mut McState, scales: &[(f64, f64)], seed: u64, i: u64) {
         st.samples += 1;
         match self.sample(seed, i) {
             Sample::Withheld(why) => {
@@ -714,7 +718,7 @@ impl Prepared<'_> {
                 rating_over,
             } => {
                 for (qi, v) in values.iter().enumerate() {
-                    st.quantities[qi].add(*v, self.nominal[qi], scales[qi]);
+                    st.quantities[qi].add(*v, self.nominal[qi], scales[qi].0, scales[qi].1);
                 }
                 for (t, m) in misses.iter().enumerate() {
                     st.target_misses[t] += u64::from(*m);

@@ -7,9 +7,10 @@
 //!   are associative, so partial sums merge exactly.
 //! - Percentiles: a histogram of logarithmic buckets of relative width 2α (the bucket scheme
 //!   of DDSketch, Masson, Rim & Lee 2019, Proc. VLDB 12), α = [`RELATIVE_ACCURACY`]: the
-//!   nearest-rank percentile of the samples is returned within a relative error α. The count
-//!   of buckets grows with the spread of the values (ln(max/min)/2α), not with the number of
-//!   samples; counts add, so histograms merge exactly.
+//!   nearest-rank percentile of the samples is returned within a relative error α, or within
+//!   the floor (see [`floor_for`]) for values nearer to 0 than it. The count of buckets is at
+//!   most 2·ln(max/floor)/2α + 1, whatever the number of samples; counts add, so histograms
+//!   merge exactly.
 
 use std::collections::BTreeMap;
 
@@ -76,17 +77,29 @@ pub fn scale_for(nominal: f64, std_linear: f64) -> f64 {
     }
 }
 
+/// The magnitude below which values share the bucket of 0: 1e-4 of max(|nominal|, σ_linear)
+/// (or 1e-30 when both are 0).
+pub fn floor_for(nominal: f64, std_linear: f64) -> f64 {
+    let m = nominal.abs().max(std_linear);
+    if m > 0.0 && m.is_finite() {
+        1e-4 * m
+    } else {
+        1e-30
+    }
+}
+
 impl Accumulator {
     /// Add one value `x` of a quantity with nominal value `nominal` and fixed-point unit
-    /// `scale` (see [`scale_for`]).
-    pub fn add(&mut self, x: f64, nominal: f64, scale: f64) {
+    /// `scale` (see [`scale_for`]); values with |x| below `floor` share the bucket of 0
+    /// (so a quantity that crosses zero keeps a bounded number of buckets).
+    pub fn add(&mut self, x: f64, nominal: f64, scale: f64, floor: f64) {
         self.count += 1;
         // `as` saturates: a deviation beyond 2²³ scales is clipped, never wrapped.
         let q = ((x - nominal) / scale * 2f64.powi(FRACTION_BITS)).round() as i64;
         self.sum += i128::from(q);
         let q = i128::from(q).unsigned_abs();
         self.sum_sq.add(q * q);
-        if x == 0.0 || !x.is_finite() {
+        if x.abs() <= floor || !x.is_finite() {
             self.zeros += 1;
         } else {
             let key = (x.abs().ln() / ln_gamma()).ceil() as i64;
@@ -172,11 +185,14 @@ mod tests {
             .map(|i| 1.0 + ((i * 7919) % 1000) as f64 * 1e-4 - 0.05)
             .collect();
         let mut one = Accumulator::default();
-        xs.iter().for_each(|&x| one.add(x, 1.0, 1.0));
+        xs.iter().for_each(|&x| one.add(x, 1.0, 1.0, 1e-4));
         let mut a = Accumulator::default();
         let mut b = Accumulator::default();
-        xs[..300].iter().rev().for_each(|&x| a.add(x, 1.0, 1.0));
-        xs[300..].iter().for_each(|&x| b.add(x, 1.0, 1.0));
+        xs[..300]
+            .iter()
+            .rev()
+            .for_each(|&x| a.add(x, 1.0, 1.0, 1e-4));
+        xs[300..].iter().for_each(|&x| b.add(x, 1.0, 1.0, 1e-4));
         b.merge(&a);
         assert_eq!(one, b);
         let mean: f64 = xs.iter().sum::<f64>() / 1000.0;
@@ -200,7 +216,7 @@ mod tests {
     fn negative_values_and_zeros_order() {
         let mut a = Accumulator::default();
         for x in [-2.0, -1.0, 0.0, 1.0, 2.0] {
-            a.add(x, 0.0, 1.0);
+            a.add(x, 0.0, 1.0, 1e-4);
         }
         assert!((a.quantile(0.2) + 2.0).abs() < 2e-3);
         assert_eq!(a.quantile(0.6), 0.0);
