@@ -48,6 +48,7 @@ fn main() {
             mixing: Default::default(),
             layout: DrawnLayout::default(),
             drives: Default::default(),
+            tolerances: Default::default(),
             notes: Vec::new(),
         };
         let t = Instant::now();

@@ -32,6 +32,30 @@ pub struct Cli {
 
 #[derive(Subcommand)]
 pub enum Command {
+    /// How far flows, splits and wall shear can land from the design under the chip's
+    /// tolerances: first order beside Monte Carlo, target misses, limits and yield.
+    Spread {
+        /// Chip file with 'tolerance:' entries; '-' reads standard input.
+        file: PathBuf,
+        /// Monte Carlo samples of the whole run (all shards together).
+        #[arg(long, default_value_t = 10_000)]
+        samples: u64,
+        /// Seed of the counter-based draws (same seed, same samples, same results).
+        #[arg(long, default_value_t = 1)]
+        seed: u64,
+        /// Run only shard i of n ('i/n'); merge the JSON outputs with --merge.
+        #[arg(long, conflicts_with = "merge")]
+        shard: Option<String>,
+        /// Merge the JSON outputs of every shard of one run (same chip file, seed, samples).
+        #[arg(long, num_args = 1..)]
+        merge: Vec<PathBuf>,
+        /// Output format.
+        #[arg(long, value_enum, default_value_t = Format::Table)]
+        format: Format,
+        /// Write to this new file instead of standard output (never overwrites).
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+    },
     /// Solve a chip: every node pressure, channel flow, wall shear and port operating point.
     Solve {
         /// Chip file (.yaml/.yml, or .json); '-' reads standard input.

@@ -878,3 +878,151 @@ pub fn write_outcome(
     })?;
     output::write_new_file(path, &bytes, protected)
 }
+
+/// What the `spread` command needs.
+#[derive(Clone, Debug)]
+pub struct SpreadRequest<'a> {
+    pub chip: ChipInput<'a>,
+    /// Samples of the whole run (all shards together).
+    pub samples: u64,
+    pub seed: u64,
+    /// `i/n`: run only the i-th of n shards (1-based).
+    pub shard: Option<&'a str>,
+    /// Outputs of `spread --format json --shard i/n` to merge into the run's result.
+    pub merge: &'a [std::path::PathBuf],
+}
+
+/// FNV-1a (64 bit) of the chip text, as 16 hex digits: shards must share it to be merged.
+pub fn fingerprint(text: &str) -> String {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for b in text.bytes() {
+        h ^= u64::from(b);
+        h = h.wrapping_mul(0x0100_0000_01b3);
+    }
+    format!("{h:016x}")
+}
+
+/// Parse `i/n` (1 ≤ i ≤ n).
+fn parse_shard(text: &str) -> Result<analysis::spread::Shard, Error> {
+    let bad = || {
+        Error::Input(format::InputError::whole_file(
+            "--shard",
+            format!("'{text}' is not a shard 'i/n' with 1 <= i <= n (e.g. '2/8')"),
+        ))
+    };
+    let (i, n) = text.split_once('/').ok_or_else(bad)?;
+    let (index, count) = (
+        i.trim().parse::<u64>().map_err(|_| bad())?,
+        n.trim().parse::<u64>().map_err(|_| bad())?,
+    );
+    if index == 0 || index > count {
+        return Err(bad());
+    }
+    Ok(analysis::spread::Shard { index, count })
+}
+
+/// Flows, splits and wall shear under the chip's tolerances: first order and Monte Carlo
+/// (one shard of it, or the merge of every shard's output).
+pub fn spread(req: &SpreadRequest<'_>) -> Result<Outcome, Error> {
+    use analysis::spread::{Prepared, Shard, SpreadError, MAX_SAMPLES};
+    let chip = req.chip.load()?;
+    let origin = chip.source.origin.clone();
+    let input = |m: String| Error::Input(format::InputError::whole_file(&origin, m));
+    let prepared =
+        Prepared::new(&chip.network, &chip.design, &chip.tolerances).map_err(|e| match e {
+            SpreadError::Solve(source) => Error::Solve {
+                origin: origin.clone(),
+                source,
+            },
+            other => input(other.to_string()),
+        })?;
+    let fingerprint = fingerprint(&chip.source.text);
+    let result = if req.merge.is_empty() {
+        if req.samples < 2 || req.samples > MAX_SAMPLES {
+            return Err(Error::Input(format::InputError::whole_file(
+                "--samples",
+                format!("must be between 2 and {MAX_SAMPLES}, got {}", req.samples),
+            )));
+        }
+        let shard = req.shard.map_or(Ok(Shard::WHOLE), parse_shard)?;
+        let state = prepared.monte_carlo(req.samples, req.seed, shard);
+        prepared.finish(state, req.seed, shard, req.samples)
+    } else {
+        let (seed, total, state) = merge_shards(req.merge, &fingerprint, &prepared)?;
+        prepared.finish(state, seed, Shard::WHOLE, total)
+    };
+    Ok(Outcome::Spread(Box::new(crate::outcome::SpreadOutcome {
+        chip,
+        result,
+        fingerprint,
+    })))
+}
+
+/// Read shard outputs and merge them: they must come from the same chip text, seed and
+/// sample count, and cover every shard of one split exactly once.
+fn merge_shards(
+    paths: &[std::path::PathBuf],
+    fingerprint: &str,
+    prepared: &analysis::spread::Prepared<'_>,
+) -> Result<(u64, u64, analysis::spread::McState), Error> {
+    let mut shards = Vec::new();
+    for p in paths {
+        let bad =
+            |m: String| Error::Input(format::InputError::whole_file(&p.display().to_string(), m));
+        let text = crate::read_named_file(p).map_err(&bad)?;
+        let s = format::spread_state::parse_shard(&text).map_err(&bad)?;
+        if s.fingerprint != fingerprint {
+            return Err(bad(
+                "was made from a different chip file (its fingerprint differs); merge shards \
+                 of the same chip text"
+                    .into(),
+            ));
+        }
+        if !s.state.fits(prepared) {
+            return Err(bad("does not match the chip's quantities".into()));
+        }
+        shards.push((p, s));
+    }
+    let Some((_, first)) = shards.first() else {
+        return Err(Error::Input(format::InputError::whole_file(
+            "--merge",
+            "needs at least one file",
+        )));
+    };
+    let (seed, total, count) = (first.seed, first.samples_total, first.shard.count);
+    let mut seen = vec![false; usize::try_from(count).unwrap_or(usize::MAX).min(1 << 20)];
+    let mut state: Option<analysis::spread::McState> = None;
+    for (p, s) in shards {
+        let bad =
+            |m: String| Error::Input(format::InputError::whole_file(&p.display().to_string(), m));
+        if s.seed != seed || s.samples_total != total || s.shard.count != count {
+            return Err(bad(format!(
+                "is shard {}/{} of {} samples with seed {}, but the first file is of {count} \
+                 shards of {total} samples with seed {seed}",
+                s.shard.index, s.shard.count, s.samples_total, s.seed
+            )));
+        }
+        let k = (s.shard.index - 1) as usize;
+        if k >= seen.len() || seen[k] {
+            return Err(bad(format!(
+                "shard {}/{count} is given twice",
+                s.shard.index
+            )));
+        }
+        seen[k] = true;
+        state = Some(match state {
+            None => s.state,
+            Some(st) => st.merge(s.state),
+        });
+    }
+    if let Some(missing) = seen.iter().position(|s| !s) {
+        return Err(Error::Input(format::InputError::whole_file(
+            "--merge",
+            format!(
+                "shard {}/{count} is missing: merge every shard of the run",
+                missing + 1
+            ),
+        )));
+    }
+    Ok((seed, total, state.unwrap_or_default()))
+}

@@ -80,6 +80,25 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             req.channels = channels;
             (commands::evolve(&req)?, *format, None, vec![arg.path])
         }
+        Command::Spread {
+            file,
+            samples,
+            seed,
+            shard,
+            merge,
+            format,
+            output,
+        } => {
+            let arg = chip(file)?;
+            let outcome = commands::spread(&commands::SpreadRequest {
+                chip: arg.input(),
+                samples: *samples,
+                seed: *seed,
+                shard: shard.as_deref(),
+                merge,
+            })?;
+            (outcome, *format, output.clone(), vec![arg.path])
+        }
         Command::Check { file, format, plot } => {
             picture_arg(plot.as_deref())?;
             let arg = chip(file)?;

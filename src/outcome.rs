@@ -60,8 +60,20 @@ pub enum Outcome {
     Section(Box<SectionOutcome>),
     /// `evolve`: the chip followed in time, and what happened.
     Evolved(Box<EvolveOutcome>),
+    /// `spread`: flows, splits and shear under the chip's tolerances.
+    Spread(Box<SpreadOutcome>),
     /// `plot`, `report`: files written (a status line for standard error).
     Wrote(Vec<PathBuf>),
+}
+
+/// A chip's spread under its tolerances, with the fingerprint of the chip text (shard
+/// files of one run must come from the same text to be merged).
+#[derive(Debug)]
+pub struct SpreadOutcome {
+    pub chip: Chip,
+    pub result: crate::analysis::spread::SpreadResult,
+    /// FNV-1a hash of the chip text, as 16 hex digits.
+    pub fingerprint: String,
 }
 
 /// A chip followed in time: the series at the output instants, events and delivered volumes.

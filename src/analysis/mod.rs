@@ -10,6 +10,7 @@ pub mod kirchhoff;
 pub mod limits;
 pub mod lsq;
 pub mod solutes;
+pub mod spread;
 pub mod transient;
 
 pub use kirchhoff::{solve, FlowSolution, SolveError, Solver, RESIDUAL_LIMIT};

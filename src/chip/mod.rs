@@ -10,6 +10,7 @@
 pub mod design;
 pub mod drives;
 pub mod species;
+pub mod tolerances;
 
 use crate::fluid::RangeWarning;
 use crate::network::{ChannelId, Network, SectionId};
@@ -97,6 +98,8 @@ pub struct Chip {
     pub layout: DrawnLayout,
     /// Drives that change in time (`evolve` only; a steady solve uses the file's settings).
     pub drives: drives::Drives,
+    /// Fabrication and operating tolerances (`rillnet spread`; empty when none are declared).
+    pub tolerances: tolerances::Tolerances,
     /// Models used outside their published range (e.g. a fluid correlation), and how measured
     /// profiles were read.
     pub notes: Vec<ModelNote>,

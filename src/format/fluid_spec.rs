@@ -37,6 +37,9 @@ pub(crate) struct FluidSpec {
     pub glycerol_mass_fraction: Option<f64>,
     #[serde(default)]
     pub cells: Option<CellsSpec>,
+    /// Tolerance of the viscosity (`{viscosity: 3 %}`), for `rillnet spread`.
+    #[serde(default)]
+    pub tolerance: Option<super::tolerance_spec::ToleranceBlock>,
 }
 
 /// How the cells raise the viscosity.

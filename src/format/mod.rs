@@ -29,6 +29,8 @@ mod named;
 mod quantity;
 mod section_spec;
 mod species_spec;
+pub mod spread_state;
+mod tolerance_spec;
 mod yaml_guard;
 
 // The serde types of the file format stay inside the crate: the rest of the program sees
@@ -205,6 +207,10 @@ pub(crate) struct NodeSpec {
     /// Horizontal distance from the rocking axis (signed), if the chip sits on a platform.
     #[serde(default)]
     pub arm: Option<Q<Length>>,
+    /// Accuracy of the port's setting (`{pressure: 1 %}` or `{flow: 0.5 uL/min}`), for
+    /// `rillnet spread`.
+    #[serde(default)]
+    pub tolerance: Option<tolerance_spec::ToleranceBlock>,
 }
 
 /// `nodes.NAME.reservoir:` — an open well: its level (free surface above the datum) and its
@@ -239,6 +245,9 @@ pub(crate) struct ChannelSpec {
     /// Intermediate points of the channel's drawn path (e.g. a serpentine), with units.
     #[serde(default)]
     pub path: Option<Vec<[Q<Length>; 2]>>,
+    /// Fabrication tolerance of the length (`{length: 50 um}`), for `rillnet spread`.
+    #[serde(default)]
+    pub tolerance: Option<tolerance_spec::ToleranceBlock>,
 }
 
 /// A channel's section: the name of one in `sections:`, or a mapping given inline.
@@ -421,6 +430,7 @@ impl ChipFile {
         }
         let network = b.build()?;
         let drives = self.drives(&network, read)?;
+        let tolerances = self.tolerances(&network)?;
         let node_at = self
             .nodes
             .0
@@ -472,8 +482,55 @@ impl ChipFile {
                 channel_path,
             },
             drives,
+            tolerances,
             notes,
         })
+    }
+
+    /// Every `tolerance:` block, converted and checked (see [`tolerance_spec`]).
+    fn tolerances(
+        &self,
+        network: &crate::network::Network,
+    ) -> Result<crate::chip::tolerances::Tolerances, Misplaced> {
+        use tolerance_spec::Owner;
+        let path = |keys: &[&str]| keys.iter().map(|k| k.to_string()).collect::<Vec<_>>();
+        let mut blocks = Vec::new();
+        if let Some(t) = &self.fluid.tolerance {
+            blocks.push((path(&["fluid", "tolerance"]), t, Owner::Fluid));
+        }
+        for (name, spec) in &self.sections.0 {
+            if let Some(t) = &spec.tolerance {
+                let Some(i) = (network.sections.iter()).position(|s| s.named && &s.name == name)
+                else {
+                    continue;
+                };
+                let owner = Owner::Section(SectionId(i));
+                blocks.push((path(&["sections", name, "tolerance"]), t, owner));
+            }
+        }
+        for (i, (name, spec)) in self.nodes.0.iter().enumerate() {
+            if let Some(t) = &spec.tolerance {
+                let owner = Owner::Node(crate::network::NodeId(i));
+                blocks.push((path(&["nodes", name, "tolerance"]), t, owner));
+            }
+        }
+        for (i, (name, spec)) in self.channels.0.iter().enumerate() {
+            let id = crate::network::ChannelId(i);
+            if let SectionRef::Inline(inline) = &spec.section {
+                if let Some(t) = &inline.tolerance {
+                    let owner = Owner::Section(network.channels[id].section);
+                    blocks.push((path(&["channels", name, "section", "tolerance"]), t, owner));
+                }
+            }
+            if let Some(t) = &spec.tolerance {
+                blocks.push((
+                    path(&["channels", name, "tolerance"]),
+                    t,
+                    Owner::Channel(id),
+                ));
+            }
+        }
+        tolerance_spec::to_tolerances(network, &blocks)
     }
 }
 

@@ -77,6 +77,9 @@ pub(crate) struct SectionSpec {
     /// Unit of the depth column of `file` (instead of `unit`).
     #[serde(default)]
     pub unit_depth: Option<String>,
+    /// Fabrication tolerances of the dimensions, for `rillnet spread`.
+    #[serde(default)]
+    pub tolerance: Option<super::tolerance_spec::ToleranceBlock>,
 }
 
 /// Reads a file named in the chip file; returns its text or a message.

@@ -12,6 +12,7 @@ mod html;
 mod json;
 mod section;
 mod solutes;
+mod spread;
 pub mod text;
 
 pub use csv::to_csv;
@@ -184,6 +185,9 @@ pub fn render(outcome: &Outcome, format: Format, w: &mut dyn Write) -> io::Resul
         (Outcome::Evolved(o), Format::Table) => evolve::evolve_table(o, w),
         (Outcome::Evolved(o), Format::Json) => evolve::evolve_json(o, w),
         (Outcome::Evolved(o), Format::Csv) => evolve::evolve_csv(o, &mut csv::Tables::new(w)),
+        (Outcome::Spread(o), Format::Table) => spread::spread_table(o, w),
+        (Outcome::Spread(o), Format::Json) => spread::spread_json(o, w),
+        (Outcome::Spread(o), Format::Csv) => spread::spread_csv(o, &mut csv::Tables::new(w)),
         (Outcome::Section(o), Format::Table) => w.write_all(section_report(o).as_bytes()),
         (Outcome::Section(o), Format::Json) => section::section_json(o, w),
         (Outcome::Section(o), Format::Csv) => section::section_csv(o, &mut csv::Tables::new(w)),

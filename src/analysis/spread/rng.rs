@@ -1,0 +1,60 @@
+//! A counter-based generator: the k-th uniform number of variable j in sample i is a hash of
+//! (seed, i, j, k), not the next state of a stream, so any sample can be drawn on its own, in
+//! any order, on any thread or machine, with the same result.
+//!
+//! The hash is three rounds of the SplitMix64 finaliser (Steele, Lea & Flood 2014, "Fast
+//! splittable pseudorandom number generators", OOPSLA; the same mixing function seeds many
+//! stream generators), one per key word, each round mixing the previous output with the next
+//! word. A few dozen lines and no dependency; statistical quality is checked by the tests
+//! below (moments) and by the Monte Carlo tests against the first-order answers.
+
+/// SplitMix64's finaliser (a bijection of u64 with full avalanche).
+fn mix(mut z: u64) -> u64 {
+    z = z.wrapping_add(0x9e37_79b9_7f4a_7c15);
+    z = (z ^ (z >> 30)).wrapping_mul(0xbf58_476d_1ce4_e5b9);
+    z = (z ^ (z >> 27)).wrapping_mul(0x94d0_49bb_1331_11eb);
+    z ^ (z >> 31)
+}
+
+/// Uniform on (0, 1): the k-th number of variable `j` in sample `i`.
+pub fn uniform(seed: u64, i: u64, j: u64, k: u64) -> f64 {
+    let h = mix(mix(mix(mix(seed) ^ i) ^ j) ^ k);
+    ((h >> 11) as f64 + 0.5) * (1.0 / (1u64 << 53) as f64)
+}
+
+/// Standard normal: Box–Muller from the uniforms k = 0 and 1 (Box & Muller 1958).
+pub fn normal(seed: u64, i: u64, j: u64) -> f64 {
+    let u1 = uniform(seed, i, j, 0);
+    let u2 = uniform(seed, i, j, 1);
+    (-2.0 * u1.ln()).sqrt() * (std::f64::consts::TAU * u2).cos()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Mean 0, variance 1, kurtosis 3 of the normal draws within a few standard errors
+    /// (n = 200 000: SE of the mean 0.0022, of the variance 0.0032, of the kurtosis 0.011).
+    #[test]
+    fn normal_moments() {
+        let n = 200_000u64;
+        let (mut s1, mut s2, mut s4) = (0.0, 0.0, 0.0);
+        for i in 0..n {
+            let z = normal(7, i, 3);
+            s1 += z;
+            s2 += z * z;
+            s4 += z.powi(4);
+        }
+        let nf = n as f64;
+        assert!((s1 / nf).abs() < 0.01);
+        assert!((s2 / nf - 1.0).abs() < 0.015);
+        assert!((s4 / nf - 3.0).abs() < 0.05);
+    }
+
+    #[test]
+    fn keys_give_different_streams() {
+        assert_ne!(uniform(1, 2, 3, 0), uniform(1, 3, 2, 0));
+        assert_ne!(uniform(1, 2, 3, 0), uniform(2, 2, 3, 0));
+        assert_eq!(uniform(5, 6, 7, 1), uniform(5, 6, 7, 1));
+    }
+}
