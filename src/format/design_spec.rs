@@ -445,7 +445,7 @@ fn concentration_targets(
                 )
             }));
         };
-        let (x, measure) = read_concentration(value).map_err(|m| fail(m))?;
+        let (x, measure) = read_concentration(value).map_err(&fail)?;
         if let Some(m) = measure {
             if m != s.measure {
                 return Err(fail(format!(
