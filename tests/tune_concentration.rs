@@ -211,3 +211,48 @@ fn bad_concentration_targets_are_refused_with_their_place() {
         );
     }
 }
+
+#[test]
+fn analytic_concentration_derivative_matches_the_closed_form() {
+    // Closed form derived here: c = c_a·q_a/(q_a + q_b) at the Y, so along a change of the
+    // drug inlet's pressure dc/dp = c_a·(q_b·dq_a − q_a·dq_b)/(q_a + q_b)², with the flows'
+    // derivatives exact (they are linear in the drives: the unit response).
+    use rillnet::analysis::kirchhoff::{conductances, drive_values};
+    use rillnet::analysis::solutes::{well_mixed, well_mixed_tangent, FlowGraph};
+    use rillnet::analysis::Solver;
+    let dir = tempfile::tempdir().unwrap();
+    let chip = write_file(dir.path(), "dilution.yaml", DILUTION);
+    let chip = rillnet::load_chip(&chip).unwrap();
+    let net = &chip.network;
+    let solver = Solver::new(net).unwrap();
+    let factor = solver.factorize(conductances(net)).unwrap();
+    let base = drive_values(net);
+    let a = net.node_id("drug_in").unwrap();
+    let mut unit = vec![0.0; base.len()];
+    unit[a.0] = 1.0;
+    let st = factor.solve(&base).unwrap();
+    let du = factor.solve(&unit).unwrap();
+    let g = FlowGraph::of_network(net, &st.flows, &st.node_net_inflow);
+    let source = &chip.species[0].inlet;
+    let (c, _) = well_mixed(&g, source).unwrap();
+    let dc = well_mixed_tangent(
+        net,
+        &st.flows,
+        &st.node_net_inflow,
+        &g,
+        &c,
+        source,
+        &du.flows,
+        &du.node_net_inflow,
+    )
+    .unwrap();
+    let k = |n: &str| net.channel_id(n).unwrap().0;
+    let (qa, qb) = (st.flows[k("from_drug")], st.flows[k("from_buffer")]);
+    let (dqa, dqb) = (du.flows[k("from_drug")], du.flows[k("from_buffer")]);
+    let expected = 10e-3 * (qb * dqa - qa * dqb) / (qa + qb).powi(2);
+    let y = net.node_id("y").unwrap();
+    let got = dc[y.0].unwrap();
+    let rel = (got - expected).abs() / expected.abs();
+    println!("analytic dc/dp relative error {rel:.1e}");
+    assert!(rel <= 1e-12, "{got} vs {expected}: {rel:e}");
+}
