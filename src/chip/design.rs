@@ -3,6 +3,8 @@
 
 use crate::network::{ChannelId, NodeId};
 
+pub use crate::chip::species::Measure;
+
 /// What a target asks for (SI).
 #[derive(Clone, Debug, PartialEq)]
 pub enum TargetKind {
@@ -25,6 +27,17 @@ pub enum TargetKind {
         channel: ChannelId,
         shear: f64,
         measure: ShearMeasure,
+    },
+    /// Well-mixed concentration of one species in a channel (SI of the species' measure).
+    /// The target carries what it needs to be judged without the chip: the species' inlet
+    /// concentration at every node (what a port lets in), its name and measure. A target
+    /// gradient across several channels is one such target per channel.
+    Concentration {
+        channel: ChannelId,
+        species: String,
+        measure: Measure,
+        concentration: f64,
+        inlet: Vec<f64>,
     },
 }
 
@@ -99,14 +112,14 @@ pub struct Design {
 }
 
 impl Design {
-    /// The channels named by flow, split and wall-shear targets, in target order, each once.
+    /// The channels named by flow, split, wall-shear and concentration targets, in target order, each once.
     pub fn target_channels(&self) -> Vec<ChannelId> {
         let mut out: Vec<ChannelId> = Vec::new();
         for t in &self.targets {
             let channels: &[ChannelId] = match &t.kind {
-                TargetKind::ChannelFlow { channel, .. } | TargetKind::WallShear { channel, .. } => {
-                    std::slice::from_ref(channel)
-                }
+                TargetKind::ChannelFlow { channel, .. }
+                | TargetKind::WallShear { channel, .. }
+                | TargetKind::Concentration { channel, .. } => std::slice::from_ref(channel),
                 TargetKind::Split { channels, .. } => channels,
                 TargetKind::NodePressure { .. } => &[],
             };

@@ -1,11 +1,13 @@
 //! `targets:`, `adjust:` on ports and `size:` on channels — the design problem in the chip
 //! file, converted into [`crate::analysis::design::Design`].
 
+use super::species_spec::{measure_words, read as read_concentration, ConcValue};
 use super::{at, Misplaced, Q};
 use crate::analysis::design::{
-    with_dimension, Adjustable, Design, ShearMeasure, SizeDim, SizeVar, Target, TargetKind,
-    Tolerance,
+    with_dimension, Adjustable, Design, Measure, ShearMeasure, SizeDim, SizeVar, Target,
+    TargetKind, Tolerance,
 };
+use crate::chip::species::Species;
 use crate::network::{ChannelId, Network, NodeId, Port};
 use crate::section::Shape;
 use crate::units::display::fmt_sig;
@@ -72,11 +74,29 @@ pub(crate) struct TargetSpec {
     pub wall_shear: Option<Q<Pressure>>,
     #[serde(default)]
     pub wall_shear_mean: Option<Q<Pressure>>,
+    /// `concentration: {species: drug, value: 10 uM}` with `channel:`.
+    #[serde(default)]
+    pub concentration: Option<ConcentrationSpec>,
+    /// `gradient: [out_1, out_2]` with `species:` and one of `values:` per channel.
+    #[serde(default)]
+    pub gradient: Option<Vec<String>>,
+    #[serde(default)]
+    pub species: Option<String>,
+    #[serde(default)]
+    pub values: Option<Vec<ConcValue>>,
     #[serde(default)]
     pub weight: Option<f64>,
     /// `1 %`, a plain number (relative), or a quantity in the target's unit (absolute).
     #[serde(default)]
     pub tolerance: Option<RawQuantity>,
+}
+
+/// `concentration: {species: drug, value: 10 uM}` of a target.
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct ConcentrationSpec {
+    pub species: String,
+    pub value: ConcValue,
 }
 
 /// Bounds of a sized dimension.
@@ -136,6 +156,15 @@ fn tolerance(raw: &str, kind: &TargetKind) -> Result<Tolerance, String> {
                 "a split's tolerance is relative (a plain number or a percentage), got '{text}'"
             ))
         }
+        TargetKind::Concentration { measure, .. } => match measure {
+            Measure::Molar => Dimension::Concentration,
+            Measure::Mass => Dimension::MassConcentration,
+            Measure::Fraction => {
+                return Err(format!(
+                "a fraction's tolerance is relative (a plain number or a percentage), got '{text}'"
+            ))
+            }
+        },
     };
     let v = parse_si(text, dim).map_err(|e| format!("tolerance: {e}"))?;
     if v.is_finite() && v > 0.0 {
@@ -153,6 +182,7 @@ const MAX_WEIGHT: f64 = 1e6;
 /// Build the design problem once the network exists.
 pub(super) fn to_design(
     net: &Network,
+    species: &[Species],
     targets: &[TargetSpec],
     adjust: &[(String, &AdjustSpec)],
     sizes: &[(String, &SizeSpec)],
@@ -187,6 +217,31 @@ pub(super) fn to_design(
         let named = |c: &str| {
             channel_id(net, c, &place).map_err(|m| at(&place, format!("{label}: {}", m.message)))
         };
+        if t.concentration.is_some() || t.gradient.is_some() {
+            for kind in concentration_targets(species, t, &label, &named)? {
+                let tolerance = match &t.tolerance {
+                    None => Tolerance::default(),
+                    Some(raw) => {
+                        tolerance(&raw.0, &kind).map_err(|m| at(&place, format!("{label}: {m}")))?
+                    }
+                };
+                design.targets.push(Target {
+                    kind,
+                    weight,
+                    tolerance,
+                });
+            }
+            continue;
+        }
+        if t.species.is_some() || t.values.is_some() {
+            return Err(at(
+                &place,
+                format!(
+                    "{label}: 'species' and 'values' belong to a gradient, e.g. \
+                     {{gradient: [out_1, out_2], species: drug, values: [0, 10 uM]}}"
+                ),
+            ));
+        }
         let kind = match (&t.channel, t.flow, shear, &t.split, &t.ratio, &t.node, t.pressure) {
             (Some(c), Some(q), None, None, None, None, None) => TargetKind::ChannelFlow {
                 channel: named(c)?,
@@ -226,7 +281,9 @@ pub(super) fn to_design(
             _ => {
                 return Err(at(&place, format!(
                     "{label}: a target is one of {{channel: c3, flow: 2 uL/min}}, {{channel: c3, wall_shear: 0.4 Pa}} \
-                     (or wall_shear_mean), {{split: [c3, c4], ratio: [1, 2]}} or {{node: n2, pressure: 40 mbar}} \
+                     (or wall_shear_mean), {{split: [c3, c4], ratio: [1, 2]}}, {{node: n2, pressure: 40 mbar}}, \
+                     {{channel: c3, concentration: {{species: drug, value: 10 uM}}}} or \
+                     {{gradient: [o1, o2], species: drug, values: [0, 10 uM]}} \
                      (each with an optional weight and tolerance)"
                 )))
             }
@@ -317,6 +374,106 @@ pub(super) fn to_design(
         }
     }
     Ok(design)
+}
+
+/// The concentration targets of one `targets:` entry: `{channel, concentration: {species,
+/// value}}` gives one, `{gradient: [..], species, values: [..]}` one per listed channel.
+fn concentration_targets(
+    species: &[Species],
+    t: &TargetSpec,
+    label: &str,
+    named: &dyn Fn(&str) -> Result<ChannelId, Misplaced>,
+) -> Result<Vec<TargetKind>, Misplaced> {
+    let place = ["targets"];
+    let fail = |m: String| at(&place, format!("{label}: {m}"));
+    let others = t.flow.is_some()
+        || t.wall_shear.is_some()
+        || t.wall_shear_mean.is_some()
+        || t.split.is_some()
+        || t.ratio.is_some()
+        || t.node.is_some()
+        || t.pressure.is_some();
+    let pairs: Vec<(String, &ConcValue, &str)> =
+        match (&t.concentration, &t.gradient) {
+            (Some(c), None) if !others && t.species.is_none() && t.values.is_none() => {
+                let Some(ch) = &t.channel else {
+                    return Err(fail(
+                        "a concentration target names its channel, e.g. {channel: c3, \
+                     concentration: {species: drug, value: 10 uM}}"
+                            .into(),
+                    ));
+                };
+                vec![(ch.clone(), &c.value, c.species.as_str())]
+            }
+            (None, Some(list)) if !others && t.channel.is_none() => {
+                let (Some(name), Some(values)) = (&t.species, &t.values) else {
+                    return Err(fail(
+                        "a gradient gives its species and one value per channel, e.g. \
+                     {gradient: [o1, o2, o3], species: drug, values: [0, 5 uM, 10 uM]}"
+                            .into(),
+                    ));
+                };
+                if list.is_empty() || list.len() != values.len() {
+                    return Err(fail(format!(
+                        "a gradient lists one value per channel; {} channel(s) but {} value(s)",
+                        list.len(),
+                        values.len()
+                    )));
+                }
+                list.iter()
+                    .zip(values)
+                    .map(|(c, v)| (c.clone(), v, name.as_str()))
+                    .collect()
+            }
+            _ => return Err(fail(
+                "a concentration target is {channel: c3, concentration: {species: drug, value: \
+                 10 uM}} or {gradient: [o1, o2], species: drug, values: [0, 10 uM]}, without \
+                 other target keys"
+                    .into(),
+            )),
+        };
+    let mut out: Vec<TargetKind> = Vec::with_capacity(pairs.len());
+    for (channel, value, name) in pairs {
+        let Some(s) = species.iter().find(|s| s.name == name) else {
+            let names: Vec<&str> = species.iter().map(|s| s.name.as_str()).collect();
+            return Err(fail(if names.is_empty() {
+                format!("unknown species '{name}': the chip declares none under 'species:'")
+            } else {
+                format!(
+                    "unknown species '{name}'; the chip declares: {}",
+                    names.join(", ")
+                )
+            }));
+        };
+        let (x, measure) = read_concentration(value).map_err(&fail)?;
+        if let Some(m) = measure {
+            if m != s.measure {
+                return Err(fail(format!(
+                    "species '{name}' enters the chip as {} and the target gives {}; use the \
+                     same measure",
+                    measure_words(s.measure),
+                    measure_words(m)
+                )));
+            }
+        }
+        let id = named(&channel)?;
+        if let Some(TargetKind::Concentration { .. }) = out
+            .iter()
+            .find(|k| matches!(k, TargetKind::Concentration { channel: c, .. } if *c == id))
+        {
+            return Err(fail(format!(
+                "channel '{channel}' is listed twice in the gradient; list each channel once"
+            )));
+        }
+        out.push(TargetKind::Concentration {
+            channel: id,
+            species: s.name.clone(),
+            measure: s.measure,
+            concentration: x,
+            inlet: s.inlet.clone(),
+        });
+    }
+    Ok(out)
 }
 
 /// Why a width bound `v` [m] would give an invalid section (`None`: it gives a valid one, or

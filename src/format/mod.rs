@@ -460,11 +460,11 @@ impl ChipFile {
             .iter()
             .filter_map(|(n, s)| s.size.as_ref().map(|z| (n.clone(), z)))
             .collect();
-        let design = design_spec::to_design(&network, &self.targets, &adjust, &sizes)?;
         let given: Vec<_> = (self.nodes.0.iter())
             .map(|(n, s)| (n.as_str(), s.concentrations.as_ref()))
             .collect();
         let species = species_spec::to_species(&self.species, &given, &network)?;
+        let design = design_spec::to_design(&network, &species, &self.targets, &adjust, &sizes)?;
         let mut notes: Vec<ModelNote> = notes.into_iter().map(ModelNote::Fluid).collect();
         notes.extend(profile_notes(&network));
         Ok(Chip {

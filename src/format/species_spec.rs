@@ -83,7 +83,7 @@ const EXPECTED: &str = "expected a concentration with a unit (M, mM, uM, nM, pM,
 
 /// Read one written concentration: (SI value, measure), or what is wrong with it. A plain 0
 /// fits every measure (`None`).
-fn read(value: &ConcValue) -> Result<(f64, Option<Measure>), String> {
+pub(super) fn read(value: &ConcValue) -> Result<(f64, Option<Measure>), String> {
     let text = match value {
         ConcValue::Number(x) => return fraction(*x).map(|x| (x, Some(Measure::Fraction))),
         ConcValue::Text(t) => t.trim(),
@@ -131,7 +131,7 @@ fn fraction(x: f64) -> Result<f64, String> {
     Ok(x)
 }
 
-fn measure_words(m: Measure) -> &'static str {
+pub(super) fn measure_words(m: Measure) -> &'static str {
     match m {
         Measure::Molar => "a molar concentration",
         Measure::Mass => "a mass concentration",

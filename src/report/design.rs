@@ -4,8 +4,8 @@ use super::csv::{n, num, Tables};
 use super::fmt_sig;
 use super::json::SCHEMA_VERSION;
 use crate::analysis::design::{
-    ActiveLimit, LimitHandling, LimitKind, NotControllable, ShearMeasure, SizeDim, SizeResult,
-    TargetOutcome, TargetQuantity, Tolerance, TuneResult,
+    ActiveLimit, LimitHandling, LimitKind, Measure, NotControllable, ShearMeasure, SizeDim,
+    SizeResult, TargetOutcome, TargetQuantity, Tolerance, TuneResult,
 };
 use crate::analysis::{Place, Severity};
 use crate::chip::Chip;
@@ -29,7 +29,29 @@ fn outcome_value(o: &TargetOutcome, v: f64) -> String {
         TargetQuantity::Pressure => format!("{} mbar", fmt_sig(display::mbar(v), 6)),
         TargetQuantity::WallShear(_) => format!("{} Pa", fmt_sig(v, 6)),
         TargetQuantity::Share => format!("{} share", fmt_sig(v, 6)),
+        TargetQuantity::Concentration(m) => concentration_text(m, v, 6),
     }
+}
+
+/// A concentration in a unit fitting its size (SI mol/m³ = mM, kg/m³ = mg/mL, or a fraction).
+fn concentration_text(m: Measure, v: f64, digits: usize) -> String {
+    let ladder: &[(&str, f64)] = match m {
+        Measure::Fraction => return format!("{} (fraction)", fmt_sig(v, digits)),
+        Measure::Molar => &[
+            ("M", 1e-3),
+            ("mM", 1.0),
+            ("µM", 1e3),
+            ("nM", 1e6),
+            ("pM", 1e9),
+        ],
+        Measure::Mass => &[("mg/mL", 1.0), ("µg/mL", 1e3), ("ng/mL", 1e6)],
+    };
+    let (unit, f) = ladder
+        .iter()
+        .copied()
+        .find(|&(_, f)| v.abs() * f >= 1.0)
+        .unwrap_or(ladder[ladder.len() - 1]);
+    format!("{} {unit}", fmt_sig(v * f, digits))
 }
 
 fn tolerance_text(o: &TargetOutcome) -> String {
@@ -38,6 +60,7 @@ fn tolerance_text(o: &TargetOutcome) -> String {
         Tolerance::Absolute(a) => match o.quantity {
             TargetQuantity::Flow => format!("{} µL/min", fmt_sig(display::ul_per_min(a), 3)),
             TargetQuantity::Pressure => format!("{} mbar", fmt_sig(display::mbar(a), 3)),
+            TargetQuantity::Concentration(m) => concentration_text(m, a, 3),
             _ => format!("{} Pa", fmt_sig(a, 3)),
         },
     }
@@ -92,6 +115,13 @@ fn targets_text(targets: &[TargetOutcome], out: &mut String) {
                 control_text(reason)
             ));
         }
+        if let (Some((lo, hi)), TargetQuantity::Concentration(m)) = (t.beyond_inlets, t.quantity) {
+            out.push_str(&format!(
+                "      unreachable: a well-mixed concentration is a flow-weighted mean of what the ports let in ({} to {}), whatever the drives\n",
+                concentration_text(m, lo, 4),
+                concentration_text(m, hi, 4)
+            ));
+        }
         if let Some(s) = t.snapping_miss {
             out.push_str(&format!(
                 "      snapping to the fabrication steps alone causes a miss of {s:.1e}; judged against max(tolerance, that miss)\n"
@@ -107,6 +137,9 @@ fn quantity_code(q: TargetQuantity) -> &'static str {
         TargetQuantity::Share => "split",
         TargetQuantity::WallShear(ShearMeasure::Max) => "wall_shear",
         TargetQuantity::WallShear(ShearMeasure::Mean) => "wall_shear_mean",
+        TargetQuantity::Concentration(Measure::Molar) => "concentration_mol_per_m3",
+        TargetQuantity::Concentration(Measure::Mass) => "concentration_kg_per_m3",
+        TargetQuantity::Concentration(Measure::Fraction) => "concentration_fraction",
     }
 }
 
@@ -124,6 +157,9 @@ struct JsonTarget<'a> {
     controllable: bool,
     not_controllable_reason: Option<&'static str>,
     snapping_miss: Option<f64>,
+    /// A concentration target outside what the ports let in: [lowest, highest] (SI).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    unreachable_beyond_inlet_range: Option<[f64; 2]>,
 }
 
 fn json_targets(t: &[TargetOutcome]) -> Vec<JsonTarget<'_>> {
@@ -147,6 +183,7 @@ fn json_targets(t: &[TargetOutcome]) -> Vec<JsonTarget<'_>> {
             controllable: t.controllable,
             not_controllable_reason: t.not_controllable.map(control_code),
             snapping_miss: t.snapping_miss,
+            unreachable_beyond_inlet_range: t.beyond_inlets.map(|(lo, hi)| [lo, hi]),
         })
         .collect()
 }

@@ -20,6 +20,7 @@
 //! ([`Solver::factorizations`](super::kirchhoff::Solver::factorizations)) show what was done.
 
 mod adjoint;
+mod concentration;
 mod dimensions;
 mod limits;
 mod serpentine;
@@ -28,7 +29,7 @@ mod targets;
 mod tune;
 
 pub use crate::chip::design::{
-    Adjustable, Design, ShearMeasure, SizeDim, SizeVar, Target, TargetKind, Tolerance,
+    Adjustable, Design, Measure, ShearMeasure, SizeDim, SizeVar, Target, TargetKind, Tolerance,
     DEFAULT_TOLERANCE,
 };
 pub use adjoint::{
@@ -65,8 +66,12 @@ pub enum DesignError {
     },
     #[error("channel '{channel}': the section at the sized width cannot be solved ({reason}); narrow the width's min/max")]
     SizedSection { channel: String, reason: String },
+    #[error("concentration targets are met by 'tune' (drive settings), not by 'size'; remove them from the chip that is sized")]
+    ConcentrationInSize,
     #[error(transparent)]
     Solve(#[from] SolveError),
+    #[error(transparent)]
+    Solute(#[from] crate::analysis::solutes::SoluteError),
 }
 
 /// Port kind for reports.

@@ -144,7 +144,13 @@ pub fn size_with_options(
     let stepped = vars.iter().any(|v| v.step.is_some());
     let before_snap = stepped.then(|| {
         let e = &it.eval;
-        outcomes(&e.net, &design.targets, &e.state.pressures, &e.state.flows)
+        outcomes(
+            &e.net,
+            &design.targets,
+            &e.state.pressures,
+            &e.state.flows,
+            &e.state.node_net_inflow,
+        )
     });
     if stepped {
         it.snap_and_resolve(&ctx)?;
@@ -152,7 +158,13 @@ pub fn size_with_options(
     let Evaluation {
         net, state, res, ..
     } = it.eval;
-    let mut targets = outcomes(&net, &design.targets, &state.pressures, &state.flows);
+    let mut targets = outcomes(
+        &net,
+        &design.targets,
+        &state.pressures,
+        &state.flows,
+        &state.node_net_inflow,
+    );
     // After snapping to fabrication steps: a target met before snapping is judged against
     // the miss the snapping itself causes when that is larger than its tolerance.
     if let Some(before) = before_snap {
@@ -201,6 +213,13 @@ fn check_design(design: &Design) -> Result<(), DesignError> {
     }
     if design.sizes.is_empty() {
         return Err(DesignError::NoSizes);
+    }
+    if design
+        .targets
+        .iter()
+        .any(|t| matches!(t.kind, super::TargetKind::Concentration { .. }))
+    {
+        return Err(DesignError::ConcentrationInSize);
     }
     Ok(())
 }

@@ -17,12 +17,17 @@
 //! problem is linear and solved exactly in one go, and the adjoint differentiates a row with
 //! one extra solve.
 //!
+//! Concentration targets are not linear: a well-mixed concentration is a rational function of
+//! the flows (a flow-weighted mean of what the ports let in). They get no row here; `tune`
+//! linearises them at each step ([`concentration_scale`] is their scale).
+//!
 //! Verdicts do not depend on these scales: a target is met when its reached value is within
 //! its [`Tolerance`] of the wanted value ([`evaluate`]).
 
-use super::{Design, ShearMeasure, Target, TargetKind, Tolerance};
+use super::{Design, Measure, ShearMeasure, Target, TargetKind, Tolerance};
 use crate::analysis::kirchhoff::FlowSolution;
-use crate::network::{ChannelId, Network};
+use crate::analysis::solutes::{well_mixed, FlowGraph};
+use crate::network::{ChannelId, Network, Port};
 
 /// Reference pressure for pressure targets of 0 Pa.
 pub const P_REF: f64 = 100.0;
@@ -122,8 +127,52 @@ pub(super) fn shear_factor(network: &Network, channel: ChannelId, measure: Shear
     }
 }
 
+/// Scale of a concentration target: the wanted value, or for a wanted 0 the largest
+/// concentration a port lets in (so that '0' is met to a fraction of the inlet's strength).
+pub(super) fn concentration_scale(wanted: f64, inlet: &[f64]) -> f64 {
+    if wanted.abs() > 0.0 {
+        wanted.abs()
+    } else {
+        inlet.iter().fold(0.0f64, |m, &c| m.max(c)).max(1e-300)
+    }
+}
+
+/// The lowest and highest concentration the ports let in ((0, 0) without ports). A
+/// well-mixed concentration is a flow-weighted mean of what enters, so it lies in this range
+/// whatever the drives.
+pub(super) fn inlet_range(network: &Network, inlet: &[f64]) -> (f64, f64) {
+    let mut ports = network
+        .nodes
+        .iter()
+        .zip(inlet)
+        .filter(|(n, _)| !matches!(n.port, Port::Junction))
+        .map(|(_, &c)| c)
+        .peekable();
+    if ports.peek().is_none() {
+        return (0.0, 0.0);
+    }
+    ports.fold((f64::INFINITY, f64::NEG_INFINITY), |(lo, hi), c| {
+        (lo.min(c), hi.max(c))
+    })
+}
+
+/// The well-mixed concentration in `channel` (that of its upstream node; `None` without flow).
+pub(super) fn channel_concentration(
+    network: &Network,
+    channel: ChannelId,
+    flows: &[f64],
+    nodes: &[Option<f64>],
+) -> Option<f64> {
+    let ch = &network.channels[channel];
+    match flows[channel.0] {
+        q if q > 0.0 => nodes[ch.from.0],
+        q if q < 0.0 => nodes[ch.to.0],
+        _ => None,
+    }
+}
+
 /// The residual rows of `targets` (one per flow, pressure and wall-shear target; one per
-/// channel of a split).
+/// channel of a split; none for concentration targets).
 pub(super) fn rows(network: &Network, targets: &[Target], scales: &Scales) -> Vec<Row> {
     let mut out = Vec::new();
     for (t, target) in targets.iter().enumerate() {
@@ -178,6 +227,7 @@ pub(super) fn rows(network: &Network, targets: &[Target], scales: &Scales) -> Ve
                     });
                 }
             }
+            TargetKind::Concentration { .. } => {}
         }
     }
     out
@@ -194,6 +244,8 @@ pub enum TargetQuantity {
     Share,
     /// A wall shear stress [Pa] (maximum or mean).
     WallShear(ShearMeasure),
+    /// A well-mixed concentration (SI of the measure: mol/m³, kg/m³ or a fraction).
+    Concentration(Measure),
 }
 
 /// Why tuning cannot move a target.
@@ -233,6 +285,10 @@ pub struct TargetOutcome {
     /// The relative miss caused by snapping sized dimensions to their fabrication steps, for
     /// a target that was met before snapping.
     pub snapping_miss: Option<f64>,
+    /// For a concentration target outside what the ports let in: (lowest, highest) of the
+    /// species' port concentrations. No drive setting can reach it (well mixed, the
+    /// concentration is a flow-weighted mean of those).
+    pub beyond_inlets: Option<(f64, f64)>,
 }
 
 impl TargetOutcome {
@@ -264,22 +320,60 @@ pub fn evaluate(network: &Network, design: &Design, solution: &FlowSolution) -> 
         &design.targets,
         &solution.pressures,
         &solution.flows,
+        &solution.node_net_inflow,
     )
 }
 
-/// How every target came out in the state (`pressures`, `flows`).
+/// How every target came out in the state (`pressures`, `flows`, and the flow into the chip
+/// at each node, `into_chip`, for the concentrations).
 pub(super) fn outcomes(
     network: &Network,
     targets: &[Target],
     pressures: &[f64],
     flows: &[f64],
+    into_chip: &[f64],
 ) -> Vec<TargetOutcome> {
+    let mut graph: Option<FlowGraph> = None;
     targets
         .iter()
         .enumerate()
         .map(|(t, target)| {
-            let (what, quantity, wanted, reached, error, miss) =
-                describe(network, &target.kind, pressures, flows);
+            let mut beyond_inlets = None;
+            let (what, quantity, wanted, reached, error, miss) = match &target.kind {
+                TargetKind::Concentration {
+                    channel,
+                    species,
+                    measure,
+                    concentration,
+                    inlet,
+                } => {
+                    let g = graph
+                        .get_or_insert_with(|| FlowGraph::of_network(network, flows, into_chip));
+                    let reached = well_mixed(g, inlet)
+                        .ok()
+                        .and_then(|(c, _)| channel_concentration(network, *channel, flows, &c))
+                        .unwrap_or(f64::NAN);
+                    let (lo, hi) = inlet_range(network, inlet);
+                    let scale = concentration_scale(*concentration, inlet);
+                    if *concentration > hi + 1e-12 * scale || *concentration < lo - 1e-12 * scale {
+                        beyond_inlets = Some((lo, hi));
+                    }
+                    let error = (reached - concentration).abs();
+                    (
+                        format!("{species} in {}", network.channels[*channel].name),
+                        TargetQuantity::Concentration(*measure),
+                        *concentration,
+                        reached,
+                        error,
+                        if error.is_nan() {
+                            f64::INFINITY
+                        } else {
+                            error / scale
+                        },
+                    )
+                }
+                kind => describe(network, kind, pressures, flows),
+            };
             let mut o = TargetOutcome {
                 target: t,
                 what,
@@ -293,6 +387,7 @@ pub(super) fn outcomes(
                 controllable: true,
                 not_controllable: None,
                 snapping_miss: None,
+                beyond_inlets,
             };
             o.judge();
             o
@@ -308,7 +403,8 @@ fn shear_of(network: &Network, channel: ChannelId, measure: ShearMeasure, p: &[f
 
 type Described = (String, TargetQuantity, f64, f64, f64, f64);
 
-/// A target's description, quantity, wanted and reached values, error and relative miss.
+/// A target's description, quantity, wanted and reached values, error and relative miss
+/// (concentration targets are described by [`outcomes`]).
 fn describe(network: &Network, kind: &TargetKind, pressures: &[f64], flows: &[f64]) -> Described {
     let plain = |what: String, q: TargetQuantity, wanted: f64, reached: f64, scale: f64| {
         let error = (reached - wanted).abs();
@@ -346,6 +442,14 @@ fn describe(network: &Network, kind: &TargetKind, pressures: &[f64], flows: &[f6
             *shear,
             shear_of(network, *channel, *measure, pressures),
             shear.abs().max(1e-300),
+        ),
+        TargetKind::Concentration { .. } => (
+            String::new(),
+            TargetQuantity::Share,
+            f64::NAN,
+            f64::NAN,
+            f64::NAN,
+            f64::INFINITY,
         ),
         TargetKind::Split { channels, ratio } => {
             let names: Vec<&str> = channels

@@ -26,6 +26,7 @@
 
 use super::super::kirchhoff::{conductances, drive_values, FlowSolution, Solver};
 use super::super::lsq;
+use super::concentration::{self, ConcentrationRow};
 use super::limits::{
     self, bound_constraints, ActiveLimit, Constraint, Label, LimitHandling, Linearised, ACTIVE_TOL,
 };
@@ -134,6 +135,7 @@ pub fn tune_with_options(
         limit_constraints(network, &scaled, &states)
     };
     let all: Vec<Constraint> = bounds.iter().chain(&limit_rows).cloned().collect();
+    let conc = concentration::rows(design);
     let mut lsi = problem.solve(&all, &scaled.start);
     if !lsi.feasible {
         limits = LimitHandling::Unattainable;
@@ -144,12 +146,38 @@ pub fn tune_with_options(
     } else {
         &bounds
     };
-    let y: Vec<f64> = lsi
-        .x
-        .iter()
-        .zip(scaled.lo.iter().zip(&scaled.hi))
-        .map(|(y, (lo, hi))| y.clamp(*lo, *hi))
-        .collect();
+    let clamp = |x: &[f64]| -> Vec<f64> {
+        x.iter()
+            .zip(scaled.lo.iter().zip(&scaled.hi))
+            .map(|(y, (lo, hi))| y.clamp(*lo, *hi))
+            .collect()
+    };
+    let mut y: Vec<f64> = clamp(&lsi.x);
+    let mut residual_norm = lsi.residual_norm;
+    let mut conc_flat: Vec<bool> = vec![false; conc.len()];
+    let mut problem = problem;
+    if !conc.is_empty() {
+        let nonlinear = gauss_newton(network, &problem, &conc, &scaled, &states, used)?;
+        // A setting within rounding (1e-13 of its scale) of a bound is set on it: the
+        // iteration lands there only to rounding, and a copy must not get 1e-16 mbar.
+        y = clamp(&nonlinear.y)
+            .into_iter()
+            .zip(scaled.lo.iter().zip(&scaled.hi))
+            .map(|(y, (lo, hi))| {
+                if (y - lo).abs() <= 1e-13 {
+                    *lo
+                } else if (y - hi).abs() <= 1e-13 {
+                    *hi
+                } else {
+                    y
+                }
+            })
+            .collect();
+        residual_norm = nonlinear.residual_norm;
+        conc_flat = nonlinear.flat;
+        lsi = nonlinear.lsi;
+        problem = nonlinear.problem;
+    }
     let tuned = scaled.settings(&base, &design.adjustable, &y);
     let solution = factor.solve(&tuned)?;
     let mut targets = outcomes(
@@ -157,10 +185,18 @@ pub fn tune_with_options(
         &design.targets,
         &solution.pressures,
         &solution.flows,
+        &solution.node_net_inflow,
     );
     for (o, c) in targets.iter_mut().zip(&problem.control) {
         o.controllable = c.is_none();
         o.not_controllable = *c;
+    }
+    for (row, flat) in conc.iter().zip(&conc_flat) {
+        let o = &mut targets[row.target];
+        if *flat && !o.met {
+            o.controllable = false;
+            o.not_controllable = Some(NotControllable::NoResponse);
+        }
     }
     let active = |label: &Label| {
         used.iter()
@@ -199,7 +235,7 @@ pub fn tune_with_options(
     };
     Ok(TuneResult {
         all_targets_met: targets.iter().all(|t| t.met),
-        residual_norm: lsi.residual_norm,
+        residual_norm,
         free_directions: problem.free_directions(&lsi, &design.adjustable),
         settings,
         targets,
@@ -207,6 +243,166 @@ pub fn tune_with_options(
         active_limits,
         written_digits: None,
         solution,
+    })
+}
+
+/// Largest number of Gauss–Newton steps for concentration targets.
+const MAX_STEPS: usize = 100;
+
+/// What the Gauss–Newton iteration for concentration targets ended with.
+struct Nonlinear {
+    y: Vec<f64>,
+    /// The last step's problem and LSI (linearised at `y`): slacks, free directions.
+    lsi: lsq::Lsi,
+    problem: Problem,
+    residual_norm: f64,
+    /// Per concentration row: its gradient vanishes at `y` (no port moves it there).
+    flat: Vec<bool>,
+}
+
+/// The state at the scaled settings `y`: flows and port flows by superposition of the unit
+/// responses (exact: they are linear in the drives), and their derivatives along each y_j.
+fn state_at(scaled: &Scaled, states: &[FlowSolution], y: &[f64]) -> (Vec<f64>, Vec<f64>) {
+    let n_ch = states[0].flows.len();
+    let n = states[0].node_net_inflow.len();
+    let flows = (0..n_ch)
+        .map(|k| scaled.superpose(states, y, |st| st.flows[k]))
+        .collect();
+    let into = (0..n)
+        .map(|i| scaled.superpose(states, y, |st| st.node_net_inflow[i]))
+        .collect();
+    (flows, into)
+}
+
+/// Damped Gauss–Newton over the scaled settings for the concentration targets (nonlinear)
+/// together with the linear rows of `problem`: at each step the concentration rows are
+/// linearised at y (analytic derivatives through the flows, [`concentration`]) and the
+/// linear least-squares problem with the bounds and limits `constraints` is solved exactly
+/// ([`lsq`], least change from y in the directions the targets cannot see); the step is
+/// halved until the sum of squares decreases. The constraints are linear, so every point
+/// between two feasible settings is feasible. It stops when a step no longer decreases the
+/// sum of squares or changes no setting by more than 1e-15 of its scale. The iteration starts
+/// at the file's settings (clamped), or where every concentration target's channel carries
+/// flow: the middle of the bounds, else their upper ends.
+fn gauss_newton(
+    network: &Network,
+    problem: &Problem,
+    conc: &[ConcentrationRow],
+    scaled: &Scaled,
+    states: &[FlowSolution],
+    constraints: &[Constraint],
+) -> Result<Nonlinear, DesignError> {
+    let dflows: Vec<Vec<f64>> = states[1..]
+        .iter()
+        .zip(&scaled.scale)
+        .map(|(st, s)| st.flows.iter().map(|q| q * s).collect())
+        .collect();
+    let dinto: Vec<Vec<f64>> = states[1..]
+        .iter()
+        .zip(&scaled.scale)
+        .map(|(st, s)| st.node_net_inflow.iter().map(|q| q * s).collect())
+        .collect();
+    let lin_at = |y: &[f64]| -> Result<Vec<concentration::Linear>, DesignError> {
+        let (flows, into) = state_at(scaled, states, y);
+        concentration::linearise(
+            network,
+            conc,
+            &concentration::State {
+                flows: &flows,
+                into_chip: &into,
+                dflows: &dflows,
+                dinto: &dinto,
+            },
+        )
+    };
+    // Sum of squares of every row at y (infinite where a concentration target has no flow).
+    let objective = |y: &[f64], lin: &[concentration::Linear]| -> f64 {
+        let linear: f64 = problem
+            .a
+            .iter()
+            .zip(&problem.r)
+            .map(|(a, r)| {
+                let v = a.iter().zip(y).map(|(a, y)| a * y).sum::<f64>() - r;
+                v * v
+            })
+            .sum();
+        lin.iter()
+            .map(|l| l.residual.map_or(f64::INFINITY, |r| r * r))
+            .sum::<f64>()
+            + linear
+    };
+    let mid: Vec<f64> = scaled
+        .lo
+        .iter()
+        .zip(&scaled.hi)
+        .map(|(l, h)| 0.5 * (l + h))
+        .collect();
+    let mut y = scaled.start.clone();
+    let mut lin = lin_at(&y)?;
+    if lin.iter().any(|l| l.residual.is_none()) {
+        for candidate in [&mid, &scaled.hi] {
+            let l = lin_at(candidate)?;
+            if l.iter().all(|l| l.residual.is_some()) {
+                y = candidate.clone();
+                lin = l;
+                break;
+            }
+        }
+    }
+    let mut f = objective(&y, &lin);
+    let mut lsi;
+    let mut last;
+    let mut steps = 0;
+    loop {
+        last = problem.with_concentrations(conc, &lin, &y);
+        lsi = last.solve(constraints, &y);
+        steps += 1;
+        if !lsi.feasible || steps > MAX_STEPS {
+            break;
+        }
+        let dir: Vec<f64> = lsi.x.iter().zip(&y).map(|(a, b)| a - b).collect();
+        if dir.iter().all(|d| d.abs() <= 1e-15) {
+            break;
+        }
+        let mut alpha = 1.0;
+        let mut accepted = None;
+        while alpha >= 1e-10 {
+            let trial: Vec<f64> = y.iter().zip(&dir).map(|(y, d)| y + alpha * d).collect();
+            let l = lin_at(&trial)?;
+            let ft = objective(&trial, &l);
+            if ft < f || (ft == 0.0 && f == 0.0) {
+                accepted = Some((trial, l, ft));
+                break;
+            }
+            alpha *= 0.5;
+        }
+        let Some((trial, l, ft)) = accepted else {
+            break;
+        };
+        let small = trial
+            .iter()
+            .zip(&y)
+            .all(|(a, b)| (a - b).abs() <= 1e-15 * a.abs().max(1.0));
+        y = trial;
+        lin = l;
+        let stalled = ft >= f * (1.0 - 1e-12);
+        f = ft;
+        if small || stalled || f == 0.0 {
+            last = problem.with_concentrations(conc, &lin, &y);
+            lsi = last.solve(constraints, &y);
+            break;
+        }
+    }
+    let flat = lin
+        .iter()
+        .map(|l| l.gradient.iter().all(|g| g.abs() <= CONTROL_TOL))
+        .collect();
+    Ok(Nonlinear {
+        y,
+        lsi,
+        problem: last,
+        residual_norm: f.sqrt(),
+        flat,
     })
 }
 
@@ -395,6 +591,30 @@ impl Problem {
         }
     }
 
+    /// The problem with the concentration rows linearised at y appended: gradient·y' ≈
+    /// gradient·y − residual (one Gauss–Newton step's rows). Rows without flow are left out.
+    fn with_concentrations(
+        &self,
+        conc: &[ConcentrationRow],
+        lin: &[concentration::Linear],
+        y: &[f64],
+    ) -> Problem {
+        let mut p = Problem {
+            a: self.a.clone(),
+            r: self.r.clone(),
+            row_target: self.row_target.clone(),
+            control: self.control.clone(),
+        };
+        for (row, l) in conc.iter().zip(lin) {
+            let Some(res) = l.residual else { continue };
+            let gy: f64 = l.gradient.iter().zip(y).map(|(g, y)| g * y).sum();
+            p.a.push(l.gradient.clone());
+            p.r.push(gy - res);
+            p.row_target.push(row.target);
+        }
+        p
+    }
+
     fn solve(&self, constraints: &[Constraint], start: &[f64]) -> lsq::Lsi {
         let g: Vec<Vec<f64>> = constraints.iter().map(|c| c.g.clone()).collect();
         let h: Vec<f64> = constraints.iter().map(|c| c.h).collect();
@@ -497,6 +717,8 @@ fn controllability(
             let full = r + states[0].flows[channel.0].abs();
             (r <= CONTROL_TOL * full || r == 0.0).then_some(NotControllable::NoResponse)
         }
+        // Judged at the tuned settings (a concentration's response depends on the state).
+        TargetKind::Concentration { .. } => None,
         TargetKind::Split { channels, .. } => {
             // Columns: the fixed ports' flows and each port's flows at full scale, over the
             // group. The shares cannot move when every column is parallel to the largest.

@@ -196,6 +196,18 @@ pub fn well_mixed(
     g: &FlowGraph,
     source: &[f64],
 ) -> Result<(Vec<Option<f64>>, Method), SoluteError> {
+    let fed: Vec<f64> = (0..g.external.len())
+        .map(|i| g.external[i] * source[i])
+        .collect();
+    let c = balances(g, &fed)?;
+    check_balances(g, source, &c)?;
+    Ok((c, g.method()))
+}
+
+/// Solve carrier_i·c_i − Σ_in Q_k·c_from(k) = f_i on the flow graph (the well-mixed balances
+/// with the right-hand side `f`): a sweep over single-node parts, sparse LU on recirculating
+/// ones. `None` where no flow enters.
+fn balances(g: &FlowGraph, f: &[f64]) -> Result<Vec<Option<f64>>, SoluteError> {
     let n = g.external.len();
     let mut c: Vec<Option<f64>> = vec![None; n];
     for w in g.part_start.windows(2) {
@@ -208,21 +220,77 @@ pub fn well_mixed(
                     .iter()
                     .map(|&(u, q)| q * c[u].unwrap_or(0.0))
                     .sum();
-                c[i] = Some((g.external[i] * source[i] + carried) / total);
+                c[i] = Some((f[i] + carried) / total);
             }
         } else {
-            solve_part(g, part, source, &mut c)?;
+            solve_part(g, part, f, &mut c)?;
         }
     }
-    check_balances(g, source, &c)?;
-    Ok((c, g.method()))
+    Ok(c)
+}
+
+/// Derivatives of the well-mixed concentrations of a solved network along a change of its
+/// flows: `dflows` per channel and `dinto` per node (the derivatives of `flows` and
+/// `into_chip`, same signs), at the solution `c` of [`well_mixed`] on `g =
+/// FlowGraph::of_network(network, flows, into_chip)` with the inlet concentrations `source`.
+///
+/// Exact (analytic) forward derivative of the balances A(Q)·c = b(Q): A·dc = db − dA·c, with
+/// the same matrix A (the same sweep or LU) and the right-hand side
+/// dQ_ext,i·s_i + Σ_in dQ_k·c_from(k) − d(carrier_i)·c_i. It holds while no flow changes
+/// direction: channels without flow (and the nodes without concentration) stay as they are
+/// (`None` where `c` is `None`).
+#[allow(clippy::too_many_arguments)]
+pub fn well_mixed_tangent(
+    network: &Network,
+    flows: &[f64],
+    into_chip: &[f64],
+    g: &FlowGraph,
+    c: &[Option<f64>],
+    source: &[f64],
+    dflows: &[f64],
+    dinto: &[f64],
+) -> Result<Vec<Option<f64>>, SoluteError> {
+    let n = network.nodes.len();
+    let mut f = vec![0.0; n];
+    let mut dout = vec![0.0; n];
+    let mut din = vec![0.0; n];
+    for ((ch, &q), &dq) in network.channels.iter().zip(flows).zip(dflows) {
+        let (u, i, dq) = match q {
+            _ if ch.from == ch.to => continue,
+            q if q > 0.0 => (ch.from.0, ch.to.0, dq),
+            q if q < 0.0 => (ch.to.0, ch.from.0, -dq),
+            _ => continue,
+        };
+        f[i] += dq * c[u].unwrap_or(0.0);
+        dout[u] += dq;
+        din[i] += dq;
+    }
+    for (i, node) in network.nodes.iter().enumerate() {
+        if matches!(node.port, crate::network::Port::Junction) {
+            continue;
+        }
+        match into_chip[i] {
+            q if q > 0.0 => {
+                f[i] += dinto[i] * source[i];
+                din[i] += dinto[i];
+            }
+            q if q < 0.0 => dout[i] -= dinto[i],
+            _ => {}
+        }
+    }
+    for i in 0..n {
+        let dcarrier = if g.outflow[i] > 0.0 { dout[i] } else { din[i] };
+        f[i] -= dcarrier * c[i].unwrap_or(0.0);
+    }
+    let dc = balances(g, &f)?;
+    Ok(dc.into_iter().zip(c).map(|(d, ci)| ci.and(d)).collect())
 }
 
 /// Solve the balances of one recirculating part (inflows from upstream parts known).
 fn solve_part(
     g: &FlowGraph,
     part: &[usize],
-    source: &[f64],
+    f: &[f64],
     c: &mut [Option<f64>],
 ) -> Result<(), SoluteError> {
     let m = part.len();
@@ -233,7 +301,7 @@ fn solve_part(
     let mut fed = 0.0;
     for (k, &i) in part.iter().enumerate() {
         triplets.push(Triplet::new(k, k, g.carrier(i)));
-        rhs[(k, 0)] = g.external[i] * source[i];
+        rhs[(k, 0)] = f[i];
         fed += g.external[i];
         for &(u, q) in g.inflows(i) {
             match local.get(&u) {
