@@ -773,24 +773,41 @@ impl Network {
     /// Channels that can carry no flow in any steady state: those of dead-end branches,
     /// found by peeling junctions (no port) joined to the rest by a single channel, again
     /// and again, in O(nodes + channels). Their computed flows are rounding noise.
+    ///
+    /// Two sequential passes and no adjacency lists: each node keeps its count of live
+    /// channels and the XOR of their indices, so a node with one live channel left names it
+    /// exactly (the peeling of "invertible Bloom lookup tables", Goodrich & Mitzenmacher
+    /// 2011). Channels never join a node to itself (the builder refuses it), so every
+    /// channel counts once at each of its two ends. A peeled branch is followed to its end
+    /// at once, so no work list is needed.
     pub fn dead_end_channels(&self) -> Vec<bool> {
+        let n = self.nodes.len();
         let mut dead = vec![false; self.channels.len()];
-        let mut degree: Vec<usize> = (0..self.nodes.len())
-            .map(|i| self.degree(NodeId(i)))
+        let mut degree = vec![0u32; n];
+        let mut xor = vec![0usize; n];
+        for (k, c) in self.channels.iter().enumerate() {
+            degree[c.from.0] += 1;
+            degree[c.to.0] += 1;
+            xor[c.from.0] ^= k;
+            xor[c.to.0] ^= k;
+        }
+        let junction: Vec<bool> = self
+            .nodes
+            .iter()
+            .map(|node| node.port == Port::Junction)
             .collect();
-        let mut stack: Vec<NodeId> = (0..self.nodes.len())
-            .map(NodeId)
-            .filter(|&i| degree[i.0] == 1 && self.nodes[i].port == Port::Junction)
-            .collect();
-        while let Some(leaf) = stack.pop() {
-            let Some((c, other)) = self.incident(leaf).find(|(c, _)| !dead[c.0]) else {
-                continue;
-            };
-            dead[c.0] = true;
-            degree[leaf.0] -= 1;
-            degree[other.0] -= 1;
-            if degree[other.0] == 1 && self.nodes[other].port == Port::Junction {
-                stack.push(other);
+        for start in 0..n {
+            let mut leaf = start;
+            while degree[leaf] == 1 && junction[leaf] {
+                let k = xor[leaf];
+                dead[k] = true;
+                let c = &self.channels[ChannelId(k)];
+                let other = if c.from.0 == leaf { c.to.0 } else { c.from.0 };
+                degree[leaf] = 0;
+                xor[leaf] = 0;
+                degree[other] -= 1;
+                xor[other] ^= k;
+                leaf = other;
             }
         }
         dead

@@ -482,3 +482,64 @@ fn a_large_star_meets_the_balance_at_its_centre() {
         );
     }
 }
+
+/// Dead-end channels by their definition, checked channel by channel in O(channels²): a
+/// channel is dead when removing it cuts off a side that holds only junctions and no loop
+/// (a tree of junctions, which can carry no steady flow). Derived here from the definition
+/// of [`Network::dead_end_channels`], independently of its peeling.
+fn dead_by_definition(net: &Network) -> Vec<bool> {
+    let n = net.nodes.len();
+    (0..net.channels.len())
+        .map(|k| {
+            let side = |start: usize| -> (Vec<bool>, usize) {
+                let mut seen = vec![false; n];
+                seen[start] = true;
+                let mut stack = vec![start];
+                while let Some(v) = stack.pop() {
+                    for (o, c) in net.channels.iter().enumerate() {
+                        if o == k || (c.from.0 != v && c.to.0 != v) {
+                            continue;
+                        }
+                        let u = if c.from.0 == v { c.to.0 } else { c.from.0 };
+                        if !seen[u] {
+                            seen[u] = true;
+                            stack.push(u);
+                        }
+                    }
+                }
+                let nodes = seen.iter().filter(|&&s| s).count();
+                let edges = net
+                    .channels
+                    .iter()
+                    .enumerate()
+                    .filter(|&(o, c)| o != k && seen[c.from.0])
+                    .count();
+                (seen, edges + 1 - nodes)
+            };
+            let c = &net.channels[rillnet::network::ChannelId(k)];
+            let (seen_from, loops_from) = side(c.from.0);
+            if seen_from[c.to.0] {
+                return false;
+            }
+            let (seen_to, loops_to) = side(c.to.0);
+            let junctions_only = |seen: &[bool]| {
+                net.nodes
+                    .iter()
+                    .zip(seen)
+                    .all(|(node, &s)| !s || node.port == Port::Junction)
+            };
+            (junctions_only(&seen_from) && loops_from == 0)
+                || (junctions_only(&seen_to) && loops_to == 0)
+        })
+        .collect()
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(64))]
+
+    #[test]
+    fn dead_end_marking_meets_its_definition(s in spec()) {
+        let net = build(&s);
+        prop_assert_eq!(net.dead_end_channels(), dead_by_definition(&net));
+    }
+}

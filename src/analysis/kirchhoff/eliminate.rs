@@ -77,58 +77,82 @@ pub(crate) struct Plan {
     symbolic: Option<SymbolicCholesky>,
 }
 
-/// Growable neighbour lists in one pool, with lazy removal of eliminated neighbours.
+/// Per unknown, everything the elimination order reads about it in one record (one cache
+/// line is fetched per visit, not one per array: on a random tree the visits are random).
+#[derive(Clone, Copy, Debug)]
+struct Rec {
+    /// Its neighbour list in [`Adjacency::pool`]: start, live-or-stale entries, capacity.
+    start: usize,
+    len: u32,
+    cap: u32,
+    /// Live neighbouring unknowns (distinct).
+    degree: u32,
+    /// XOR of the live neighbours' indices and of their edges' slots: with one live
+    /// neighbour left, these name it and its edge without scanning the list.
+    xn: u32,
+    xe: u32,
+    /// 0 = not queued, 1 = queued as a joint, 2 = queued as a dead end.
+    queued: u8,
+    alive: bool,
+}
+
+/// Growable neighbour lists (neighbour, edge) in one pool, with lazy removal of eliminated
+/// neighbours.
 struct Adjacency {
-    start: Vec<usize>,
-    len: Vec<u32>,
-    cap: Vec<u32>,
-    nbr: Vec<u32>,
-    edge: Vec<u32>,
+    rec: Vec<Rec>,
+    pool: Vec<(u32, u32)>,
 }
 
 impl Adjacency {
-    fn compact(&mut self, v: usize, alive: &[bool]) {
-        let s = self.start[v];
+    fn compact(&mut self, v: usize) {
+        let Rec { start, len, .. } = self.rec[v];
         let mut w = 0;
-        for r in 0..self.len[v] as usize {
-            let u = self.nbr[s + r];
-            if alive[u as usize] {
-                self.nbr[s + w] = u;
-                self.edge[s + w] = self.edge[s + r];
+        for r in 0..len as usize {
+            let entry = self.pool[start + r];
+            if self.rec[entry.0 as usize].alive {
+                self.pool[start + w] = entry;
                 w += 1;
             }
         }
-        self.len[v] = w as u32;
+        self.rec[v].len = w as u32;
     }
 
-    fn push(&mut self, v: usize, u: u32, e: u32, alive: &[bool]) {
-        if self.len[v] == self.cap[v] {
-            self.compact(v, alive);
+    fn push(&mut self, v: usize, u: u32, e: u32) {
+        if self.rec[v].len == self.rec[v].cap {
+            self.compact(v);
         }
-        if self.len[v] == self.cap[v] {
-            let (s, l) = (self.start[v], self.len[v] as usize);
+        let Rec {
+            start, len, cap, ..
+        } = self.rec[v];
+        if len == cap {
+            let l = len as usize;
             let cap = 2 * l + 2;
-            let new = self.nbr.len();
-            self.nbr.extend_from_within(s..s + l);
-            self.edge.extend_from_within(s..s + l);
-            self.nbr.resize(new + cap, NONE);
-            self.edge.resize(new + cap, NONE);
-            self.start[v] = new;
-            self.cap[v] = cap as u32;
+            let new = self.pool.len();
+            self.pool.extend_from_within(start..start + l);
+            self.pool.resize(new + cap, (NONE, NONE));
+            self.rec[v].start = new;
+            self.rec[v].cap = cap as u32;
         }
-        let at = self.start[v] + self.len[v] as usize;
-        self.nbr[at] = u;
-        self.edge[at] = e;
-        self.len[v] += 1;
+        let r = &mut self.rec[v];
+        self.pool[r.start + r.len as usize] = (u, e);
+        r.len += 1;
     }
 
-    fn entries(&self, v: usize) -> impl Iterator<Item = (u32, u32)> + '_ {
-        let s = self.start[v];
-        let l = self.len[v] as usize;
-        self.nbr[s..s + l]
-            .iter()
-            .copied()
-            .zip(self.edge[s..s + l].iter().copied())
+    fn entries(&self, v: usize) -> &[(u32, u32)] {
+        let Rec { start, len, .. } = self.rec[v];
+        &self.pool[start..start + len as usize]
+    }
+
+    /// Queue `u` if it has become a dead end or a series joint.
+    fn enqueue(&mut self, u: usize, ends: &mut Vec<u32>, joints: &mut Vec<u32>) {
+        let r = &mut self.rec[u];
+        if r.degree <= 1 && r.queued != 2 {
+            r.queued = 2;
+            ends.push(u as u32);
+        } else if r.degree == 2 && r.queued == 0 {
+            r.queued = 1;
+            joints.push(u as u32);
+        }
     }
 }
 
@@ -143,107 +167,125 @@ impl Plan {
         let full = system.pattern();
         // Indices are u32; a system beyond that is factorised whole.
         let fits = n < NONE as usize / 2 && full.nnz() < NONE as usize / 2;
-        let mut degree = vec![0u32; n];
-        for j in 0..n {
-            for &i in full.column(j).1.iter().filter(|&&i| i != j) {
-                degree[i] += 1;
-                degree[j] += 1;
-            }
-        }
-        let mut adj = Adjacency {
-            start: Vec::with_capacity(n),
-            len: vec![0; n],
-            cap: Vec::with_capacity(n),
-            nbr: Vec::new(),
-            edge: Vec::new(),
+        let blank = Rec {
+            start: 0,
+            len: 0,
+            cap: 0,
+            degree: 0,
+            xn: 0,
+            xe: 0,
+            queued: 0,
+            alive: true,
         };
-        let mut total = 0usize;
-        for &d in &degree {
-            adj.start.push(total);
-            adj.cap.push(d + 2);
-            total += d as usize + 2;
-        }
-        adj.nbr = vec![NONE; total];
-        adj.edge = vec![NONE; total];
-        let mut alive = vec![true; n];
+        let mut adj = Adjacency {
+            rec: vec![blank; n],
+            pool: Vec::new(),
+        };
         for j in 0..n {
             let (first, rows) = full.column(j);
             for (t, &i) in rows.iter().enumerate().filter(|(_, &i)| i != j) {
                 let e = (first + t) as u32;
-                adj.push(i, j as u32, e, &alive);
-                adj.push(j, i as u32, e, &alive);
+                for (x, y) in [(i, j), (j, i)] {
+                    let r = &mut adj.rec[x];
+                    r.degree += 1;
+                    r.xn ^= y as u32;
+                    r.xe ^= e;
+                }
+            }
+        }
+        let mut total = 0usize;
+        for r in &mut adj.rec {
+            r.start = total;
+            r.cap = r.degree + 2;
+            total += r.cap as usize;
+        }
+        adj.pool = vec![(NONE, NONE); total];
+        for j in 0..n {
+            let (first, rows) = full.column(j);
+            for (t, &i) in rows.iter().enumerate().filter(|(_, &i)| i != j) {
+                let e = (first + t) as u32;
+                for (x, y) in [(i, j), (j, i)] {
+                    let r = &mut adj.rec[x];
+                    adj.pool[r.start + r.len as usize] = (y as u32, e);
+                    r.len += 1;
+                }
             }
         }
         let mut edges = full.nnz();
         let mut steps = Vec::with_capacity(n);
-        // Dead ends first (their elimination adds nothing), then series joints; 0 = not queued,
-        // 1 = queued as a joint, 2 = queued as a dead end.
-        let mut queued = vec![0u8; n];
+        // Dead ends first (their elimination adds nothing), then series joints.
         let (mut ends, mut joints) = (Vec::new(), Vec::new());
-        let enqueue = |u: usize,
-                       degree: &[u32],
-                       queued: &mut [u8],
-                       ends: &mut Vec<u32>,
-                       joints: &mut Vec<u32>| {
-            if degree[u] <= 1 && queued[u] != 2 {
-                queued[u] = 2;
-                ends.push(u as u32);
-            } else if degree[u] == 2 && queued[u] == 0 {
-                queued[u] = 1;
-                joints.push(u as u32);
-            }
-        };
         if fits {
             for v in (0..n).rev() {
-                enqueue(v, &degree, &mut queued, &mut ends, &mut joints);
+                adj.enqueue(v, &mut ends, &mut joints);
             }
         }
         while let Some(v) = ends.pop().or_else(|| joints.pop()) {
             let v = v as usize;
-            if !alive[v] || degree[v] > 2 {
+            let rv = adj.rec[v];
+            if !rv.alive || rv.degree > 2 {
                 continue;
             }
             let mut nb = [(NONE, NONE); 2];
-            let mut count = 0;
-            for (u, e) in adj.entries(v) {
-                if alive[u as usize] && count < 2 {
-                    nb[count] = (u, e);
-                    count += 1;
+            let count = rv.degree as usize;
+            if count == 1 {
+                nb[0] = (rv.xn, rv.xe);
+            } else if count == 2 {
+                let mut found = 0;
+                for &(u, e) in adj.entries(v) {
+                    if adj.rec[u as usize].alive {
+                        nb[found] = (u, e);
+                        found += 1;
+                        if found == 2 {
+                            break;
+                        }
+                    }
                 }
             }
             let [(j, e1), (k, e2)] = nb;
             let mut e3 = NONE;
             if count == 2 {
-                let (a, b) = if adj.len[j as usize] <= adj.len[k as usize] {
+                let (a, b) = if adj.rec[j as usize].len <= adj.rec[k as usize].len {
                     (j as usize, k)
                 } else {
                     (k as usize, j)
                 };
-                if adj.len[a] as usize > SCAN_LIMIT {
-                    adj.compact(a, &alive);
+                if adj.rec[a].len as usize > SCAN_LIMIT {
+                    adj.compact(a);
                 }
-                if adj.len[a] as usize > SCAN_LIMIT {
-                    queued[v] = 0;
+                if adj.rec[a].len as usize > SCAN_LIMIT {
+                    adj.rec[v].queued = 0;
                     continue;
                 }
                 e3 = adj
                     .entries(a)
-                    .find(|&(u, _)| u == b && alive[u as usize])
-                    .map_or(NONE, |(_, e)| e);
+                    .iter()
+                    .find(|&&(u, _)| u == b && adj.rec[u as usize].alive)
+                    .map_or(NONE, |&(_, e)| e);
             }
-            alive[v] = false;
+            adj.rec[v].alive = false;
+            for (u, e) in [(j, e1), (k, e2)].into_iter().filter(|&(u, _)| u != NONE) {
+                let r = &mut adj.rec[u as usize];
+                r.xn ^= v as u32;
+                r.xe ^= e;
+            }
             if count == 2 && e3 == NONE {
                 e3 = edges as u32;
                 edges += 1;
-                adj.push(j as usize, k, e3, &alive);
-                adj.push(k as usize, j, e3, &alive);
+                adj.push(j as usize, k, e3);
+                adj.push(k as usize, j, e3);
+                for (x, y) in [(j, k), (k, j)] {
+                    let r = &mut adj.rec[x as usize];
+                    r.xn ^= y;
+                    r.xe ^= e3;
+                }
             } else {
                 for u in [j, k].into_iter().filter(|&u| u != NONE) {
-                    degree[u as usize] -= 1;
+                    adj.rec[u as usize].degree -= 1;
                 }
             }
             for u in [j, k].into_iter().filter(|&u| u != NONE) {
-                enqueue(u as usize, &degree, &mut queued, &mut ends, &mut joints);
+                adj.enqueue(u as usize, &mut ends, &mut joints);
             }
             steps.push(Step {
                 v: v as u32,
@@ -256,15 +298,17 @@ impl Plan {
         }
         // The reduced system: kept unknowns and the edges left between them.
         let mut reduced_of = vec![NONE; n];
-        let kept: Vec<u32> = (0..n as u32).filter(|&v| alive[v as usize]).collect();
+        let kept: Vec<u32> = (0..n as u32)
+            .filter(|&v| adj.rec[v as usize].alive)
+            .collect();
         for (r, &v) in kept.iter().enumerate() {
             reduced_of[v as usize] = r as u32;
         }
         let m = kept.len();
         let mut live = Vec::new();
         for (r, &v) in kept.iter().enumerate() {
-            for (u, e) in adj.entries(v as usize) {
-                if alive[u as usize] && u > v {
+            for &(u, e) in adj.entries(v as usize) {
+                if adj.rec[u as usize].alive && u > v {
                     live.push((e, r as u32, reduced_of[u as usize]));
                 }
             }

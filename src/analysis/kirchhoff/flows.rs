@@ -42,12 +42,18 @@ fn stiff_channels(network: &Network, pressures: &[f64], g: &[f64], dead: &[bool]
             if dead[k] || both_set {
                 return false;
             }
-            let (pi, pj) = (pressures[c.from.0], pressures[c.to.0]);
-            let size = pi.abs() + pj.abs();
-            let cancels = size > 0.0 && f64::EPSILON * size > FLOW_LIMIT * (pi - pj).abs();
-            cancels && conductance_ratio(network, g, ChannelId(k)) >= STIFF_RATIO
+            cancels(pressures[c.from.0], pressures[c.to.0])
+                && conductance_ratio(network, g, ChannelId(k)) >= STIFF_RATIO
         })
         .collect()
+}
+
+/// The rounding of g·(p_i − p_j), ε·(|p_i| + |p_j|)/|p_i − p_j| relative, exceeds
+/// [`FLOW_LIMIT`]: the first condition for a channel to be stiff ([`stiff_channels`]).
+#[inline]
+pub(super) fn cancels(pi: f64, pj: f64) -> bool {
+    let size = pi.abs() + pj.abs();
+    size > 0.0 && f64::EPSILON * size > FLOW_LIMIT * (pi - pj).abs()
 }
 
 /// g_k over the larger of the sums of the other conductances at its two ends (infinite when
@@ -163,6 +169,19 @@ pub fn worst_flow_imbalance(
             noise += g[k] * (pressures[c.from.0].abs() + pressures[c.to.0].abs());
         }
     }
+    worst_of_sums(network, &net, &through, noise, injection)
+}
+
+/// [`worst_flow_imbalance`] from its sums: each node's net outflow `net` and largest flow
+/// `through`, and `noise` = Σ g_k·(|p_i| + |p_j|) over the channels whose flows came from
+/// pressures (the checked solve gathers them in its one pass over the channels).
+pub(super) fn worst_of_sums(
+    network: &Network,
+    net: &[f64],
+    through: &[f64],
+    noise: f64,
+    injection: &[f64],
+) -> Option<(NodeId, f64)> {
     let floor = 64.0 * f64::EPSILON * noise;
     let mut worst: Option<(NodeId, f64)> = None;
     for i in network.nodes.ids().filter(|&i| imposed(network, i)) {

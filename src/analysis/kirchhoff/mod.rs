@@ -396,53 +396,87 @@ pub fn balance_residuals_for(
     g: &[f64],
     drives: &[f64],
 ) -> Vec<Option<f64>> {
-    let n = network.nodes.len();
-    let mut imbalance = vec![0.0; n];
-    let mut scale = vec![0.0; n];
-    let mut conductance = vec![0.0; n];
+    let mut sums = BalanceSums::new(network.nodes.len());
     for (c, &gk) in network.channels.iter().zip(g) {
-        let (pi, pj) = (pressures[c.from.0], pressures[c.to.0]);
+        sums.add(c.from.0, c.to.0, gk, pressures[c.from.0], pressures[c.to.0]);
+    }
+    sums.residuals(network, pressures, drives)
+}
+
+/// Per-node sums behind [`balance_residuals_for`], accumulated channel by channel so that the
+/// checked solve can gather them in the same pass as the flows.
+pub(crate) struct BalanceSums {
+    imbalance: Vec<f64>,
+    scale: Vec<f64>,
+    conductance: Vec<f64>,
+}
+
+impl BalanceSums {
+    pub(crate) fn new(n: usize) -> Self {
+        BalanceSums {
+            imbalance: vec![0.0; n],
+            scale: vec![0.0; n],
+            conductance: vec![0.0; n],
+        }
+    }
+
+    /// Add channel (i → j) of conductance `gk` at end pressures `pi`, `pj`; returns its flow
+    /// g·(p_i − p_j) and its size g·(|p_i| + |p_j|).
+    #[inline]
+    pub(crate) fn add(&mut self, i: usize, j: usize, gk: f64, pi: f64, pj: f64) -> (f64, f64) {
         let q = gk * (pi - pj);
         let size = gk * (pi.abs() + pj.abs());
-        imbalance[c.from.0] -= q;
-        imbalance[c.to.0] += q;
-        scale[c.from.0] += size;
-        scale[c.to.0] += size;
-        conductance[c.from.0] += gk;
-        conductance[c.to.0] += gk;
+        self.imbalance[i] -= q;
+        self.imbalance[j] += q;
+        self.scale[i] += size;
+        self.scale[j] += size;
+        self.conductance[i] += gk;
+        self.conductance[j] += gk;
+        (q, size)
     }
-    let p_max = pressures.iter().fold(0.0f64, |m, p| m.max(p.abs()));
-    // Arioli, Demmel & Duff (1989), SIAM J. Matrix Anal. Appl. 10, 165: where the componentwise
-    // denominator (|A||x| + |b|)_i is below τ = 1000·n·ε times the normwise one
-    // (‖A_i‖·‖x‖∞ + |b_i|), e.g. where pressures have decayed to nothing far down a leaky
-    // line, the normwise denominator is used, so rounding there is not read as an imbalance.
-    let tau = 1000.0 * n as f64 * f64::EPSILON;
-    network
-        .nodes
-        .iter()
-        .zip(drives)
-        .enumerate()
-        .map(|(i, (node, &d))| {
-            let inj = match node.port {
-                Port::Pressure(_) => return None,
-                Port::Junction => 0.0,
-                Port::Flow(_) => d,
-            };
-            let componentwise = scale[i] + inj.abs();
-            let normwise = 2.0 * conductance[i] * p_max + inj.abs();
-            let s = if componentwise < tau * normwise {
-                normwise
-            } else {
-                componentwise
-            };
-            // 0 where nothing flows at all; NaN (never accepted) where the pressures are.
-            Some(if s == 0.0 {
-                0.0
-            } else {
-                (inj + imbalance[i]).abs() / s
+
+    /// The residuals of [`balance_residuals_for`] from the sums.
+    pub(crate) fn residuals(
+        &self,
+        network: &Network,
+        pressures: &[f64],
+        drives: &[f64],
+    ) -> Vec<Option<f64>> {
+        let n = network.nodes.len();
+        let (imbalance, scale, conductance) = (&self.imbalance, &self.scale, &self.conductance);
+        let p_max = pressures.iter().fold(0.0f64, |m, p| m.max(p.abs()));
+        // Arioli, Demmel & Duff (1989), SIAM J. Matrix Anal. Appl. 10, 165: where the componentwise
+        // denominator (|A||x| + |b|)_i is below τ = 1000·n·ε times the normwise one
+        // (‖A_i‖·‖x‖∞ + |b_i|), e.g. where pressures have decayed to nothing far down a leaky
+        // line, the normwise denominator is used, so rounding there is not read as an imbalance.
+        let tau = 1000.0 * n as f64 * f64::EPSILON;
+        network
+            .nodes
+            .iter()
+            .zip(drives)
+            .enumerate()
+            .map(|(i, (node, &d))| {
+                let inj = match node.port {
+                    Port::Pressure(_) => return None,
+                    Port::Junction => 0.0,
+                    Port::Flow(_) => d,
+                };
+                let componentwise = scale[i] + inj.abs();
+                let normwise = 2.0 * conductance[i] * p_max + inj.abs();
+                let s = if componentwise < tau * normwise {
+                    normwise
+                } else {
+                    componentwise
+                };
+                // 0 where nothing flows at all; NaN (never accepted) where the pressures are.
+                Some(if s == 0.0 {
+                    0.0
+                } else {
+                    (inj + imbalance[i]).abs() / s
+                })
             })
-        })
-        .collect()
+            .collect()
+    }
 }
 
 /// The largest residual and where it is (index 0 and residual 0 when there is none); the

@@ -3,7 +3,7 @@
 //! sides.
 //!
 //! Forward solves (A·x = b(drives)) are checked node by node with the Oettli–Prager balance
-//! residual of [`balance_residuals_for`]; adjoint solves (A·λ = b) with the componentwise
+//! residual of [`super::balance_residuals_for`]; adjoint solves (A·λ = b) with the componentwise
 //! relative backward error of the linear system itself,
 //!
 //!   ω(λ) = max_i |b − A·λ|_i / (|A|·|λ| + |b|)_i     (Oettli & Prager 1964; 0 where the
@@ -17,8 +17,8 @@
 
 use super::eliminate::{Eliminated, Plan};
 use super::{
-    balance_residuals_for, channel_flows, conductances, drive_values, node_outflows, worst,
-    FlowSolution, KirchhoffSystem, SolveError, MAX_REFINEMENTS, RESIDUAL_LIMIT,
+    conductances, drive_values, node_outflows, worst, BalanceSums, FlowSolution, KirchhoffSystem,
+    SolveError, MAX_REFINEMENTS, RESIDUAL_LIMIT,
 };
 use crate::network::{Network, NodeId, Port};
 use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky};
@@ -212,9 +212,22 @@ fn name_the_cause(network: &Network, g: &[f64], e: SolverError) -> SolveError {
     }
 }
 
-/// Pressures, per-node balance residuals, the worst residual, refinement steps and flows of
-/// a checked forward solve.
-type ForwardParts = (Vec<f64>, Vec<Option<f64>>, f64, usize, Vec<f64>);
+/// One pass over the channels at a forward solution: node pressures, the balance residuals
+/// of [`super::balance_residuals_for`] and the worst of them, the channel flows (0 on
+/// dead-end branches), each node's net outflow and largest flow, the rounding scale
+/// Σ g_k·(|p_i| + |p_j|) of the flows, and whether any channel's end pressures cancel (a
+/// channel could be stiff: see [`super::flows`]).
+struct Forward {
+    pressures: Vec<f64>,
+    residuals: Vec<Option<f64>>,
+    node: usize,
+    residual: f64,
+    flows: Vec<f64>,
+    net: Vec<f64>,
+    through: Vec<f64>,
+    noise: f64,
+    cancel: bool,
+}
 
 /// Refuse a vector of the wrong length (a caller's mistake, reported rather than panicking).
 fn expect_len(what: &'static str, expected: usize, found: usize) -> Result<(), SolveError> {
@@ -360,6 +373,55 @@ impl<'a> Factor<'a> {
         Ok((refinements, last))
     }
 
+    /// Everything the checks of a forward solution need, in one pass over the channels (see
+    /// [`Forward`]).
+    fn forward_pass(&self, x: &[f64], drives: &[f64]) -> Forward {
+        let network = self.network;
+        let pressures = self.system.node_pressures_for(x, drives);
+        let n = network.nodes.len();
+        let mut sums = BalanceSums::new(n);
+        let mut flows = Vec::with_capacity(network.channels.len());
+        let mut net = vec![0.0; n];
+        let mut through = vec![0.0f64; n];
+        let (mut noise, mut cancel) = (0.0, false);
+        let both_set = |c: &crate::network::Channel| {
+            matches!(network.nodes[c.from].port, Port::Pressure(_))
+                && matches!(network.nodes[c.to].port, Port::Pressure(_))
+        };
+        for ((c, &gk), &dead) in network
+            .channels
+            .iter()
+            .zip(&self.g)
+            .zip(self.dead_end.iter())
+        {
+            let (i, j) = (c.from.0, c.to.0);
+            let (pi, pj) = (pressures[i], pressures[j]);
+            let (q, size) = sums.add(i, j, gk, pi, pj);
+            // Dead-end branches carry no flow; what the solve left there is rounding.
+            let q = if dead { 0.0 } else { q };
+            net[i] += q;
+            net[j] -= q;
+            through[i] = through[i].max(q.abs());
+            through[j] = through[j].max(q.abs());
+            noise += size;
+            cancel |= !dead && super::flows::cancels(pi, pj) && !both_set(c);
+            flows.push(q);
+        }
+        let residuals = sums.residuals(network, &pressures, drives);
+        let (node, residual) = worst(residuals.iter().copied());
+        Forward {
+            pressures,
+            residuals,
+            node,
+            residual,
+            flows,
+            net,
+            through,
+            noise,
+            cancel,
+        }
+    }
+
     /// Refine and check one forward column, then derive flows and node inflows.
     fn finish_forward(
         &self,
@@ -368,28 +430,24 @@ impl<'a> Factor<'a> {
         mut x: Vec<f64>,
     ) -> Result<FlowSolution, SolveError> {
         let check = |x: &[f64]| {
-            let pressures = self.system.node_pressures_for(x, drives);
-            let residuals = balance_residuals_for(self.network, &pressures, &self.g, drives);
-            let w = worst(residuals.iter().copied());
-            (w.1, (pressures, residuals, w))
+            let pass = self.forward_pass(x, drives);
+            (pass.residual, pass)
         };
-        let (refinements, (pressures, residuals, (node, residual))) =
-            self.refine(b, &mut x, check)?;
-        if residual > RESIDUAL_LIMIT || !residual.is_finite() {
+        let (refinements, pass) = self.refine(b, &mut x, check)?;
+        if pass.residual > RESIDUAL_LIMIT || !pass.residual.is_finite() {
             return Err(SolveError::Residual {
-                node: self.network.nodes[NodeId(node)].name.clone(),
-                residual,
+                node: self.network.nodes[NodeId(pass.node)].name.clone(),
+                residual: pass.residual,
                 limit: RESIDUAL_LIMIT,
             });
         }
-        let (pressures, residuals, residual, refinements, flows) =
-            self.balanced_ports(drives, x, (pressures, residuals, residual, refinements))?;
+        let (pass, refinements, flows, net) = self.balanced_ports(drives, x, pass, refinements)?;
         Ok(FlowSolution {
-            node_net_inflow: node_outflows(self.network, &flows),
-            pressures,
+            node_net_inflow: net,
+            pressures: pass.pressures,
             flows,
-            max_relative_residual: residual,
-            node_residuals: residuals,
+            max_relative_residual: pass.residual,
+            node_residuals: pass.residuals,
             refinements,
         })
     }
@@ -402,33 +460,27 @@ impl<'a> Factor<'a> {
     /// residuals summed channel by channel in double-double arithmetic
     /// ([`Self::channel_residual`]) remove it. Still
     /// missing after that, the result is withheld with the channel most likely behind it.
+    /// Returns the last pass, the refinement steps, the flows and each node's net outflow.
     fn balanced_ports(
         &self,
         drives: &[f64],
         mut x: Vec<f64>,
-        checked: (Vec<f64>, Vec<Option<f64>>, f64, usize),
-    ) -> Result<ForwardParts, SolveError> {
-        let (mut pressures, mut residuals, mut residual, mut refinements) = checked;
+        mut pass: Forward,
+        mut refinements: usize,
+    ) -> Result<(Forward, usize, Vec<f64>, Vec<f64>), SolveError> {
         let injection = self.injection(drives);
         let mut extra = 0;
         loop {
-            let mut flows = channel_flows(self.network, &self.g, &pressures);
-            // Dead-end branches carry no flow; what the solve left there is rounding.
-            for (q, &dead) in flows.iter_mut().zip(self.dead_end.iter()) {
-                if dead {
-                    *q = 0.0;
-                }
-            }
-            self.trusted_flows(&pressures, drives, &mut flows)?;
+            let (flows, net) = self.trusted_flows(&mut pass, &injection)?;
             let miss = super::flows::port_balance_miss(
                 self.network,
-                &pressures,
+                &pass.pressures,
                 &self.g,
                 &injection,
                 &flows,
             );
             let Some(miss) = miss else {
-                return Ok((pressures, residuals, residual, refinements, flows));
+                return Ok((pass, refinements, flows, net));
             };
             if extra == MAX_REFINEMENTS {
                 let (k, ratio) = super::flows::most_extreme_channel(self.network, &self.g)
@@ -439,12 +491,10 @@ impl<'a> Factor<'a> {
                     ratio,
                 });
             }
-            let mut d = self.channel_residual(&pressures, &injection);
+            let mut d = self.channel_residual(&pass.pressures, &injection);
             self.linear.solve_in_place(&mut d)?;
             x.iter_mut().zip(&d).for_each(|(xi, di)| *xi += di);
-            pressures = self.system.node_pressures_for(&x, drives);
-            residuals = balance_residuals_for(self.network, &pressures, &self.g, drives);
-            residual = worst(residuals.iter().copied()).1;
+            pass = self.forward_pass(&x, drives);
             extra += 1;
             refinements += 1;
         }
@@ -498,23 +548,66 @@ impl<'a> Factor<'a> {
     }
 
     /// Recover the flows of stiff channels from the balance and check every imposed node's
-    /// net flow (see [`super::flows`]).
+    /// net flow (see [`super::flows`]); returns the flows and each node's net outflow. When
+    /// no channel's end pressures cancel (no channel can be stiff), the pass's own flows and
+    /// sums are the answer and nothing is recomputed.
     fn trusted_flows(
         &self,
+        pass: &mut Forward,
+        injection: &[f64],
+    ) -> Result<(Vec<f64>, Vec<f64>), SolveError> {
+        let network = self.network;
+        let mut flows = std::mem::take(&mut pass.flows);
+        let (worst, net) = if pass.cancel {
+            let (stiff, unresolved) = super::flows::recover_stiff(
+                network,
+                &pass.pressures,
+                &self.g,
+                injection,
+                &self.dead_end,
+                &mut flows,
+            );
+            self.refuse_unresolved(&pass.pressures, &unresolved)?;
+            let worst = super::flows::worst_flow_imbalance(
+                network,
+                &pass.pressures,
+                &self.g,
+                &stiff,
+                injection,
+                &flows,
+            );
+            (worst, node_outflows(network, &flows))
+        } else {
+            let net = std::mem::take(&mut pass.net);
+            let worst =
+                super::flows::worst_of_sums(network, &net, &pass.through, pass.noise, injection);
+            (worst, net)
+        };
+        let Some((node, residual)) = worst else {
+            return Ok((flows, net));
+        };
+        match super::flows::most_negligible_at(network, &self.g, node) {
+            Some((k, ratio)) if ratio >= NEGLIGIBLE_RATIO => Err(SolveError::NegligibleChannel {
+                channel: network.channels[k].name.clone(),
+                node: network.nodes[node].name.clone(),
+                ratio,
+                residual,
+            }),
+            _ => Err(SolveError::FlowBalance {
+                node: network.nodes[node].name.clone(),
+                residual,
+                limit: super::flows::FLOW_LIMIT,
+            }),
+        }
+    }
+
+    /// Refuse stiff channels whose flows the balance could not recover, naming them.
+    fn refuse_unresolved(
+        &self,
         pressures: &[f64],
-        drives: &[f64],
-        flows: &mut [f64],
+        unresolved: &[crate::network::ChannelId],
     ) -> Result<(), SolveError> {
         let network = self.network;
-        let injection = self.injection(drives);
-        let (stiff, unresolved) = super::flows::recover_stiff(
-            network,
-            pressures,
-            &self.g,
-            &injection,
-            &self.dead_end,
-            flows,
-        );
         if !unresolved.is_empty() {
             let names: Vec<String> = unresolved
                 .iter()
@@ -540,24 +633,7 @@ impl<'a> Factor<'a> {
                 channels: names,
             });
         }
-        let Some((node, residual)) = super::flows::worst_flow_imbalance(
-            network, pressures, &self.g, &stiff, &injection, flows,
-        ) else {
-            return Ok(());
-        };
-        match super::flows::most_negligible_at(network, &self.g, node) {
-            Some((k, ratio)) if ratio >= NEGLIGIBLE_RATIO => Err(SolveError::NegligibleChannel {
-                channel: network.channels[k].name.clone(),
-                node: network.nodes[node].name.clone(),
-                ratio,
-                residual,
-            }),
-            _ => Err(SolveError::FlowBalance {
-                node: network.nodes[node].name.clone(),
-                residual,
-                limit: super::flows::FLOW_LIMIT,
-            }),
-        }
+        Ok(())
     }
 
     /// Refine and check one adjoint column (`abs_values` = |A|), then expand λ to the nodes.
@@ -608,6 +684,7 @@ impl<'a> Factor<'a> {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::analysis::kirchhoff::balance_residuals_for;
     use crate::fluid::Fluid;
     use crate::network::{NetworkBuilder, Port};
     use crate::section::Shape;
