@@ -179,6 +179,9 @@ fn target_what(chip: &Chip, t: usize) -> String {
         TargetKind::WallShear { channel, .. } => {
             format!("wall shear in {}", net.channels[*channel].name)
         }
+        TargetKind::Concentration {
+            channel, species, ..
+        } => format!("{species} in {}", net.channels[*channel].name),
     }
 }
 

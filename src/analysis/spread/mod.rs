@@ -138,6 +138,11 @@ pub enum SpreadError {
     Solve(#[from] SolveError),
     #[error("section of channel '{channel}': {message}")]
     Section { channel: String, message: String },
+    #[error(
+        "spread does not judge concentration targets yet (target on channel '{channel}'); \
+         run spread on a copy of the chip without them"
+    )]
+    ConcentrationTarget { channel: String },
 }
 
 impl<'n> Prepared<'n> {
@@ -150,6 +155,14 @@ impl<'n> Prepared<'n> {
     ) -> Result<Self, SpreadError> {
         if tolerances.is_empty() {
             return Err(SpreadError::NoTolerances);
+        }
+        if let Some(TargetKind::Concentration { channel, .. }) = (design.targets.iter())
+            .map(|t| &t.kind)
+            .find(|k| matches!(k, TargetKind::Concentration { .. }))
+        {
+            return Err(SpreadError::ConcentrationTarget {
+                channel: network.channels[*channel].name.clone(),
+            });
         }
         let solver = Solver::new(network)?;
         let (variables, atoms) = variables(network, tolerances);
@@ -905,6 +918,8 @@ impl Prepared<'_> {
                         };
                         within(tau, *shear, shear.abs(), t.tolerance)
                     }
+                    // Refused in `Prepared::new`: never judged here.
+                    TargetKind::Concentration { .. } => true,
                 };
                 !met
             })
