@@ -8,7 +8,7 @@
 use approx::assert_relative_eq;
 use rillnet::analysis::transient::{evolve, Drives, Rocking, Run, SwitchOn};
 use rillnet::format::{parse_chip, Syntax};
-use rillnet::network::{STANDARD_ATMOSPHERE, STANDARD_GRAVITY};
+use rillnet::network::STANDARD_GRAVITY;
 use std::f64::consts::PI;
 
 const RHO: f64 = 1000.0;
