@@ -151,4 +151,12 @@ fn bad_tubing_is_refused_with_its_place() {
         "{inner_diameter: 0.5 mm, wall: 1 mm, length: 30 cm}",
     ));
     assert!(e.contains("modulus"), "{e}");
+    // Tubing on a pressure port stores nothing: refused at the tubing key.
+    let e = refused(
+        &pump_into_tubing(SILICONE).replace("line: {tubing:", "line: {pressure: 1 kPa, tubing:"),
+    );
+    assert!(
+        e.contains("nodes.line.tubing") && e.contains("stores nothing"),
+        "{e}"
+    );
 }

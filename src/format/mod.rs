@@ -573,6 +573,13 @@ fn node_storage(name: &str, spec: &NodeSpec) -> Result<Option<Storage>, Misplace
         return Ok(Some(Storage::Compliance(c.0)));
     }
     if let Some(t) = &spec.tubing {
+        if spec.pressure.is_some() {
+            return Err(at(
+                &["nodes", name, "tubing"],
+                "a pressure port holds its pressure, so tubing there stores nothing; put the \
+                 tubing on a flow port or a junction",
+            ));
+        }
         return tubing(name, t).map(|c| Some(Storage::Compliance(Compliance::from_si(c))));
     }
     match &spec.reservoir {
