@@ -89,8 +89,8 @@ pub enum Storage {
     Well(Well),
     /// Trapped gas of volume V at the node's initial pressure (a bubble in a syringe, an air
     /// damper), isothermal: p_abs·V = const (Boyle's law), so C = −dV/dp = V/p_abs with
-    /// p_abs = 101 325 Pa + p. Linearised about the initial state (C fixed at V₀/p_abs,0):
-    /// the relative error in C grows about as 2·Δp/p_abs, 2 % for a 1 kPa excursion. Valid
+    /// p_abs = 101 325 Pa + p. `evolve` follows the law itself (p_abs·V = p_abs,0·V₀, so
+    /// C = p_abs,0·V₀/p_abs² at the current pressure), not a linearisation. Valid
     /// while the gas stays trapped and isothermal (changes slower than about a second for
     /// microlitre bubbles; common practice).
     Gas {
@@ -98,8 +98,53 @@ pub enum Storage {
         volume: Volume,
     },
     /// A given compliance dV/dp (soft tubing, a PDMS chamber), constant: measured or from the
-    /// supplier, e.g. 0.5 µL/bar.
+    /// supplier, e.g. 0.5 µL/bar, or computed from a tubing's wall ([`Tubing::compliance`]).
     Compliance(Compliance),
+}
+
+/// A length of elastic tubing (silicone, Tygon, PDMS), whose compliance follows from its
+/// material and geometry.
+///
+/// Model: the thick-walled cylinder under internal pressure p (Lamé's solution; Timoshenko &
+/// Goodier, *Theory of Elasticity*, 3rd ed. 1970, thick-walled cylinder), ends free (open
+/// tube, axial stress 0: plane stress), linear elastic, small strain. With inner radius a and
+/// outer radius b = a + wall, the hoop stress at the bore is p·(b² + a²)/(b² − a²) and the
+/// radial stress −p, so the bore's hoop strain is (p/E)·((b² + a²)/(b² − a²) + ν) and
+///   C = dV/dp = 2π·a²·L/E · ((b² + a²)/(b² − a²) + ν).
+/// For a thin wall (t ≪ d) this tends to the thin-wall formula C = π·d³·L/(4·E·t), with a
+/// relative difference of order t/d. Common tubing has t/d ≈ 0.5 or more, outside the
+/// thin-wall range, hence Lamé. Valid while the strain p/E·(…) stays small (a few percent:
+/// p well below E/10) and the wall is not prestressed by a fitting; the axial stretch of a
+/// capped or bonded tube (plane strain) differs by a factor of order one in the ν term only.
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct Tubing {
+    /// Bore diameter d [m].
+    pub inner_diameter: f64,
+    /// Wall thickness t [m].
+    pub wall: f64,
+    /// Length L [m].
+    pub length: f64,
+    /// Young's modulus E of the wall material [Pa].
+    pub modulus: f64,
+    /// Poisson's ratio ν (0.5 for elastomers, nearly incompressible: common practice).
+    pub poisson: f64,
+}
+
+impl Tubing {
+    /// Lamé compliance dV/dp [m³/Pa] (see the type's doc).
+    pub fn compliance(&self) -> f64 {
+        let a = 0.5 * self.inner_diameter;
+        let b = a + self.wall;
+        let (a2, b2) = (a * a, b * b);
+        2.0 * std::f64::consts::PI * a2 * self.length / self.modulus
+            * ((b2 + a2) / (b2 - a2) + self.poisson)
+    }
+
+    /// The thin-wall limit π·d³·L/(4·E·t) [m³/Pa], the check of [`Tubing::compliance`].
+    pub fn thin_wall_compliance(&self) -> f64 {
+        std::f64::consts::PI * self.inner_diameter.powi(3) * self.length
+            / (4.0 * self.modulus * self.wall)
+    }
 }
 
 /// A cross-section with its precomputed laminar figures.

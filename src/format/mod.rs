@@ -195,6 +195,9 @@ pub(crate) struct NodeSpec {
     /// A given compliance (soft tubing, a soft chamber).
     #[serde(default)]
     pub compliance: Option<Q<Compliance>>,
+    /// Elastic tubing at the node: its compliance from wall material and geometry.
+    #[serde(default)]
+    pub tubing: Option<TubingSpec>,
     /// `evolve`: the port is off (flow 0, or only its head) until this time.
     #[serde(default)]
     pub on_at: Option<Q<Duration>>,
@@ -226,6 +229,21 @@ pub(crate) struct ReservoirSpec {
     /// Gauge pressure of the gas above the surface (default 0: open to the room).
     #[serde(default)]
     pub gas_pressure: Option<Q<Pressure>>,
+}
+
+/// `nodes.NAME.tubing:` — elastic tubing whose compliance is computed from its wall
+/// ([`crate::network::Tubing`]).
+#[derive(Debug, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub(crate) struct TubingSpec {
+    pub inner_diameter: Q<Length>,
+    pub wall: Q<Length>,
+    pub length: Q<Length>,
+    /// Young's modulus of the wall material.
+    pub modulus: Q<Pressure>,
+    /// Poisson's ratio (default 0.5, elastomers).
+    #[serde(default)]
+    pub poisson: Option<f64>,
 }
 
 /// `channels.NAME:`.
@@ -593,12 +611,14 @@ fn node_storage(name: &str, spec: &NodeSpec) -> Result<Option<Storage>, Misplace
         spec.reservoir.is_some(),
         spec.gas_volume.is_some(),
         spec.compliance.is_some(),
+        spec.tubing.is_some(),
     ];
     if given.iter().filter(|g| **g).count() > 1 {
         return Err(at(
             &["nodes", name],
             format!(
-                "node '{name}' has more than one of 'reservoir', 'gas_volume' and 'compliance'; \
+                "node '{name}' has more than one of 'reservoir', 'gas_volume', 'compliance' and \
+                 'tubing'; \
                  give one storage per node (split the node with a short channel if both exist)"
             ),
         ));
@@ -609,6 +629,16 @@ fn node_storage(name: &str, spec: &NodeSpec) -> Result<Option<Storage>, Misplace
     if let Some(c) = spec.compliance {
         return Ok(Some(Storage::Compliance(c.0)));
     }
+    if let Some(t) = &spec.tubing {
+        if spec.pressure.is_some() {
+            return Err(at(
+                &["nodes", name, "tubing"],
+                "a pressure port holds its pressure, so tubing there stores nothing; put the \
+                 tubing on a flow port or a junction",
+            ));
+        }
+        return tubing(name, t).map(|c| Some(Storage::Compliance(Compliance::from_si(c))));
+    }
     match &spec.reservoir {
         None => Ok(None),
         Some(r) => well(name, r, spec.elevation.is_some()).map(|w| Some(Storage::Well(w))),
@@ -617,6 +647,35 @@ fn node_storage(name: &str, spec: &NodeSpec) -> Result<Option<Storage>, Misplace
 
 /// A well from its spec: the area given or from the diameter; a level on or above the datum
 /// unless the well's elevation is given (the builder then checks level ≥ bottom).
+/// The compliance of `nodes.NAME.tubing` [m³/Pa], its fields checked.
+fn tubing(name: &str, t: &TubingSpec) -> Result<f64, Misplaced> {
+    let positive = |field: &str, v: f64, unit: &str| {
+        if v.is_finite() && v > 0.0 {
+            Ok(v)
+        } else {
+            Err(at(
+                &["nodes", name, "tubing", field],
+                format!("must be positive, got {v} {unit}"),
+            ))
+        }
+    };
+    let poisson = t.poisson.unwrap_or(0.5);
+    if !(0.0..=0.5).contains(&poisson) {
+        return Err(at(
+            &["nodes", name, "tubing", "poisson"],
+            format!("Poisson's ratio must lie in 0 to 0.5, got {poisson}"),
+        ));
+    }
+    let tube = crate::network::Tubing {
+        inner_diameter: positive("inner_diameter", t.inner_diameter.0.si(), "m")?,
+        wall: positive("wall", t.wall.0.si(), "m")?,
+        length: positive("length", t.length.0.si(), "m")?,
+        modulus: positive("modulus", t.modulus.0.si(), "Pa")?,
+        poisson,
+    };
+    Ok(tube.compliance())
+}
+
 fn well(name: &str, r: &ReservoirSpec, has_elevation: bool) -> Result<Well, Misplaced> {
     let area = match (r.area, r.diameter) {
         (Some(a), None) => a.0,

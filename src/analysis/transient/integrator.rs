@@ -12,6 +12,17 @@
 //! the estimate bounded on stiff and algebraic (C = 0) components. Dense output: the quadratic
 //! through the three stage values (third-order local accuracy, like the step).
 //!
+//! Trapped gas is a nonlinear storage: the stored volume q(x) = −k/(x + offset) (Boyle,
+//! p_abs·V_gas = k) replaces C·x in both stages, whose equations are then solved by a
+//! simplified Newton iteration on the same matrix M = C_ref + (γh/2)·A (Hairer & Wanner,
+//! *Solving Ordinary Differential Equations II*, 2nd ed. 1996, §IV.8: simplified Newton for
+//! implicit stages, iterated until the correction is far below the tolerance). C_ref holds the
+//! gases' compliances k/p_abs² at the step where M was factorised; M is factorised again when
+//! the step changes or a gas's compliance has moved more than [`REFRESH`] from C_ref. The
+//! iteration converges to the exact stage solution whatever C_ref is (C_ref only sets how fast:
+//! the contraction rate is about |1 − C/C_ref|), so this rule costs factorisations, not
+//! accuracy. Without gas every stage is linear and solved once, as before.
+//!
 //! The integrator sees only a pattern, matrix values, a diagonal C and a forcing: it knows
 //! nothing of chips. The forcing may switch at breakpoints; the integrator lands on each,
 //! evaluates the step that ends there with the values before the switch, and restores
@@ -21,6 +32,43 @@ use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky, Symmet
 
 /// γ = 2 − √2: both stages share the matrix C + (γh/2)·A (Hosea & Shampine 1996).
 const GAMMA: f64 = 2.0 - std::f64::consts::SQRT_2;
+
+/// A gas's compliance may move this far (relative) from the one M was factorised with before M
+/// is factorised again.
+pub const REFRESH: f64 = 0.2;
+
+/// Simplified Newton iterations per stage before the step is retried shorter.
+const NEWTON_ITERATIONS: usize = 12;
+
+/// A stage's Newton iteration stops when its correction is below this fraction of the
+/// tolerance (weighted norm; Hairer & Wanner 1996 §IV.8 take 0.01 to 0.1 with a rate estimate,
+/// we stop later and need none).
+const NEWTON_STOP: f64 = 1e-3;
+
+/// A trapped gas at an unknown: with p_abs = x + `offset` its volume is k/p_abs (Boyle), so the
+/// liquid it has taken in is q(x) = −k/(x + offset) + const, and its compliance
+/// dq/dx = k/(x + offset)².
+#[derive(Clone, Copy, Debug, PartialEq)]
+pub struct GasStore {
+    pub unknown: usize,
+    /// p_abs·V_gas [Pa·m³].
+    pub k: f64,
+    /// Absolute pressure minus the unknown [Pa].
+    pub offset: f64,
+}
+
+impl GasStore {
+    /// Stored volume q(x), up to a constant; `None` when the absolute pressure is not positive.
+    fn stored(&self, x: f64) -> Option<f64> {
+        let p = x + self.offset;
+        (p > 0.0).then(|| -self.k / p)
+    }
+
+    fn compliance(&self, x: f64) -> f64 {
+        let p = x + self.offset;
+        self.k / (p * p)
+    }
+}
 
 /// Why a time integration stopped.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -37,12 +85,14 @@ pub enum IntegrationError {
 }
 
 /// The assembled system: `a` are the values of A on `pattern`, `c[u]` the storage of unknown u
-/// (zero where the unknown is algebraic), `diag[u]` the slot of u's diagonal entry.
+/// (zero where the unknown is algebraic), `diag[u]` the slot of u's diagonal entry. The
+/// unknowns in `gas` store q(x) instead of c·x ([`GasStore`]; their `c` is ignored).
 pub struct LinearDae<'a> {
     pub pattern: &'a SymmetricPattern,
     pub a: &'a [f64],
     pub diag: &'a [usize],
     pub c: &'a [f64],
+    pub gas: &'a [GasStore],
 }
 
 /// The right-hand side b(t). `before` asks for the value just before `t` when a drive
@@ -125,10 +175,10 @@ struct Work<'a> {
 
 impl Work<'_> {
     /// Factor C + s·A.
-    fn factor(&self, s: f64) -> Result<Cholesky<'_>, SolverError> {
+    fn factor(&self, s: f64, c: &[f64]) -> Result<Cholesky<'_>, SolverError> {
         let mut m: Vec<f64> = self.dae.a.iter().map(|v| s * v).collect();
         for (u, &slot) in self.dae.diag.iter().enumerate() {
-            m[slot] += self.dae.c[u];
+            m[slot] += c[u];
         }
         self.factorizations.set(self.factorizations.get() + 1);
         self.symbolic.factorize(self.dae.pattern, &m)
@@ -140,6 +190,70 @@ impl Work<'_> {
         for (o, bi) in out.iter_mut().zip(b) {
             *o = bi - *o;
         }
+    }
+
+    /// The storage diagonal at state x: c, with each gas's compliance at x.
+    fn compliances(&self, x: &[f64]) -> Vec<f64> {
+        let mut c = self.dae.c.to_vec();
+        for g in self.dae.gas {
+            c[g.unknown] = g.compliance(x[g.unknown]);
+        }
+        c
+    }
+
+    /// Stored volume of every unknown at x into `out` (c·x, q(x) for gases); false when a
+    /// gas's absolute pressure is not positive.
+    fn stored(&self, x: &[f64], out: &mut [f64]) -> bool {
+        for (u, o) in out.iter_mut().enumerate() {
+            *o = self.dae.c[u] * x[u];
+        }
+        for g in self.dae.gas {
+            match g.stored(x[g.unknown]) {
+                Some(q) => out[g.unknown] = q,
+                None => return false,
+            }
+        }
+        true
+    }
+
+    /// Solve q(y) + s·A·y = rhs for y by simplified Newton with `factor` (M = c_ref + s·A),
+    /// from the first iterate already in `y`; false when it does not converge.
+    #[allow(clippy::too_many_arguments)]
+    fn newton(
+        &self,
+        factor: &Cholesky<'_>,
+        s: f64,
+        rhs: &[f64],
+        y: &mut [f64],
+        options: &Options,
+        scratch: &mut [f64],
+        ay: &mut [f64],
+    ) -> Result<bool, SolverError> {
+        if self.dae.gas.is_empty() {
+            return Ok(true);
+        }
+        for _ in 0..NEWTON_ITERATIONS {
+            if !self.stored(y, scratch) {
+                return Ok(false);
+            }
+            self.dae.pattern.multiply(self.dae.a, y, ay);
+            for u in 0..y.len() {
+                scratch[u] += s * ay[u] - rhs[u];
+            }
+            factor.solve_in_place(scratch)?;
+            let mut norm = 0.0f64;
+            for u in 0..y.len() {
+                y[u] -= scratch[u];
+                norm = norm.max(scratch[u].abs() / (options.atol + options.rtol * y[u].abs()));
+            }
+            if !norm.is_finite() {
+                return Ok(false);
+            }
+            if norm <= NEWTON_STOP {
+                return Ok(true);
+            }
+        }
+        Ok(false)
     }
 }
 
@@ -155,9 +269,9 @@ fn make_consistent(
     let n = x.len();
     let mut b = vec![0.0; n];
     forcing.rhs(t, false, &mut b);
-    let c = w.dae.c;
+    let c = w.compliances(x);
     let mut rhs: Vec<f64> = (0..n).map(|u| c[u] * x[u] + eta * b[u]).collect();
-    let factor = w.factor(eta)?;
+    let factor = w.factor(eta, &c)?;
     factor.solve_in_place(&mut rhs)?;
     x.copy_from_slice(&rhs);
     Ok(())
@@ -206,10 +320,18 @@ pub fn integrate(
     let k = (-3.0 * GAMMA * GAMMA + 4.0 * GAMMA - 2.0) / (12.0 * (2.0 - GAMMA));
     let (mut bn, mut bg, mut b1) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
     let (mut fnn, mut fg, mut f1) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
-    let mut factored: Option<(f64, Cholesky<'_>)> = None;
+    // The factor of M, its step and the storage diagonal C_ref it was made with.
+    let mut factored: Option<(f64, Vec<f64>, Cholesky<'_>)> = None;
     let mut xg = vec![0.0; n];
     let mut x1 = vec![0.0; n];
     let mut e = vec![0.0; n];
+    let (mut q0, mut qg, mut rhs, mut scratch, mut ay) = (
+        vec![0.0; n],
+        vec![0.0; n],
+        vec![0.0; n],
+        vec![0.0; n],
+        vec![0.0; n],
+    );
     while t < t_end {
         let target = stops[stop];
         let hs = h.min(options.max_step).min(target - t);
@@ -219,26 +341,70 @@ pub fn integrate(
         if hs <= 1e-14 * t_end.max(t) {
             return Err(IntegrationError::StepTooSmall { time: t, step: hs });
         }
-        let factor = match factored.take() {
-            Some((hf, f)) if hf == hs => factored.insert((hf, f)),
-            _ => factored.insert((hs, w.factor(0.5 * GAMMA * hs)?)),
+        let fresh = |c_ref: &[f64]| {
+            dae.gas.iter().all(|g| {
+                let c = g.compliance(x[g.unknown]);
+                (c / c_ref[g.unknown] - 1.0).abs() <= REFRESH
+            })
         };
-        let factor = &factor.1;
+        let factor = match factored.take() {
+            Some((hf, c_ref, f)) if hf == hs && fresh(&c_ref) => factored.insert((hf, c_ref, f)),
+            _ => {
+                let c_ref = w.compliances(&x);
+                let f = w.factor(0.5 * GAMMA * hs, &c_ref)?;
+                factored.insert((hs, c_ref, f))
+            }
+        };
+        let (c_ref, factor) = (&factor.1, &factor.2);
         forcing.rhs(t, false, &mut bn);
         forcing.rhs(t + GAMMA * hs, false, &mut bg);
         forcing.rhs(t1, lands && stop + 1 < stops.len(), &mut b1);
         w.f(&x, &bn, &mut fnn);
         let half = 0.5 * GAMMA * hs;
+        // Trapezoidal stage: q(xg) + half·A·xg = q(x) + half·(f(x) + b(tg)). The first
+        // iterate is one Newton step from xg = x (exact when every storage is linear).
+        let mut converged = w.stored(&x, &mut q0);
         for u in 0..n {
             xg[u] = dae.c[u] * x[u] + half * (fnn[u] + bg[u]);
         }
+        for g in dae.gas {
+            let u = g.unknown;
+            xg[u] = c_ref[u] * x[u] + half * (fnn[u] + bg[u]);
+        }
         factor.solve_in_place(&mut xg)?;
+        if converged && !dae.gas.is_empty() {
+            for u in 0..n {
+                rhs[u] = q0[u] + half * (fnn[u] + bg[u]);
+            }
+            converged = w.newton(factor, half, &rhs, &mut xg, &options, &mut scratch, &mut ay)?;
+        }
+        // BDF2 stage: q(x1) + half·A·x1 = a1·q(xg) − a0·q(x) + half·b(t1), from x1 = xg.
         let a1 = 1.0 / (GAMMA * (2.0 - GAMMA));
         let a0 = (1.0 - GAMMA) * (1.0 - GAMMA) * a1;
         for u in 0..n {
             x1[u] = dae.c[u] * (a1 * xg[u] - a0 * x[u]) + half * b1[u];
         }
+        if converged && !dae.gas.is_empty() {
+            converged = w.stored(&xg, &mut qg);
+            for u in 0..n {
+                rhs[u] = a1 * qg[u] - a0 * q0[u] + half * b1[u];
+            }
+            for g in dae.gas {
+                let u = g.unknown;
+                x1[u] = rhs[u] + c_ref[u] * xg[u] - qg[u];
+            }
+        }
         factor.solve_in_place(&mut x1)?;
+        if converged && !dae.gas.is_empty() {
+            converged = w.newton(factor, half, &rhs, &mut x1, &options, &mut scratch, &mut ay)?;
+        }
+        if !converged {
+            // The stage equations were not solved: retry shorter with a fresh factor.
+            out.rejected += 1;
+            factored = None;
+            h = 0.5 * hs;
+            continue;
+        }
         w.f(&xg, &bg, &mut fg);
         w.f(&x1, &b1, &mut f1);
         for u in 0..n {

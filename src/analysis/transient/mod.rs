@@ -3,9 +3,11 @@
 //! Unknowns: every node except pressure ports without a well (those stay imposed). A well's
 //! unknown is its piezometric pressure in the platform's frame, P − ρ·g·Δz(t) when the
 //! platform tilts; its level is (P − p_gas)/(ρ·g). Storage per unknown is
-//! [`Storage`]'s compliance: A/(ρ·g) for a well, V/p_abs for trapped gas (linearised about the
-//! initial state), the given value for a compliance, 0 elsewhere (an algebraic unknown: the
-//! system is a DAE of index 1). Integrated by TR-BDF2 ([`integrator`]).
+//! [`Storage`]'s compliance: A/(ρ·g) for a well, the given value for a compliance, 0 elsewhere
+//! (an algebraic unknown); trapped gas follows Boyle's law p_abs·V = p_abs,0·V₀ with its
+//! compliance p_abs,0·V₀/p_abs² at the current pressure, not linearised (a nonlinear storage
+//! in the integrator, [`integrator::GasStore`]). With algebraic unknowns the
+//! system is a DAE of index 1. Integrated by TR-BDF2 ([`integrator`]).
 //!
 //! Drives in time: a flow port or pressure port switched on at t₀ (off before: flow 0, or
 //! the pressure its elevation gives), a port's setting following a piecewise-linear profile
@@ -19,7 +21,7 @@ pub mod integrator;
 
 use crate::analysis::kirchhoff::{conductances, drive_values, KirchhoffSystem};
 use crate::network::{Network, NodeId, Port, Storage, STANDARD_ATMOSPHERE};
-use integrator::{Forcing, LinearDae, Options};
+use integrator::{Forcing, GasStore, LinearDae, Options};
 
 pub use crate::chip::drives::{Drives, Profile, Rocking, SwitchOn};
 
@@ -86,6 +88,8 @@ pub struct Model<'n> {
     a: Vec<f64>,
     diag: Vec<usize>,
     c: Vec<f64>,
+    /// Trapped gases: Boyle's law about their initial state.
+    gas: Vec<GasStore>,
     drives: Drives,
     base: Vec<f64>,
     arm: Vec<f64>,
@@ -123,6 +127,22 @@ impl<'n> Model<'n> {
                 }
             })
             .collect();
+        let gas = (0..system.dim())
+            .filter_map(|u| {
+                let node = NodeId(system.node(u));
+                let Some(Storage::Gas { volume }) = network.nodes[node].storage else {
+                    return None;
+                };
+                // p_abs = STANDARD_ATMOSPHERE + static pressure = x + offset.
+                let offset = network.static_pressure(node, 0.0) + STANDARD_ATMOSPHERE;
+                let p0 = network.static_pressure(node, initial[node.0]) + STANDARD_ATMOSPHERE;
+                Some(GasStore {
+                    unknown: u,
+                    k: p0 * volume.si(),
+                    offset,
+                })
+            })
+            .collect();
         let mut arm = vec![0.0; network.nodes.len()];
         if let Some(r) = &drives.rocking {
             for &(n, d) in &r.arms {
@@ -136,6 +156,7 @@ impl<'n> Model<'n> {
             a,
             diag,
             c,
+            gas,
             drives,
             base: drive_values(network),
             arm,
@@ -439,6 +460,7 @@ pub fn evolve_with_step_limit(
                 a: &model.a,
                 diag: &model.diag,
                 c: &model.c,
+                gas: &model.gas,
             };
             let m = &model;
             let mut watch = |step: &Step<'_>| -> Option<f64> {
