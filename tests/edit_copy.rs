@@ -681,3 +681,21 @@ proptest! {
         prop_assert_eq!(at(&tree, &PRESSURE), &Value::Object(want));
     }
 }
+
+/// A case the property test above found: anchor and alias marks inside written values
+/// ("a& -", "*") are quoted, so the copy reads back to the same strings.
+#[test]
+fn anchor_and_alias_marks_in_values_read_back() {
+    let (text, syntax) = chip(0, "20 mbar");
+    let fields = vec![
+        ("a".to_string(), "a& -".to_string()),
+        ("b".into(), "*".into()),
+    ];
+    let edit = Edit {
+        path: PRESSURE.iter().map(|s| s.to_string()).collect(),
+        value: NewValue::Mapping(fields),
+    };
+    let out = apply_edits(&text, syntax, &[edit]).unwrap();
+    let tree = yaml(&out);
+    assert_eq!(at(&tree, &PRESSURE), &json!({"a": "a& -", "b": "*"}));
+}

@@ -1038,6 +1038,9 @@ fn plain_ok(s: &str, flow: bool) -> bool {
     if s.chars().any(|c| {
         needs_escape(c)
             || matches!(c, '#' | ':')
+            // Anchor, alias and tag marks are text inside a plain scalar, but quoting them
+            // keeps the copy clear of the alias guard that checks every written copy.
+            || matches!(c, '&' | '*' | '!')
             || (flow && matches!(c, ',' | '[' | ']' | '{' | '}'))
     }) {
         return false;
