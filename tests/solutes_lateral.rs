@@ -347,17 +347,7 @@ fn spec() -> impl Strategy<Value = Spec> {
 }
 
 fn build(spec: &Spec) -> Network {
-    let mut b = NetworkBuilder::new(Fluid::WATER_20C);
-    for (i, &(kind, v, _)) in spec.ports.iter().enumerate() {
-        let port = match kind {
-            1 => Port::Pressure(Pressure::from_si(v)),
-            2 => Port::Flow(VolumeFlow::from_si(v * 1e-12)),
-            _ => Port::Junction,
-        };
-        b.add_node(&format!("n{i}"), port).unwrap();
-    }
-    common::add_circle_channels(&mut b, &spec.channels, None);
-    b.build().unwrap()
+    common::ported_network(&spec.ports, &spec.channels)
 }
 
 proptest! {

@@ -54,6 +54,26 @@ pub fn write_file(dir: &Path, name: &str, text: &str) -> std::path::PathBuf {
     p
 }
 
+/// A network of nodes `n{i}` from (kind, value, _) — kind 1 a pressure port at `value` Pa, 2 a
+/// flow port at `value` pL/s, else a junction — joined by [`add_circle_channels`].
+pub fn ported_network(
+    ports: &[(u8, f64, f64)],
+    channels: &[(usize, usize, f64, f64)],
+) -> rillnet::network::Network {
+    use rillnet::prelude::*;
+    let mut b = NetworkBuilder::new(Fluid::WATER_20C);
+    for (i, &(kind, v, _)) in ports.iter().enumerate() {
+        let port = match kind {
+            1 => Port::Pressure(Pressure::from_si(v)),
+            2 => Port::Flow(VolumeFlow::from_si(v * 1e-12)),
+            _ => Port::Junction,
+        };
+        b.add_node(&format!("n{i}"), port).unwrap();
+    }
+    add_circle_channels(&mut b, channels, None);
+    b.build().unwrap()
+}
+
 /// Add channels `c{k}` between nodes `n{a}` and `n{c}` for each (a, c, diameter µm, length mm),
 /// each a circle of its own inline section; `flip` reverses channel k's direction.
 pub fn add_circle_channels(
