@@ -36,6 +36,16 @@ pressure. Validate with your own device, and follow your lab's safety rules.";
 
 pub use crate::units::display::fmt_sig;
 
+/// `x` rounded to 10 significant digits: the key tables sort and pick by, so that values equal
+/// but for rounding (two symmetric chambers, two equal pumps) tie and keep the file's order,
+/// whichever way the solver's last bits fall.
+pub(crate) fn tie_key(x: f64) -> f64 {
+    if x == 0.0 || !x.is_finite() {
+        return x;
+    }
+    format!("{x:.9e}").parse().unwrap_or(x)
+}
+
 pub(crate) fn role(port: Port) -> &'static str {
     match port {
         Port::Junction => "junction",

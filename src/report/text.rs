@@ -1,6 +1,6 @@
 //! Human-readable tables for the terminal.
 
-use super::{fmt_sig, CAUTION};
+use super::{fmt_sig, tie_key, CAUTION};
 use crate::analysis::SteadyState;
 use crate::chip::Chip;
 use crate::network::{ChannelId, Network, NodeId, Port};
@@ -193,17 +193,18 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
 }
 
 /// Channels in the order a cell biologist wants them: smallest shear margin first, then
-/// channels without a limit by decreasing maximum shear.
+/// channels without a limit by decreasing maximum shear; ties (to 10 digits) in file order.
 fn worst_first(state: &SteadyState) -> Vec<usize> {
     let mut order: Vec<usize> = (0..state.channels.len()).collect();
     order.sort_by(|&a, &b| {
         let (sa, sb) = (&state.channels[a], &state.channels[b]);
         match (sa.shear_margin, sb.shear_margin) {
-            (Some(ma), Some(mb)) => ma.total_cmp(&mb),
+            (Some(ma), Some(mb)) => tie_key(ma).total_cmp(&tie_key(mb)),
             (Some(_), None) => std::cmp::Ordering::Less,
             (None, Some(_)) => std::cmp::Ordering::Greater,
-            (None, None) => sb.wall_shear_max.total_cmp(&sa.wall_shear_max),
+            (None, None) => tie_key(sb.wall_shear_max).total_cmp(&tie_key(sa.wall_shear_max)),
         }
+        .then(a.cmp(&b))
     });
     order
 }
@@ -342,7 +343,8 @@ pub fn check_text(chip: &Chip, state: &SteadyState, passed: bool) -> String {
         .pressures
         .iter()
         .enumerate()
-        .max_by(|a, b| a.1.abs().total_cmp(&b.1.abs()))
+        // The first node of the highest pressure (to 10 digits), in file order.
+        .max_by(|a, b| (tie_key(a.1.abs()).total_cmp(&tie_key(b.1.abs()))).then(b.0.cmp(&a.0)))
         .map(|(i, _)| i)
     {
         out.push_str(&format!(
