@@ -1038,9 +1038,10 @@ fn plain_ok(s: &str, flow: bool) -> bool {
     if s.chars().any(|c| {
         needs_escape(c)
             || matches!(c, '#' | ':')
-            // Anchor, alias and tag marks are text inside a plain scalar, but quoting them
-            // keeps the copy clear of the alias guard that checks every written copy.
-            || matches!(c, '&' | '*' | '!')
+            // An anchor mark is text inside a plain scalar, but quoting it keeps the copy
+            // clear of the alias guard that checks every written copy ('*' and '!' stay
+            // plain inside a value: units such as `mPa*s` use them).
+            || c == '&'
             || (flow && matches!(c, ',' | '[' | ']' | '{' | '}'))
     }) {
         return false;
