@@ -402,27 +402,7 @@ proptest! {
         // of the flow solve, which balances to 1e-9) keep what reaches them: count it, and
         // check that those flows are at rounding level.
         let means = &result.fields[0].channels;
-        let (mut sunk, mut sunk_flow) = (0.0, 0.0);
-        for (i, &net) in into.iter().enumerate() {
-            let (mut q_in, mut m_in, mut leaves) = (0.0, 0.0, net < 0.0
-                && !matches!(network.nodes[NodeId(i)].port, Port::Junction));
-            for (k, c) in network.channels.iter().enumerate() {
-                let q = flows[k];
-                if c.from == c.to || q == 0.0 {
-                    continue;
-                }
-                let (up, down) = if q > 0.0 { (c.from.0, c.to.0) } else { (c.to.0, c.from.0) };
-                if down == i {
-                    q_in += q.abs();
-                    m_in += q.abs() * means[k].unwrap_or(0.0);
-                }
-                leaves |= up == i;
-            }
-            if !leaves {
-                sunk += m_in;
-                sunk_flow += q_in;
-            }
-        }
+        let (sunk, sunk_flow) = common::sunk_into_dead_ends(&network, into, &flows, means);
         prop_assert!(sunk_flow <= 1e-9 * through, "{sunk_flow:e} of {through:e} into dead ends");
         let scale = through * source.iter().fold(0.0f64, |m, &x| m.max(x));
         prop_assert!((inflow - outflow - sunk).abs() <= 1e-12 * scale,

@@ -74,6 +74,43 @@ pub fn ported_network(
     b.build().unwrap()
 }
 
+/// Solute and flow that reach nodes nothing leaves (dead ends fed by rounding-level flows of
+/// the flow solve): (Σ Q·c, Σ Q) into them, `means` the channels' mean concentrations.
+pub fn sunk_into_dead_ends(
+    network: &rillnet::network::Network,
+    into: &[f64],
+    flows: &[f64],
+    means: &[Option<f64>],
+) -> (f64, f64) {
+    use rillnet::network::{NodeId, Port};
+    let (mut sunk, mut sunk_flow) = (0.0, 0.0);
+    for (i, &net) in into.iter().enumerate() {
+        let (mut q_in, mut m_in) = (0.0, 0.0);
+        let mut leaves = net < 0.0 && !matches!(network.nodes[NodeId(i)].port, Port::Junction);
+        for (k, c) in network.channels.iter().enumerate() {
+            let q = flows[k];
+            if c.from == c.to || q == 0.0 {
+                continue;
+            }
+            let (up, down) = if q > 0.0 {
+                (c.from.0, c.to.0)
+            } else {
+                (c.to.0, c.from.0)
+            };
+            if down == i {
+                q_in += q.abs();
+                m_in += q.abs() * means[k].unwrap_or(0.0);
+            }
+            leaves |= up == i;
+        }
+        if !leaves {
+            sunk += m_in;
+            sunk_flow += q_in;
+        }
+    }
+    (sunk, sunk_flow)
+}
+
 /// Add channels `c{k}` between nodes `n{a}` and `n{c}` for each (a, c, diameter µm, length mm),
 /// each a circle of its own inline section; `flip` reverses channel k's direction.
 pub fn add_circle_channels(
