@@ -34,8 +34,9 @@ fn f(v: &serde_json::Value) -> f64 {
 
 #[test]
 fn the_cycle_mean_flow_of_a_linear_network_is_the_steady_flow_under_the_mean_head() {
-    // Linearity: the heads swing as ρg·arm·sin(θ₀ sin ωt), whose cycle mean is 0, so once the
-    // start-up has died away (τ = R∥·C ≈ 0.7 s against 30 cycles of 4 s) each cycle's mean
+    // Linearity (superposition, derived here): the heads swing as ρg·arm·sin(θ₀ sin ωt),
+    // whose cycle mean is 0, so once the start-up has died away (τ = R∥·C ≈ 0.7 s against 30
+    // cycles of 4 s) each cycle's mean
     // flow is the flow of the platform at rest, and the time-averaged wall shear (linear in
     // the flow for a Newtonian fluid) is the steady one. Independent computation: `solve`.
     let steady = json(&["solve", "-", "--format", "json"]);
