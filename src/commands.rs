@@ -422,8 +422,10 @@ const REPORT_LONGEST_RUN: f64 = 30.0 * 86_400.0;
 
 /// The evolution `report` shows (200 outputs): on a rocking platform, the last drive change
 /// and 10 tilt cycles; otherwise at least a minute and twice the last drive change, ten times
-/// longer until every channel's flow changes by less than 0.1 % of the largest flow over the
-/// last tenth of the run (or the run reaches 30 days).
+/// longer until every channel's flow is within 0.1 % of the largest flow of where it is going
+/// (or the run reaches 30 days). Where it is going: the changes d₁, d₂ over the last two
+/// tenths of the run, taken as a geometric decay, leave d₂·ρ/(1 − ρ) to come with ρ = d₂/d₁
+/// (a slow drain, ρ near 1, is not settled however small its last step).
 fn evolve_for_report(chip: &Chip) -> Result<crate::outcome::EvolveOutcome, Error> {
     let last = last_drive_change(chip);
     if let Some(r) = &chip.drives.rocking {
@@ -435,14 +437,33 @@ fn evolve_for_report(chip: &Chip) -> Result<crate::outcome::EvolveOutcome, Error
         let o = evolve_chip(chip.clone(), t, t / 200.0)?;
         let f = &o.evolution.flows;
         let scale = f.iter().flatten().fold(0.0f64, |m, q| m.max(q.abs()));
-        let settled = match (f.last(), f.get(f.len().saturating_sub(21))) {
-            (Some(a), Some(b)) => a.iter().zip(b).all(|(x, y)| (x - y).abs() <= 1e-3 * scale),
+        let n = f.len();
+        let settled = match (
+            f.last(),
+            f.get(n.saturating_sub(21)),
+            f.get(n.saturating_sub(41)),
+        ) {
+            (Some(a), Some(b), Some(c)) => (a.iter().zip(b).zip(c))
+                .all(|((x, y), z)| still_to_come(z - y, y - x) <= 1e-3 * scale),
             _ => true,
         };
         if settled || o.stopped_dry || t >= REPORT_LONGEST_RUN {
             return Ok(o);
         }
         t = (10.0 * t).min(REPORT_LONGEST_RUN);
+    }
+}
+
+/// The change still to come after two successive changes `d1`, `d2` of a geometric decay;
+/// infinite when the changes do not shrink.
+fn still_to_come(d1: f64, d2: f64) -> f64 {
+    let (d1, d2) = (d1.abs(), d2.abs());
+    if d2 == 0.0 {
+        0.0
+    } else if d2 < d1 {
+        d2 * (d2 / d1) / (1.0 - d2 / d1)
+    } else {
+        f64::INFINITY
     }
 }
 
@@ -1025,4 +1046,18 @@ fn merge_shards(
         )));
     }
     Ok((seed, total, state.unwrap_or_default()))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::still_to_come;
+
+    #[test]
+    fn a_geometric_decay_leaves_the_sum_of_its_tail() {
+        // 1, 1/2: the rest is 1/4 + 1/8 + … = 1/2 (geometric series).
+        assert!((still_to_come(1.0, 0.5) - 0.5).abs() < 1e-15);
+        assert_eq!(still_to_come(0.0, 0.0), 0.0);
+        assert_eq!(still_to_come(1.0, 1.0), f64::INFINITY);
+        assert_eq!(still_to_come(-1.0, -0.5), 0.5);
+    }
 }

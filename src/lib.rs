@@ -25,6 +25,7 @@ pub mod fluid;
 pub mod format;
 pub mod index_vec;
 pub mod input;
+pub mod level_table;
 pub mod network;
 pub mod outcome;
 pub mod output;

@@ -12,6 +12,7 @@
 
 use crate::fluid::Fluid;
 use crate::index_vec::IdVec;
+use crate::level_table::LevelTable;
 use crate::section::numeric::NumericOptions;
 use crate::section::{GeometryKey, SectionFigures, Shape};
 use crate::units::{Area, Compliance, Length, Pressure, Volume, VolumeFlow};
@@ -69,23 +70,46 @@ pub const STANDARD_GRAVITY: f64 = 9.806_65;
 /// measured from, used where an absolute pressure is needed (Boyle's law for trapped gas).
 pub const STANDARD_ATMOSPHERE: f64 = 101_325.0;
 
-/// An open well: a free liquid surface at `level` above the datum, in a well of wetted
-/// cross-section `area` (constant with height), under gas at gauge pressure `port` of its node.
-#[derive(Clone, Copy, Debug, PartialEq)]
+/// An open well: a free liquid surface at `level` above the datum, in a well whose wetted
+/// cross-section is constant ([`WellShape::Prism`]) or follows a level–volume table
+/// ([`WellShape::Table`]), under gas at gauge pressure `port` of its node.
+#[derive(Clone, Debug, PartialEq)]
 pub struct Well {
     /// Height of the free surface above the datum (not above the well bottom) [m].
     pub level: Length,
-    /// Wetted cross-section of the well [m²], the same at every height (a cylinder or prism).
-    pub area: Area,
+    /// How the well's volume grows with its level.
+    pub shape: WellShape,
+}
+
+/// A well's geometry: how much liquid it holds at a given level.
+#[derive(Clone, Debug, PartialEq)]
+pub enum WellShape {
+    /// The same wetted cross-section [m²] at every height (a cylinder or prism).
+    Prism { area: Area },
+    /// Volume against height above the bottom, linear between rows (a cone, a pipette tip,
+    /// a stepped or moulded well; [`LevelTable`]).
+    Table(LevelTable),
+}
+
+impl Well {
+    /// Wetted cross-section [m²] with the surface at `height` above the well's bottom.
+    pub fn area_at(&self, height: f64) -> f64 {
+        match &self.shape {
+            WellShape::Prism { area } => area.si(),
+            WellShape::Table(t) => t.area(height),
+        }
+    }
 }
 
 /// Storage (hydraulic compliance) at a node: dV/dp, the volume taken up per unit pressure.
-#[derive(Clone, Copy, Debug, PartialEq)]
+#[derive(Clone, Debug, PartialEq)]
 pub enum Storage {
-    /// Open well: V = A·(level − bottom), piezometric pressure P = p_gas + ρ·g·level, so
-    /// C = dV/dP = A/(ρ·g) (hydrostatics; Bruus, *Theoretical Microfluidics* 2008, ch. 4,
-    /// hydraulic compliance). Exact for a prismatic well while it holds liquid; the node is a
-    /// pressure port in a steady solve (its level as stated).
+    /// Open well: V = V(level − bottom), piezometric pressure P = p_gas + ρ·g·level, so
+    /// C = dV/dP = A(level)/(ρ·g) with A the wetted cross-section at the surface (hydrostatics;
+    /// Bruus, *Theoretical Microfluidics* 2008, ch. 4, hydraulic compliance). For a prismatic
+    /// well C is constant; for a table it changes with the level, and `evolve` follows V(h)
+    /// itself, not a linearisation. The node is a pressure port in a steady solve (its level
+    /// as stated).
     Well(Well),
     /// Trapped gas of volume V at the node's initial pressure (a bubble in a syringe, an air
     /// damper), isothermal: p_abs·V = const (Boyle's law), so C = −dV/dp = V/p_abs with
@@ -390,22 +414,40 @@ fn check_storage(
                         .into(),
                 ));
             }
-            let a = w.area.si();
-            if !(a.is_finite() && a > 0.0) {
-                return Err((
-                    "reservoir.area",
-                    format!("must be a positive area, got {a} m^2"),
-                ));
+            if let WellShape::Prism { area } = &w.shape {
+                let a = area.si();
+                if !(a.is_finite() && a > 0.0) {
+                    return Err((
+                        "reservoir.area",
+                        format!("must be a positive area, got {a} m^2"),
+                    ));
+                }
             }
             let level = w.level.si();
             if !level.is_finite() || level < elevation.si() {
                 return Err((
                     "reservoir.level",
                     format!(
-                        "the free surface ({level} m above the datum) is below the well's bottom                          (its elevation, {} m); a level is measured from the datum, not from the                          well bottom",
+                        "the free surface ({level} m above the datum) is below the well's bottom \
+                         (its elevation, {} m); a level is measured from the datum, not from the \
+                         well bottom",
                         elevation.si()
                     ),
                 ));
+            }
+            if let WellShape::Table(t) = &w.shape {
+                let height = level - elevation.si();
+                if height > t.top() {
+                    return Err((
+                        "reservoir.level",
+                        format!(
+                            "the free surface stands {height} m above the well's bottom, over \
+                             the table's last row ({} m): the well would overflow; extend the \
+                             table to the well's brim or lower the level",
+                            t.top()
+                        ),
+                    ));
+                }
             }
             Ok(())
         }
@@ -414,7 +456,8 @@ fn check_storage(
             if pressure_port {
                 return Err((
                     "gas_volume",
-                    "a pressure port holds its pressure, so trapped gas there stores nothing;                      put the gas on a flow port or a junction"
+                    "a pressure port holds its pressure, so trapped gas there stores nothing; \
+                         put the gas on a flow port or a junction"
                         .into(),
                 ));
             }
@@ -431,7 +474,8 @@ fn check_storage(
             if pressure_port {
                 return Err((
                     "compliance",
-                    "a pressure port holds its pressure, so a compliance there stores nothing;                      put it on a flow port or a junction"
+                    "a pressure port holds its pressure, so a compliance there stores nothing; \
+                         put it on a flow port or a junction"
                         .into(),
                 ));
             }
@@ -892,7 +936,7 @@ impl Network {
         let Port::Pressure(p) = n.port else {
             return None;
         };
-        let height = match n.storage {
+        let height = match &n.storage {
             Some(Storage::Well(w)) => w.level.si(),
             _ => n.elevation.si(),
         };

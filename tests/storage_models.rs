@@ -38,7 +38,7 @@ const SILICONE: &str = "{inner_diameter: 0.5 mm, wall: 0.8 mm, length: 30 cm, mo
 
 fn compliance_of(c: &rillnet::Chip, node: &str) -> f64 {
     let n = c.network.node_id(node).unwrap();
-    match c.network.nodes[n].storage {
+    match &c.network.nodes[n].storage {
         Some(Storage::Compliance(x)) => x.si(),
         other => panic!("{other:?}"),
     }

@@ -46,7 +46,8 @@ pub use section_spec::{parse_profile_columns, parse_profile_csv, FileReader};
 
 use crate::chip::drives::{Drives, Rocking, SwitchOn};
 use crate::chip::{Chip, DrawnLayout, ModelNote, Source};
-use crate::network::{NetworkBuilder, NetworkError, Port, SectionId, Storage, Well};
+use crate::level_table::LevelTable;
+use crate::network::{NetworkBuilder, NetworkError, Port, SectionId, Storage, Well, WellShape};
 use crate::units::{
     Acceleration, Angle, Area, Compliance, Duration, Length, Pressure, Volume, VolumeFlow,
 };
@@ -226,6 +227,9 @@ pub(crate) struct ReservoirSpec {
     pub area: Option<Q<Area>>,
     #[serde(default)]
     pub diameter: Option<Q<Length>>,
+    /// Level–volume rows `[height above the bottom, volume]`, bottom first.
+    #[serde(default)]
+    pub table: Option<Vec<(Q<Length>, Q<Volume>)>>,
     /// Gauge pressure of the gas above the surface (default 0: open to the room).
     #[serde(default)]
     pub gas_pressure: Option<Q<Pressure>>,
@@ -677,33 +681,7 @@ fn tubing(name: &str, t: &TubingSpec) -> Result<f64, Misplaced> {
 }
 
 fn well(name: &str, r: &ReservoirSpec, has_elevation: bool) -> Result<Well, Misplaced> {
-    let area = match (r.area, r.diameter) {
-        (Some(a), None) => a.0,
-        (None, Some(d)) if d.0.si() > 0.0 => {
-            Area::from_si(std::f64::consts::PI / 4.0 * d.0.si() * d.0.si())
-        }
-        (None, Some(d)) => {
-            return Err(at(
-                &["nodes", name, "reservoir", "diameter"],
-                format!("must be a positive length, got {} m", d.0.si()),
-            ));
-        }
-        (Some(_), Some(_)) => {
-            return Err(at(
-                &["nodes", name, "reservoir", "diameter"],
-                "give the well's 'area' or its 'diameter', not both",
-            ));
-        }
-        (None, None) => {
-            return Err(at(
-                &["nodes", name, "reservoir"],
-                format!(
-                    "reservoir '{name}' needs its wetted cross-section: 'area' (e.g. 12 mm^2) \
-                     or a cylinder 'diameter' (e.g. 5 mm)"
-                ),
-            ))
-        }
-    };
+    let shape = well_shape(name, r)?;
     if r.level.0.si() < 0.0 && !has_elevation {
         return Err(at(
             &["nodes", name, "reservoir", "level"],
@@ -716,7 +694,60 @@ fn well(name: &str, r: &ReservoirSpec, has_elevation: bool) -> Result<Well, Misp
     }
     Ok(Well {
         level: r.level.0,
-        area,
+        shape,
+    })
+}
+
+/// A well's geometry: exactly one of `area`, `diameter` and `table`.
+fn well_shape(name: &str, r: &ReservoirSpec) -> Result<WellShape, Misplaced> {
+    let place = |field: &str| ["nodes", name, "reservoir", field].map(str::to_string);
+    let given = [r.area.is_some(), r.diameter.is_some(), r.table.is_some()];
+    if given.iter().filter(|g| **g).count() > 1 {
+        let second = ["area", "diameter", "table"]
+            .into_iter()
+            .zip(given)
+            .filter(|(_, g)| *g)
+            .nth(1)
+            .map_or("table", |(f, _)| f);
+        let [a, b, c, d] = place(second);
+        return Err(at(
+            &[&a, &b, &c, &d],
+            "give one of the well's 'area', 'diameter' or level–volume 'table', not several",
+        ));
+    }
+    if let Some(a) = r.area {
+        return Ok(WellShape::Prism { area: a.0 });
+    }
+    if let Some(d) = r.diameter {
+        let d = d.0.si();
+        if !(d.is_finite() && d > 0.0) {
+            return Err(at(
+                &["nodes", name, "reservoir", "diameter"],
+                format!("must be a positive length, got {d} m"),
+            ));
+        }
+        let area = Area::from_si(std::f64::consts::PI / 4.0 * d * d);
+        return Ok(WellShape::Prism { area });
+    }
+    let Some(rows) = &r.table else {
+        return Err(at(
+            &["nodes", name, "reservoir"],
+            format!(
+                "reservoir '{name}' needs its wetted cross-section: 'area' (e.g. 12 mm^2), a \
+                 cylinder 'diameter' (e.g. 5 mm) or a level–volume 'table' (e.g. \
+                 [[0 mm, 0 uL], [4 mm, 30 uL], [8 mm, 110 uL]])"
+            ),
+        ));
+    };
+    let rows = rows.iter().map(|(h, v)| (h.0.si(), v.0.si())).collect();
+    LevelTable::new(rows).map(WellShape::Table).map_err(|e| {
+        at(
+            &["nodes", name, "reservoir", "table"],
+            format!(
+                "{e} (rows are [level above the well's bottom, volume], counted from 0, \
+                 bottom first)"
+            ),
+        )
     })
 }
 

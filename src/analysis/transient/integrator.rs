@@ -12,29 +12,33 @@
 //! the estimate bounded on stiff and algebraic (C = 0) components. Dense output: the quadratic
 //! through the three stage values (third-order local accuracy, like the step).
 //!
-//! Trapped gas is a nonlinear storage: the stored volume q(x) = −k/(x + offset) (Boyle,
-//! p_abs·V_gas = k) replaces C·x in both stages, whose equations are then solved by a
-//! simplified Newton iteration on the same matrix M = C_ref + (γh/2)·A (Hairer & Wanner,
-//! *Solving Ordinary Differential Equations II*, 2nd ed. 1996, §IV.8: simplified Newton for
-//! implicit stages, iterated until the correction is far below the tolerance). C_ref holds the
-//! gases' compliances k/p_abs² at the step where M was factorised; M is factorised again when
-//! the step changes or a gas's compliance has moved more than [`REFRESH`] from C_ref. The
-//! iteration converges to the exact stage solution whatever C_ref is (C_ref only sets how fast:
-//! the contraction rate is about |1 − C/C_ref|), so this rule costs factorisations, not
-//! accuracy. Without gas every stage is linear and solved once, as before.
+//! Trapped gas and wells with a level–volume table are nonlinear storages
+//! ([`NonlinearStore`]): the stored volume q(x) (Boyle's −k/(x + offset) for a gas,
+//! p_abs·V_gas = k; the table's V(h) for a well) replaces C·x in both stages, whose equations
+//! are then solved by a simplified Newton iteration on the same matrix M = C_ref + (γh/2)·A
+//! (Hairer & Wanner, *Solving Ordinary Differential Equations II*, 2nd ed. 1996, §IV.8:
+//! simplified Newton for implicit stages, iterated until the correction is far below the
+//! tolerance). C_ref holds the stores' reference compliances at the step where M was
+//! factorised (a gas's k/p_abs²; a table well's largest cross-section near its level, see
+//! [`NonlinearStore::reference`]); M is factorised again when the step changes or a reference
+//! compliance has moved more than [`REFRESH`] from C_ref. The iteration converges to the exact
+//! stage solution whatever C_ref is (C_ref only sets how fast: the contraction rate is about
+//! |1 − C/C_ref|), so this rule costs factorisations, not accuracy. Without nonlinear stores
+//! every stage is linear and solved once.
 //!
 //! The integrator sees only a pattern, matrix values, a diagonal C and a forcing: it knows
 //! nothing of chips. The forcing may switch at breakpoints; the integrator lands on each,
 //! evaluates the step that ends there with the values before the switch, and restores
 //! consistency of the algebraic unknowns after it.
 
+use crate::level_table::LevelTable;
 use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky, SymmetricPattern};
 
 /// γ = 2 − √2: both stages share the matrix C + (γh/2)·A (Hosea & Shampine 1996).
 const GAMMA: f64 = 2.0 - std::f64::consts::SQRT_2;
 
-/// A gas's compliance may move this far (relative) from the one M was factorised with before M
-/// is factorised again.
+/// A store's reference compliance may move this far (relative) from the one M was factorised
+/// with before M is factorised again.
 pub const REFRESH: f64 = 0.2;
 
 /// Simplified Newton iterations per stage before the step is retried shorter.
@@ -45,29 +49,173 @@ const NEWTON_ITERATIONS: usize = 12;
 /// we stop later and need none).
 const NEWTON_STOP: f64 = 1e-3;
 
-/// A trapped gas at an unknown: with p_abs = x + `offset` its volume is k/p_abs (Boyle), so the
-/// liquid it has taken in is q(x) = −k/(x + offset) + const, and its compliance
-/// dq/dx = k/(x + offset)².
-#[derive(Clone, Copy, Debug, PartialEq)]
-pub struct GasStore {
+/// A storage whose stored volume is a nonlinear function q(x) of its unknown.
+#[derive(Clone, Debug, PartialEq)]
+pub struct NonlinearStore {
     pub unknown: usize,
-    /// p_abs·V_gas [Pa·m³].
-    pub k: f64,
-    /// Absolute pressure minus the unknown [Pa].
-    pub offset: f64,
+    pub law: StoreLaw,
 }
 
-impl GasStore {
-    /// Stored volume q(x), up to a constant; `None` when the absolute pressure is not positive.
+/// The laws of [`NonlinearStore`].
+#[derive(Clone, Debug, PartialEq)]
+pub enum StoreLaw {
+    /// A trapped gas: with p_abs = x + `offset` its volume is k/p_abs (Boyle), so the liquid it
+    /// has taken in is q(x) = −k/(x + offset) + const, and its compliance dq/dx =
+    /// k/(x + offset)².
+    Gas {
+        /// p_abs·V_gas [Pa·m³].
+        k: f64,
+        /// Absolute pressure minus the unknown [Pa].
+        offset: f64,
+    },
+    /// An open well with a level–volume table: the surface stands h = (x − `empty`)/`rho_g`
+    /// above the bottom, so q(x) = V(h) and dq/dx = A(h)/(ρ·g).
+    Well {
+        table: LevelTable,
+        /// The unknown's value with the well just empty: p_gas + ρ·g·bottom [Pa].
+        empty: f64,
+        /// ρ·g [Pa/m].
+        rho_g: f64,
+    },
+}
+
+impl NonlinearStore {
+    /// Stored volume q(x), up to a constant; `None` when a gas's absolute pressure is not
+    /// positive.
     fn stored(&self, x: f64) -> Option<f64> {
-        let p = x + self.offset;
-        (p > 0.0).then(|| -self.k / p)
+        match &self.law {
+            StoreLaw::Gas { k, offset } => {
+                let p = x + offset;
+                (p > 0.0).then(|| -k / p)
+            }
+            StoreLaw::Well {
+                table,
+                empty,
+                rho_g,
+            } => Some(table.volume((x - empty) / rho_g)),
+        }
     }
 
-    fn compliance(&self, x: f64) -> f64 {
-        let p = x + self.offset;
-        self.k / (p * p)
+    /// dq/dx at x: a gas's k/(x + offset)², a table well's A(h)/(ρ·g) (the cross-section of
+    /// the row interval holding its level; at a row, the interval above).
+    fn slope(&self, x: f64) -> f64 {
+        match &self.law {
+            StoreLaw::Gas { k, offset } => {
+                let p = x + offset;
+                k / (p * p)
+            }
+            StoreLaw::Well {
+                table,
+                empty,
+                rho_g,
+            } => table.area((x - empty) / rho_g) / rho_g,
+        }
     }
+}
+
+/// Most stores × unknowns for which the stage iteration keeps M⁻¹ of every store's unit
+/// vector (the exact Newton correction, [`Woodbury`]); above it the iteration is the
+/// simplified one.
+const WOODBURY_LIMIT: usize = 4_000_000;
+
+/// The columns Z = M⁻¹·U of the stores' unit vectors U and S = Uᵀ·Z, for exact Newton
+/// corrections on the factor of M = C_ref + s·A: the stage Jacobian is J = M + U·D·Uᵀ with
+/// D = diag(q'(y) − C_ref) on the stores only, so by the Sherman–Morrison–Woodbury identity
+/// (Hager, "Updating the inverse of a matrix", SIAM Review 31, 1989)
+///   J⁻¹·r = v − Z·(I + D·S)⁻¹·D·Uᵀ·v,  v = M⁻¹·r,
+/// one extra k×k solve per iteration. A table well's cross-section jumps at its rows, where
+/// the simplified iteration (contraction |1 − C/C_ref|) would crawl or diverge; the exact one
+/// takes one or two iterations per row crossed.
+struct Woodbury {
+    /// Z, column-major: column j is M⁻¹·e(store j).
+    z: Vec<f64>,
+    /// S = Uᵀ·Z, row-major k×k.
+    s: Vec<f64>,
+}
+
+impl Woodbury {
+    fn new(
+        factor: &Cholesky<'_>,
+        stores: &[NonlinearStore],
+        n: usize,
+    ) -> Result<Option<Self>, SolverError> {
+        let k = stores.len();
+        if k == 0 || n.saturating_mul(k) > WOODBURY_LIMIT {
+            return Ok(None);
+        }
+        let mut z = vec![0.0; n * k];
+        for (j, st) in stores.iter().enumerate() {
+            z[j * n + st.unknown] = 1.0;
+        }
+        factor.solve_in_place(&mut z)?;
+        let mut s = vec![0.0; k * k];
+        for (i, si) in stores.iter().enumerate() {
+            for j in 0..k {
+                s[i * k + j] = z[j * n + si.unknown];
+            }
+        }
+        Ok(Some(Woodbury { z, s }))
+    }
+
+    /// v ← J⁻¹·r from v = M⁻¹·r, with d[j] = q'(y) − C_ref at store j; false if I + D·S is
+    /// singular.
+    fn correct(&self, stores: &[NonlinearStore], d: &[f64], v: &mut [f64]) -> bool {
+        let k = stores.len();
+        let n = v.len();
+        let mut m = vec![0.0; k * k];
+        let mut w: Vec<f64> = (0..k).map(|i| d[i] * v[stores[i].unknown]).collect();
+        for i in 0..k {
+            for j in 0..k {
+                m[i * k + j] = d[i] * self.s[i * k + j] + if i == j { 1.0 } else { 0.0 };
+            }
+        }
+        if !solve_dense(&mut m, &mut w, k) {
+            return false;
+        }
+        for (j, wj) in w.iter().enumerate() {
+            if *wj != 0.0 {
+                let col = &self.z[j * n..(j + 1) * n];
+                for (vi, zi) in v.iter_mut().zip(col) {
+                    *vi -= wj * zi;
+                }
+            }
+        }
+        true
+    }
+}
+
+/// Solve the dense k×k system m·x = b in place (Gaussian elimination with partial pivoting);
+/// false when a pivot vanishes.
+fn solve_dense(m: &mut [f64], b: &mut [f64], k: usize) -> bool {
+    for c in 0..k {
+        let p = (c..k)
+            .max_by(|&i, &j| m[i * k + c].abs().total_cmp(&m[j * k + c].abs()))
+            .unwrap_or(c);
+        if m[p * k + c] == 0.0 || !m[p * k + c].is_finite() {
+            return false;
+        }
+        if p != c {
+            for j in 0..k {
+                m.swap(p * k + j, c * k + j);
+            }
+            b.swap(p, c);
+        }
+        for i in c + 1..k {
+            let f = m[i * k + c] / m[c * k + c];
+            for j in c..k {
+                m[i * k + j] -= f * m[c * k + j];
+            }
+            b[i] -= f * b[c];
+        }
+    }
+    for c in (0..k).rev() {
+        let mut x = b[c];
+        for j in c + 1..k {
+            x -= m[c * k + j] * b[j];
+        }
+        b[c] = x / m[c * k + c];
+    }
+    true
 }
 
 /// Why a time integration stopped.
@@ -86,13 +234,13 @@ pub enum IntegrationError {
 
 /// The assembled system: `a` are the values of A on `pattern`, `c[u]` the storage of unknown u
 /// (zero where the unknown is algebraic), `diag[u]` the slot of u's diagonal entry. The
-/// unknowns in `gas` store q(x) instead of c·x ([`GasStore`]; their `c` is ignored).
+/// unknowns in `stores` store q(x) instead of c·x ([`NonlinearStore`]; their `c` is ignored).
 pub struct LinearDae<'a> {
     pub pattern: &'a SymmetricPattern,
     pub a: &'a [f64],
     pub diag: &'a [usize],
     pub c: &'a [f64],
-    pub gas: &'a [GasStore],
+    pub stores: &'a [NonlinearStore],
 }
 
 /// The right-hand side b(t). `before` asks for the value just before `t` when a drive
@@ -192,22 +340,22 @@ impl Work<'_> {
         }
     }
 
-    /// The storage diagonal at state x: c, with each gas's compliance at x.
+    /// The storage diagonal at state x: c, with each nonlinear store's dq/dx at x.
     fn compliances(&self, x: &[f64]) -> Vec<f64> {
         let mut c = self.dae.c.to_vec();
-        for g in self.dae.gas {
-            c[g.unknown] = g.compliance(x[g.unknown]);
+        for g in self.dae.stores {
+            c[g.unknown] = g.slope(x[g.unknown]);
         }
         c
     }
 
-    /// Stored volume of every unknown at x into `out` (c·x, q(x) for gases); false when a
-    /// gas's absolute pressure is not positive.
+    /// Stored volume of every unknown at x into `out` (c·x, q(x) for nonlinear stores); false
+    /// when a gas's absolute pressure is not positive.
     fn stored(&self, x: &[f64], out: &mut [f64]) -> bool {
         for (u, o) in out.iter_mut().enumerate() {
             *o = self.dae.c[u] * x[u];
         }
-        for g in self.dae.gas {
+        for g in self.dae.stores {
             match g.stored(x[g.unknown]) {
                 Some(q) => out[g.unknown] = q,
                 None => return false,
@@ -221,7 +369,7 @@ impl Work<'_> {
     #[allow(clippy::too_many_arguments)]
     fn newton(
         &self,
-        factor: &Cholesky<'_>,
+        m: &Factored<'_>,
         s: f64,
         rhs: &[f64],
         y: &mut [f64],
@@ -229,9 +377,11 @@ impl Work<'_> {
         scratch: &mut [f64],
         ay: &mut [f64],
     ) -> Result<bool, SolverError> {
-        if self.dae.gas.is_empty() {
+        let stores = self.dae.stores;
+        if stores.is_empty() {
             return Ok(true);
         }
+        let mut d = vec![0.0; stores.len()];
         for _ in 0..NEWTON_ITERATIONS {
             if !self.stored(y, scratch) {
                 return Ok(false);
@@ -240,7 +390,15 @@ impl Work<'_> {
             for u in 0..y.len() {
                 scratch[u] += s * ay[u] - rhs[u];
             }
-            factor.solve_in_place(scratch)?;
+            m.factor.solve_in_place(scratch)?;
+            if let Some(exact) = &m.exact {
+                for (dj, st) in d.iter_mut().zip(stores) {
+                    *dj = st.slope(y[st.unknown]) - m.c_ref[st.unknown];
+                }
+                if d.iter().any(|v| *v != 0.0) && !exact.correct(stores, &d, scratch) {
+                    return Ok(false);
+                }
+            }
             let mut norm = 0.0f64;
             for u in 0..y.len() {
                 y[u] -= scratch[u];
@@ -255,6 +413,14 @@ impl Work<'_> {
         }
         Ok(false)
     }
+}
+
+/// A factor of M = C_ref + s·A for steps of length `h`, with what the stage iteration needs.
+struct Factored<'s> {
+    h: f64,
+    c_ref: Vec<f64>,
+    factor: Cholesky<'s>,
+    exact: Option<Woodbury>,
 }
 
 /// Make the algebraic unknowns consistent with the differential ones at time t by one backward
@@ -321,7 +487,7 @@ pub fn integrate(
     let (mut bn, mut bg, mut b1) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
     let (mut fnn, mut fg, mut f1) = (vec![0.0; n], vec![0.0; n], vec![0.0; n]);
     // The factor of M, its step and the storage diagonal C_ref it was made with.
-    let mut factored: Option<(f64, Vec<f64>, Cholesky<'_>)> = None;
+    let mut factored: Option<Factored<'_>> = None;
     let mut xg = vec![0.0; n];
     let mut x1 = vec![0.0; n];
     let mut e = vec![0.0; n];
@@ -342,20 +508,26 @@ pub fn integrate(
             return Err(IntegrationError::StepTooSmall { time: t, step: hs });
         }
         let fresh = |c_ref: &[f64]| {
-            dae.gas.iter().all(|g| {
-                let c = g.compliance(x[g.unknown]);
+            dae.stores.iter().all(|g| {
+                let c = g.slope(x[g.unknown]);
                 (c / c_ref[g.unknown] - 1.0).abs() <= REFRESH
             })
         };
-        let factor = match factored.take() {
-            Some((hf, c_ref, f)) if hf == hs && fresh(&c_ref) => factored.insert((hf, c_ref, f)),
+        let m = match factored.take() {
+            Some(m) if m.h == hs && fresh(&m.c_ref) => factored.insert(m),
             _ => {
                 let c_ref = w.compliances(&x);
-                let f = w.factor(0.5 * GAMMA * hs, &c_ref)?;
-                factored.insert((hs, c_ref, f))
+                let factor = w.factor(0.5 * GAMMA * hs, &c_ref)?;
+                let exact = Woodbury::new(&factor, dae.stores, n)?;
+                factored.insert(Factored {
+                    h: hs,
+                    c_ref,
+                    factor,
+                    exact,
+                })
             }
         };
-        let (c_ref, factor) = (&factor.1, &factor.2);
+        let (c_ref, factor) = (&m.c_ref, &m.factor);
         forcing.rhs(t, false, &mut bn);
         forcing.rhs(t + GAMMA * hs, false, &mut bg);
         forcing.rhs(t1, lands && stop + 1 < stops.len(), &mut b1);
@@ -367,16 +539,16 @@ pub fn integrate(
         for u in 0..n {
             xg[u] = dae.c[u] * x[u] + half * (fnn[u] + bg[u]);
         }
-        for g in dae.gas {
+        for g in dae.stores {
             let u = g.unknown;
             xg[u] = c_ref[u] * x[u] + half * (fnn[u] + bg[u]);
         }
         factor.solve_in_place(&mut xg)?;
-        if converged && !dae.gas.is_empty() {
+        if converged && !dae.stores.is_empty() {
             for u in 0..n {
                 rhs[u] = q0[u] + half * (fnn[u] + bg[u]);
             }
-            converged = w.newton(factor, half, &rhs, &mut xg, &options, &mut scratch, &mut ay)?;
+            converged = w.newton(m, half, &rhs, &mut xg, &options, &mut scratch, &mut ay)?;
         }
         // BDF2 stage: q(x1) + half·A·x1 = a1·q(xg) − a0·q(x) + half·b(t1), from x1 = xg.
         let a1 = 1.0 / (GAMMA * (2.0 - GAMMA));
@@ -384,19 +556,19 @@ pub fn integrate(
         for u in 0..n {
             x1[u] = dae.c[u] * (a1 * xg[u] - a0 * x[u]) + half * b1[u];
         }
-        if converged && !dae.gas.is_empty() {
+        if converged && !dae.stores.is_empty() {
             converged = w.stored(&xg, &mut qg);
             for u in 0..n {
                 rhs[u] = a1 * qg[u] - a0 * q0[u] + half * b1[u];
             }
-            for g in dae.gas {
+            for g in dae.stores {
                 let u = g.unknown;
                 x1[u] = rhs[u] + c_ref[u] * xg[u] - qg[u];
             }
         }
         factor.solve_in_place(&mut x1)?;
-        if converged && !dae.gas.is_empty() {
-            converged = w.newton(factor, half, &rhs, &mut x1, &options, &mut scratch, &mut ay)?;
+        if converged && !dae.stores.is_empty() {
+            converged = w.newton(m, half, &rhs, &mut x1, &options, &mut scratch, &mut ay)?;
         }
         if !converged {
             // The stage equations were not solved: retry shorter with a fresh factor.

@@ -5,8 +5,9 @@
 //! platform tilts; its level is (P − p_gas)/(ρ·g). Storage per unknown is
 //! [`Storage`]'s compliance: A/(ρ·g) for a well, the given value for a compliance, 0 elsewhere
 //! (an algebraic unknown); trapped gas follows Boyle's law p_abs·V = p_abs,0·V₀ with its
-//! compliance p_abs,0·V₀/p_abs² at the current pressure, not linearised (a nonlinear storage
-//! in the integrator, [`integrator::GasStore`]). With algebraic unknowns the
+//! compliance p_abs,0·V₀/p_abs² at the current pressure, not linearised, and a well with a
+//! level–volume table stores V(h) at its level h (both nonlinear storages in the integrator,
+//! [`integrator::NonlinearStore`]). With algebraic unknowns the
 //! system is a DAE of index 1. Integrated by TR-BDF2 ([`integrator`]).
 //!
 //! Drives in time: a flow port or pressure port switched on at t₀ (off before: flow 0, or
@@ -20,8 +21,8 @@ pub mod events;
 pub mod integrator;
 
 use crate::analysis::kirchhoff::{conductances, drive_values, KirchhoffSystem};
-use crate::network::{Network, NodeId, Port, Storage, STANDARD_ATMOSPHERE};
-use integrator::{Forcing, GasStore, LinearDae, Options};
+use crate::network::{Network, Node, NodeId, Port, Storage, Well, WellShape, STANDARD_ATMOSPHERE};
+use integrator::{Forcing, LinearDae, NonlinearStore, Options, StoreLaw};
 
 pub use crate::chip::drives::{Drives, Profile, Rocking, SwitchOn};
 
@@ -88,8 +89,8 @@ pub struct Model<'n> {
     a: Vec<f64>,
     diag: Vec<usize>,
     c: Vec<f64>,
-    /// Trapped gases: Boyle's law about their initial state.
-    gas: Vec<GasStore>,
+    /// Trapped gases (Boyle's law about their initial state) and table wells (V(h)).
+    stores: Vec<NonlinearStore>,
     drives: Drives,
     base: Vec<f64>,
     arm: Vec<f64>,
@@ -116,8 +117,12 @@ impl<'n> Model<'n> {
         let c = (0..system.dim())
             .map(|u| {
                 let node = NodeId(system.node(u));
-                match network.nodes[node].storage {
-                    Some(Storage::Well(w)) => w.area.si() / rho_g,
+                let n = &network.nodes[node];
+                match &n.storage {
+                    Some(Storage::Well(w)) => {
+                        let height = (initial[node.0] - imposed_gas(n)) / rho_g - n.elevation.si();
+                        w.area_at(height) / rho_g
+                    }
                     Some(Storage::Gas { volume }) => {
                         let p = network.static_pressure(node, initial[node.0]);
                         volume.si() / (STANDARD_ATMOSPHERE + p)
@@ -127,20 +132,32 @@ impl<'n> Model<'n> {
                 }
             })
             .collect();
-        let gas = (0..system.dim())
+        let stores = (0..system.dim())
             .filter_map(|u| {
                 let node = NodeId(system.node(u));
-                let Some(Storage::Gas { volume }) = network.nodes[node].storage else {
-                    return None;
+                let n = &network.nodes[node];
+                let law = match &n.storage {
+                    Some(Storage::Gas { volume }) => {
+                        // p_abs = STANDARD_ATMOSPHERE + static pressure = x + offset.
+                        let offset = network.static_pressure(node, 0.0) + STANDARD_ATMOSPHERE;
+                        let p0 =
+                            network.static_pressure(node, initial[node.0]) + STANDARD_ATMOSPHERE;
+                        StoreLaw::Gas {
+                            k: p0 * volume.si(),
+                            offset,
+                        }
+                    }
+                    Some(Storage::Well(Well {
+                        shape: WellShape::Table(table),
+                        ..
+                    })) => StoreLaw::Well {
+                        table: table.clone(),
+                        empty: imposed_gas(n) + rho_g * n.elevation.si(),
+                        rho_g,
+                    },
+                    _ => return None,
                 };
-                // p_abs = STANDARD_ATMOSPHERE + static pressure = x + offset.
-                let offset = network.static_pressure(node, 0.0) + STANDARD_ATMOSPHERE;
-                let p0 = network.static_pressure(node, initial[node.0]) + STANDARD_ATMOSPHERE;
-                Some(GasStore {
-                    unknown: u,
-                    k: p0 * volume.si(),
-                    offset,
-                })
+                Some(NonlinearStore { unknown: u, law })
             })
             .collect();
         let mut arm = vec![0.0; network.nodes.len()];
@@ -156,7 +173,7 @@ impl<'n> Model<'n> {
             a,
             diag,
             c,
-            gas,
+            stores,
             drives,
             base: drive_values(network),
             arm,
@@ -200,7 +217,7 @@ impl<'n> Model<'n> {
         (0..self.system.dim())
             .map(|u| {
                 let i = self.system.node(u);
-                match (&self.drives.rocking, self.network.nodes[NodeId(i)].storage) {
+                match (&self.drives.rocking, &self.network.nodes[NodeId(i)].storage) {
                     (Some(r), Some(Storage::Well(_))) if !self.dry[i] => {
                         rho_g * r.rise(self.arm[i], t)
                     }
@@ -253,6 +270,14 @@ impl Forcing for Model<'_> {
     }
 }
 
+/// The gauge gas pressure above a well (its port's setting) [Pa]; 0 for other nodes.
+fn imposed_gas(n: &Node) -> f64 {
+    match n.port {
+        Port::Pressure(p) => p.si(),
+        _ => 0.0,
+    }
+}
+
 /// The steady state the run starts from: the network at t = 0 (switched drives off, wells at
 /// their levels), piezometric node pressures.
 fn initial_pressures(network: &Network, drives: &Drives) -> Result<Vec<f64>, TransientError> {
@@ -272,21 +297,28 @@ struct WellSlot {
     gas: f64,
     /// The well's bottom (its node's elevation) [m].
     bottom: f64,
-    /// A/(ρ·g): the storage while it holds liquid.
+    /// A/(ρ·g) at the bottom: the storage as it fills again.
     storage: f64,
+    /// Height of a table's last row above the bottom: the well is full there [m]
+    /// (infinite for a prism).
+    top: f64,
 }
 
 impl Model<'_> {
     fn wells(&self) -> Vec<WellSlot> {
         let rho_g = self.network.specific_weight();
         (self.network.nodes.iter().enumerate())
-            .filter_map(|(i, n)| match (n.storage, n.port) {
+            .filter_map(|(i, n)| match (&n.storage, n.port) {
                 (Some(Storage::Well(w)), Port::Pressure(gas)) => Some(WellSlot {
                     node: NodeId(i),
                     unknown: self.system.unknown(i)?,
                     gas: gas.si(),
                     bottom: n.elevation.si(),
-                    storage: w.area.si() / rho_g,
+                    storage: w.area_at(0.0) / rho_g,
+                    top: match &w.shape {
+                        WellShape::Table(t) => t.top(),
+                        WellShape::Prism { .. } => f64::INFINITY,
+                    },
                 }),
                 _ => None,
             })
@@ -359,6 +391,17 @@ fn first_crossing(lo: f64, hi: f64, f: impl Fn(f64) -> f64) -> f64 {
         }
     }
     b
+}
+
+/// What a well does within a step.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Turn {
+    /// Runs dry.
+    Dry,
+    /// Takes liquid in again.
+    Fill,
+    /// Fills past the last row of its table.
+    Overflow,
 }
 
 /// Most switches of wells (dry, filled again) in one run before it is refused as chattering.
@@ -452,15 +495,20 @@ pub fn evolve_with_step_limit(
             max_step,
             ..Options::default()
         };
-        // The first well to run dry or fill again within a step: (time, well, now dry).
-        let mut hit: Option<(f64, usize, bool)> = None;
+        // The first well to run dry, fill again or overflow within a step.
+        let mut hit: Option<(f64, usize, Turn)> = None;
+        // A dry well stores nothing until it fills again.
+        let active: Vec<NonlinearStore> = (model.stores.iter())
+            .filter(|st| !model.dry[model.system.node(st.unknown)])
+            .cloned()
+            .collect();
         let traj = {
             let dae = LinearDae {
                 pattern: model.system.pattern(),
                 a: &model.a,
                 diag: &model.diag,
                 c: &model.c,
-                gas: &model.gas,
+                stores: &active,
             };
             let m = &model;
             let mut watch = |step: &Step<'_>| -> Option<f64> {
@@ -482,7 +530,20 @@ pub fn evolve_with_step_limit(
                             first_crossing(step.t0, t1, f)
                         };
                         if hit.is_none_or(|(th, _, _)| tc < th) {
-                            hit = Some((tc, k, wet));
+                            hit = Some((tc, k, if wet { Turn::Dry } else { Turn::Fill }));
+                        }
+                    }
+                    // A table well filling past its last row.
+                    let full =
+                        |t: f64| m.empty_pressure(w, t, true) + rho_g * w.top - step.at(u, t);
+                    if wet && w.top.is_finite() && full(t1) < 0.0 {
+                        let tc = if full(step.t0) < 0.0 {
+                            step.t0
+                        } else {
+                            first_crossing(step.t0, t1, full)
+                        };
+                        if hit.is_none_or(|(th, _, _)| tc < th) {
+                            hit = Some((tc, k, Turn::Overflow));
                         }
                     }
                 }
@@ -531,10 +592,20 @@ pub fn evolve_with_step_limit(
         ev.factorizations += traj.factorizations;
         x = traj.last;
         t = traj.end;
-        let Some((tc, k, to_dry)) = hit else {
+        let Some((tc, k, turn)) = hit else {
             break;
         };
         let w = wells[k];
+        if turn == Turn::Overflow {
+            return Err(TransientError::Bad(format!(
+                "well '{}' fills to the last row of its level–volume table ({} mm above its \
+                 bottom) at t = {tc:.6e} s and would overflow; extend the table to the well's \
+                 brim, or shorten the run",
+                network.nodes[w.node].name,
+                w.top * 1e3
+            )));
+        }
+        let to_dry = turn == Turn::Dry;
         if ev.switches.len() >= MAX_SWITCHES {
             return Err(TransientError::Bad(format!(
                 "wells ran dry and filled again more than {MAX_SWITCHES} times; the run \
