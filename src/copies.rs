@@ -56,8 +56,30 @@ fn length_text(x: f64, step: Option<f64>, digits: usize, scale: f64, unit: &str)
     }
 }
 
+/// Settings smaller than this fraction of the largest setting of their kind (pressure or
+/// flow) are rounding residue of the solve and are written as 0.
+const RESIDUE: f64 = 1e-12;
+
+/// `x`, or 0 when it is below [`RESIDUE`] of `largest`.
+fn without_residue(x: f64, largest: f64) -> f64 {
+    if x.abs() < RESIDUE * largest {
+        0.0
+    } else {
+        x
+    }
+}
+
 /// The edits that write tuned drive settings with `digits` significant digits.
 pub fn tuned_edits(chip: &Chip, r: &TuneResult, digits: usize) -> Vec<Edit> {
+    let is_flow = |s: &crate::analysis::design::Setting| {
+        matches!(chip.network.nodes[s.node].port, Port::Flow(_))
+    };
+    let largest = |flow: bool| {
+        (r.settings.iter())
+            .filter(|s| is_flow(s) == flow)
+            .fold(0.0f64, |m, s| m.max(s.after.abs()))
+    };
+    let (largest_flow, largest_pressure) = (largest(true), largest(false));
     r.settings
         .iter()
         .map(|s| {
@@ -67,12 +89,21 @@ pub fn tuned_edits(chip: &Chip, r: &TuneResult, digits: usize) -> Vec<Edit> {
                     "flow",
                     format!(
                         "{} uL/min",
-                        sig(units::display::ul_per_min(s.after), digits)
+                        sig(
+                            units::display::ul_per_min(without_residue(s.after, largest_flow)),
+                            digits
+                        )
                     ),
                 ),
                 _ => (
                     "pressure",
-                    format!("{} mbar", sig(units::display::mbar(s.after), digits)),
+                    format!(
+                        "{} mbar",
+                        sig(
+                            units::display::mbar(without_residue(s.after, largest_pressure)),
+                            digits
+                        )
+                    ),
                 ),
             };
             edit(["nodes", &node.name, key], NewValue::Scalar(value))
@@ -259,4 +290,22 @@ pub fn edited_chip(chip: &Chip, edits: &[Edit]) -> Result<(String, Chip), Error>
 /// Write an edited chip text (from [`edited_chip`]) to the new file `out`.
 pub fn write_copy(text: &str, out: &Path, protected: &[&Path]) -> Result<(), Error> {
     output::write_new_file(out, text.as_bytes(), protected)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn rounding_residue_is_written_as_zero() {
+        // A solve leaves ~1e-16 of the largest setting where the exact answer is 0; written
+        // as is it would read "0.0000000000000001 mbar".
+        assert_eq!(without_residue(1e-16, 5_000.0), 0.0);
+        assert_eq!(without_residue(-3e-13, 1.0), 0.0);
+        assert_eq!(without_residue(2e-6, 5_000.0), 2e-6);
+        assert_eq!(
+            sig(units::display::mbar(without_residue(1e-16, 500.0)), 6),
+            "0"
+        );
+    }
 }
