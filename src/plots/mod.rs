@@ -21,7 +21,7 @@ mod time;
 pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT};
 pub use margins::MarginChart;
 pub use outlets::{OutletChart, OutletSeries};
-pub use pressure::{PressurePath, PressurePicture};
+pub use pressure::{PressurePath, PressurePicture, DRAWN_PATHS};
 pub use raster::PNG_SCALE;
 pub use section_field::SectionPicture;
 pub use time::{default_channels, Curve, TimePicture, DEFAULT_CURVES};
