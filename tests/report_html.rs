@@ -301,13 +301,16 @@ fn ink(bytes: &[u8]) -> (usize, usize, Vec<Vec<bool>>) {
     let mut buf = vec![0; reader.output_buffer_size()];
     let info = reader.next_frame(&mut buf).unwrap();
     let (w, h) = (info.width as usize, info.height as usize);
-    let mut dark = vec![vec![false; h]; w];
-    for y in 0..h {
-        for x in 0..w {
-            let i = (y * w + x) * 3;
-            dark[x][y] = (buf[i] as u32 + buf[i + 1] as u32 + buf[i + 2] as u32) < 3 * 200;
-        }
-    }
+    let dark = (0..w)
+        .map(|x| {
+            (0..h)
+                .map(|y| {
+                    let i = (y * w + x) * 3;
+                    (buf[i] as u32 + buf[i + 1] as u32 + buf[i + 2] as u32) < 3 * 200
+                })
+                .collect()
+        })
+        .collect();
     (w, h, dark)
 }
 

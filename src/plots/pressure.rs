@@ -28,6 +28,13 @@ pub const DRAWN_PATHS: usize = 8;
 /// first and last nodes only.
 const NAMED_POINTS: usize = 16;
 
+/// Paths with more points than this get markers at their ends only.
+const MARKED_POINTS: usize = 200;
+
+/// Lines are drawn through at most about this many points: a path's pressure falls
+/// monotonically along the flow, so evenly spaced points keep its shape at picture resolution.
+const LINE_POINTS: usize = 2000;
+
 /// One traced path: its label, (distance [mm], pressure [mbar]) points and the node at each.
 #[derive(Clone, Debug, PartialEq)]
 pub struct PressurePath {
@@ -306,9 +313,17 @@ impl Figure for PressurePicture {
             .map_err(drawing)?;
         for (i, path) in self.paths.iter().enumerate() {
             let colour = LINE_COLOURS[i % LINE_COLOURS.len()];
+            let n = path.points.len();
+            let stride = n.div_ceil(LINE_POINTS).max(1);
+            let line = path
+                .points
+                .iter()
+                .enumerate()
+                .filter(|(j, _)| j % stride == 0 || j + 1 == n)
+                .map(|(_, &p)| p);
             chart
                 .draw_series(LineSeries::new(
-                    path.points.clone(),
+                    line,
                     ShapeStyle::from(&colour).stroke_width(2),
                 ))
                 .map_err(drawing)?;
@@ -316,7 +331,9 @@ impl Figure for PressurePicture {
                 .draw_series(
                     path.points
                         .iter()
-                        .map(|&p| Circle::new(p, 3, colour.filled())),
+                        .enumerate()
+                        .filter(|(j, _)| n <= MARKED_POINTS || *j == 0 || j + 1 == n)
+                        .map(|(_, &p)| Circle::new(p, 3, colour.filled())),
                 )
                 .map_err(drawing)?;
         }
