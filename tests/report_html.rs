@@ -158,9 +158,15 @@ fn page_holds_every_table_picture_and_the_input() {
             let holder = svg.parent().unwrap();
             assert_eq!(holder.attribute("class"), Some("picture"));
             let figure = holder.parent().unwrap();
-            assert!(figure
+            let caption = figure
                 .children()
-                .any(|c| c.has_tag_name("figcaption") && c.text().is_some()));
+                .find(|c| c.has_tag_name("figcaption"))
+                .and_then(|c| c.text())
+                .expect("a caption");
+            assert!(
+                caption.len() > 20 && !caption.contains("  "),
+                "{example}: {caption:?}"
+            );
         }
         assert!(html.contains(".picture{overflow-x:auto") && html.contains("max-width:none"));
         // The input file, collapsed, byte for byte.

@@ -126,13 +126,15 @@ pub fn write(
     let splits = plots::ChipPicture::new(chip, state, colour);
     pictures.push((
         format!(
-            "Flow split: line width ∝ |flow|, arrows show direction; channels coloured by              {coloured}."
+            "Flow split: line width ∝ |flow|, arrows show direction; channels coloured by \
+             {coloured}."
         ),
         folder.picture("splits", &splits)?,
     ));
     let pressure = plots::PressurePicture::new(chip, state);
     pictures.push((
-        "Pressure along the inlet–outlet paths (the largest pressure drops; node names at          the markers)."
+        "Pressure along the inlet–outlet paths (the largest pressure drops; node names at \
+         the markers)."
             .into(),
         folder.picture("pressure", &pressure)?,
     ));
