@@ -293,7 +293,7 @@ impl Figure for PressurePicture {
         };
         let mut chart = ChartBuilder::on(&plot_area)
             .margin(20)
-            .caption(&self.title, (super::FONT, 18))
+            .caption(&self.title, (super::FONT, 20))
             .x_label_area_size(50)
             .y_label_area_size(75)
             .build_cartesian_2d(0.0..xmax * 1.04, ymin..ymax)
@@ -307,8 +307,8 @@ impl Figure for PressurePicture {
                 "distance along the channels [mm]"
             })
             .y_desc("pressure [mbar]")
-            .label_style((super::FONT, 13))
-            .axis_desc_style((super::FONT, 14))
+            .label_style((super::FONT, 15))
+            .axis_desc_style((super::FONT, 16))
             .draw()
             .map_err(drawing)?;
         for (i, path) in self.paths.iter().enumerate() {
@@ -340,7 +340,7 @@ impl Figure for PressurePicture {
         // Node names at the markers, in path order; a name that would overlap one already
         // written (or repeat the same node at the same place) is left out.
         let mut placed: Vec<(i32, i32, i32, i32)> = Vec::new();
-        let style = text_style(12, INK);
+        let style = text_style(14, INK);
         for path in &self.paths {
             let last = path.points.len().saturating_sub(1);
             for (j, (&pt, name)) in path.points.iter().zip(&path.nodes).enumerate() {
@@ -380,14 +380,14 @@ impl PressurePicture {
         area.draw(&Text::new(
             "path (inlet → outlet), drop",
             (8, y - 26),
-            text_style(13, INK),
+            text_style(15, INK),
         ))
         .map_err(drawing)?;
         if self.paths.is_empty() {
             area.draw(&Text::new(
                 "no inlet with flow",
                 (8, y),
-                text_style(12, INK),
+                text_style(14, INK),
             ))
             .map_err(drawing)?;
         }
@@ -398,36 +398,36 @@ impl PressurePicture {
                 ShapeStyle::from(&colour).stroke_width(3),
             ))
             .map_err(drawing)?;
-            area.draw(&Text::new(path.label.clone(), (36, y), text_style(12, INK)))
+            area.draw(&Text::new(path.label.clone(), (36, y), text_style(14, INK)))
                 .map_err(drawing)?;
             area.draw(&Text::new(
                 format!("{} mbar", display::fmt_sig(path.drop, 3)),
-                (36, y + 16),
-                text_style(11, INK),
+                (36, y + 19),
+                text_style(13, INK),
             ))
             .map_err(drawing)?;
-            y += 40;
+            y += 46;
         }
         if self.more > 0 {
             area.draw(&Text::new(
                 format!("+{} more paths with smaller drops", self.more),
                 (8, y),
-                text_style(12, INK),
+                text_style(14, INK),
             ))
             .map_err(drawing)?;
-            y += 20;
+            y += 24;
         }
         if self.on_chip {
             area.draw(&Text::new(
                 "from the first on-chip node:",
                 (8, y + 10),
-                text_style(11, INK),
+                text_style(13, INK),
             ))
             .map_err(drawing)?;
             area.draw(&Text::new(
                 "round tubing at the inlet left out",
-                (8, y + 26),
-                text_style(11, INK),
+                (8, y + 30),
+                text_style(13, INK),
             ))
             .map_err(drawing)?;
         }
