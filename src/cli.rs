@@ -1,9 +1,31 @@
 //! The `rillnet` command line: every command, option and value the binary accepts (clap
 //! derive). Parsing only; `main.rs` calls the library with what was parsed.
 
-use clap::{Parser, Subcommand, ValueEnum};
+use clap::{CommandFactory, Parser, Subcommand, ValueEnum};
 use rillnet::report::Format;
 use std::path::PathBuf;
+
+impl Cli {
+    /// Parse the command line, and refuse (exit code 2, clap's usage message) an option
+    /// given to a picture it does not apply to.
+    pub fn parse_checked() -> Cli {
+        let cli = Cli::parse();
+        if let Command::Plot {
+            show, skip_tubing, ..
+        } = &cli.command
+        {
+            if *skip_tubing && !matches!(show, Show::Pressure) {
+                Cli::command()
+                    .error(
+                        clap::error::ErrorKind::ArgumentConflict,
+                        "'--skip-tubing' applies to '--show pressure' only",
+                    )
+                    .exit();
+            }
+        }
+        cli
+    }
+}
 
 #[derive(Parser)]
 #[command(
@@ -128,6 +150,10 @@ pub enum Command {
         /// The species '--colour species' shows (default: the first the chip declares).
         #[arg(long)]
         species: Option<String>,
+        /// With '--show pressure': start each path at its first on-chip node, leaving out the
+        /// round-section channels (tubing, capillaries) between the inlet port and the chip.
+        #[arg(long)]
+        skip_tubing: bool,
         /// New .svg or .png file to write.
         #[arg(long, short)]
         output: PathBuf,

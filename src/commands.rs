@@ -742,6 +742,8 @@ pub struct PlotRequest<'a> {
     pub chip: ChipInput<'a>,
     /// The pressure-along-path picture instead of the flow splits.
     pub pressure_profile: bool,
+    /// Pressure paths start at the first on-chip node (round tubing at the inlet left out).
+    pub skip_tubing: bool,
     pub colour: plots::ColourBy,
     pub output: &'a Path,
 }
@@ -752,7 +754,7 @@ pub fn plot(req: &PlotRequest<'_>) -> Result<Outcome, Error> {
     let protected = req.chip.protected();
     if req.pressure_profile {
         plots::save(
-            &plots::PressurePicture::new(&chip, &state),
+            &plots::PressurePicture::traced(&chip, &state, req.skip_tubing),
             req.output,
             &protected,
         )?;

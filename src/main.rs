@@ -2,7 +2,7 @@
 //! exit codes (see `rillnet::error::exit`: 0 done, 1 a limit check failed, 2 bad input or
 //! usage or output that could not be written, 3 results withheld by the solver).
 
-use clap::{CommandFactory, Parser};
+use clap::CommandFactory;
 use cli::{Cli, Colour, Command, Show, SyntaxArg};
 use rillnet::commands::{self, Outcome, SensitivityChoice};
 use rillnet::error::exit;
@@ -180,6 +180,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             show,
             colour,
             species,
+            skip_tubing,
             output,
         } => {
             picture_arg(Some(output))?;
@@ -198,6 +199,7 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             let outcome = commands::plot(&commands::PlotRequest {
                 chip: arg.input(),
                 pressure_profile: matches!(show, Show::Pressure),
+                skip_tubing: *skip_tubing,
                 colour: match colour {
                     Colour::Pressure => rillnet::plots::ColourBy::Pressure,
                     Colour::Flow => rillnet::plots::ColourBy::Flow,
@@ -255,7 +257,7 @@ fn stdout_failure(e: &std::io::Error) -> ExitCode {
 }
 
 fn main() -> ExitCode {
-    let cli = Cli::parse();
+    let cli = Cli::parse_checked();
     if let Some(result) = generated(&cli.command) {
         return result.map_or_else(|e| stdout_failure(&e), |_| ExitCode::from(exit::OK));
     }

@@ -87,7 +87,11 @@ fn chosen_channels_only_and_png_decodes() {
     let bytes = std::fs::read(dir.path().join("p.png")).unwrap();
     let decoder = png::Decoder::new(std::io::Cursor::new(bytes));
     let reader = decoder.read_info().unwrap();
-    assert_eq!((reader.info().width, reader.info().height), (1000, 900));
+    let scale = rillnet::plots::PNG_SCALE as u32;
+    assert_eq!(
+        (reader.info().width, reader.info().height),
+        (1000 * scale, 900 * scale)
+    );
     // An unknown channel is refused with its name, exit code 2, and no file.
     let out = draw(dir.path(), "x.svg", &["--channels", "cq"]);
     assert_eq!(out.status.code(), Some(2));

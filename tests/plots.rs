@@ -77,15 +77,17 @@ fn margin_chart_png_decodes_and_has_text() {
     let mut reader = decoder.read_info().unwrap();
     let mut buf = vec![0; reader.output_buffer_size()];
     let info = reader.next_frame(&mut buf).unwrap();
-    assert_eq!(info.width, 960);
-    assert_eq!(info.height, 70 + 64 + 22 * 8);
+    // Drawn at PNG_SCALE device pixels per figure pixel.
+    let scale = rillnet::plots::PNG_SCALE as u32;
+    assert_eq!(info.width, 960 * scale);
+    assert_eq!(info.height, (70 + 64 + 22 * 8) * scale);
     let px = |x: u32, y: u32| {
         let i = ((y * info.width + x) * 3) as usize;
         (buf[i], buf[i + 1], buf[i + 2])
     };
     // The title band (top 35 px, left half) holds dark text pixels: the embedded font rendered.
-    let dark = (0..35)
-        .flat_map(|y| (0..480).map(move |x| (x, y)))
+    let dark = (0..35 * scale)
+        .flat_map(|y| (0..480 * scale).map(move |x| (x, y)))
         .filter(|&(x, y)| {
             let (r, g, b) = px(x, y);
             (r as u32 + g as u32 + b as u32) < 200
@@ -197,7 +199,11 @@ fn section_picture_svg_and_png() {
         std::fs::File::open(&png_path).unwrap(),
     ));
     let reader = decoder.read_info().unwrap();
-    assert_eq!((reader.info().width, reader.info().height), (900, 720));
+    let scale = rillnet::plots::PNG_SCALE as u32;
+    assert_eq!(
+        (reader.info().width, reader.info().height),
+        (900 * scale, 720 * scale)
+    );
     // An analytic shape is solved numerically for its picture as well.
     let out = rillnet()
         .args(["section", "{shape: circle, diameter: 100 um}", "--plot"])

@@ -1,8 +1,10 @@
 //! Pictures of results, drawn with plotters into SVG or PNG (chosen by file extension).
 //!
 //! PNG text is rendered with DejaVu Sans embedded in the binary (assets/fonts, Bitstream Vera
-//! licence), so pictures render identically on a machine without system fonts. SVG text
-//! names the generic `sans-serif` family and is rendered by the viewer.
+//! licence), so pictures render identically on a machine without system fonts; PNGs are drawn
+//! at [`PNG_SCALE`] device pixels per figure pixel by `raster::Scaled`, which also places the
+//! glyphs (see there for why plotters' own text path is not used). SVG text names the generic
+//! `sans-serif` family and is rendered by the viewer.
 //!
 //! Colours: the Okabe–Ito palette (Okabe & Ito 2008, "Color Universal Design"), which stays
 //! distinguishable for the common colour-vision deficiencies; the over-limit state is also
@@ -12,13 +14,15 @@ mod chip;
 mod margins;
 mod outlets;
 mod pressure;
+mod raster;
 mod section_field;
 mod time;
 
 pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT};
 pub use margins::MarginChart;
 pub use outlets::{OutletChart, OutletSeries};
-pub use pressure::{PressurePath, PressurePicture};
+pub use pressure::{PressurePath, PressurePicture, DRAWN_PATHS};
+pub use raster::PNG_SCALE;
 pub use section_field::SectionPicture;
 pub use time::{default_channels, Curve, TimePicture, DEFAULT_CURVES};
 
@@ -102,15 +106,19 @@ pub fn render(figure: &impl Figure, format: PictureFormat) -> Result<Vec<u8>, St
             Ok(text.into_bytes())
         }
         PictureFormat::Png => {
-            let mut rgb = vec![0u8; (w as usize) * (h as usize) * 3];
+            let s = PNG_SCALE as u32;
+            let (pw, ph) = (w * s, h * s);
+            let font = ab_glyph::FontRef::try_from_slice(DEJAVU_SANS).map_err(drawing)?;
+            let mut rgb = vec![0u8; (pw as usize) * (ph as usize) * 3];
             {
-                let area = BitMapBackend::with_buffer(&mut rgb, (w, h)).into_drawing_area();
+                let bitmap = BitMapBackend::with_buffer(&mut rgb, (pw, ph));
+                let area = raster::Scaled::new(bitmap, PNG_SCALE, font).into_drawing_area();
                 figure.draw(&area)?;
                 area.present().map_err(|e| e.to_string())?;
             }
             let mut out = Vec::new();
             {
-                let mut enc = png::Encoder::new(&mut out, w, h);
+                let mut enc = png::Encoder::new(&mut out, pw, ph);
                 enc.set_color(png::ColorType::Rgb);
                 enc.set_depth(png::BitDepth::Eight);
                 let mut writer = enc.write_header().map_err(|e| e.to_string())?;

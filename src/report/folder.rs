@@ -84,6 +84,19 @@ fn refuse_existing(state: &SteadyState, evolved: bool, dir: &Path) -> Result<(),
     })
 }
 
+/// When the page was made: `SOURCE_DATE_EPOCH` (seconds since 1970, the reproducible-builds
+/// convention) when set, otherwise now.
+fn made_at() -> u64 {
+    std::env::var("SOURCE_DATE_EPOCH")
+        .ok()
+        .and_then(|v| v.trim().parse().ok())
+        .unwrap_or_else(|| {
+            std::time::SystemTime::now()
+                .duration_since(std::time::UNIX_EPOCH)
+                .map_or(0, |d| d.as_secs())
+        })
+}
+
 /// Write the report of a solved chip into `dir` (which exists); returns the files written.
 pub fn write(
     chip: &Chip,
@@ -102,19 +115,27 @@ pub fn write(
     folder.put("results.json", super::to_json(chip, state).as_bytes())?;
     folder.put("results.csv", super::to_csv(chip, state).as_bytes())?;
     let mut pictures: Vec<(String, String)> = Vec::new();
-    let colour = if state.channels.iter().any(|s| s.shear_limit.is_some()) {
-        plots::ColourBy::Margin
+    let (colour, coloured) = if state.channels.iter().any(|s| s.shear_limit.is_some()) {
+        (
+            plots::ColourBy::Margin,
+            "wall-shear margin (limit / maximum wall shear)",
+        )
     } else {
-        plots::ColourBy::Pressure
+        (plots::ColourBy::Pressure, "pressure")
     };
     let splits = plots::ChipPicture::new(chip, state, colour);
     pictures.push((
-        "Flow split: line width ∝ |flow|, arrows show direction.".into(),
+        format!(
+            "Flow split: line width ∝ |flow|, arrows show direction; channels coloured by \
+             {coloured}."
+        ),
         folder.picture("splits", &splits)?,
     ));
     let pressure = plots::PressurePicture::new(chip, state);
     pictures.push((
-        "Pressure along the main flow path from each inlet.".into(),
+        "Pressure along the inlet–outlet paths (the largest pressure drops; node names at \
+         the markers)."
+            .into(),
         folder.picture("pressure", &pressure)?,
     ));
     if let Some(chart) = plots::MarginChart::new(chip, state) {
@@ -163,7 +184,16 @@ pub fn write(
             ));
         }
     }
-    let page = super::html_page(chip, state, &pictures);
+    let made = super::Made {
+        version: env!("CARGO_PKG_VERSION").into(),
+        epoch_seconds: made_at(),
+        files: folder
+            .written
+            .iter()
+            .filter_map(|p| p.file_name().map(|n| n.to_string_lossy().into_owned()))
+            .collect(),
+    };
+    let page = super::html_page(chip, state, &pictures, &made);
     folder.put("index.html", page.as_bytes())?;
     Ok(folder.written)
 }

@@ -18,7 +18,7 @@ pub mod text;
 pub use csv::to_csv;
 pub use design::{sensitivity_report, size_report, tune_report};
 pub use findings::{finding_text, note_text};
-pub use html::html_page;
+pub use html::{html_page, utc_date, Made};
 pub use json::{to_json, SCHEMA_VERSION};
 pub use section::section_report;
 pub use text::{check_text, to_table};

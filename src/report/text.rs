@@ -194,7 +194,7 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
 
 /// Channels in the order a cell biologist wants them: smallest shear margin first, then
 /// channels without a limit by decreasing maximum shear; ties (to 10 digits) in file order.
-fn worst_first(state: &SteadyState) -> Vec<usize> {
+pub(super) fn worst_first(state: &SteadyState) -> Vec<usize> {
     let mut order: Vec<usize> = (0..state.channels.len()).collect();
     order.sort_by(|&a, &b| {
         let (sa, sb) = (&state.channels[a], &state.channels[b]);
