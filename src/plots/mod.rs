@@ -13,6 +13,7 @@ mod margins;
 mod outlets;
 mod pressure;
 mod section_field;
+mod spread;
 mod time;
 
 pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT};
@@ -20,6 +21,7 @@ pub use margins::MarginChart;
 pub use outlets::{OutletChart, OutletSeries};
 pub use pressure::{PressurePath, PressurePicture};
 pub use section_field::SectionPicture;
+pub use spread::{SpreadPicture, TornadoChart};
 pub use time::{default_channels, Curve, TimePicture, DEFAULT_CURVES};
 
 use crate::error::Error;
