@@ -57,8 +57,10 @@ fn rectangle_tails(ratio: f64) -> (f64, f64) {
     let mut n = 1.0_f64;
     loop {
         let q2n = qn * qn;
-        let t5 = 2.0 * q2n / (1.0 + q2n) / n.powi(5);
-        let t2 = 2.0 * qn / (1.0 + q2n) / (n * n);
+        let r = 2.0 / (1.0 + q2n);
+        let n2 = n * n;
+        let t2 = qn * r / n2;
+        let t5 = q2n * r / (n2 * n2 * n);
         tail5 += t5;
         sech2 += t2;
         if (t5 <= 1e-18 * ODD_INV_FIFTH_POWERS && t2 <= 1e-18) || n > 1.0e4 {

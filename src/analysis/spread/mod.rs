@@ -685,8 +685,9 @@ enum Sample {
     },
 }
 
-/// Samples whose values wait before they go into the histograms.
-const BLOCK: usize = 128;
+/// Samples whose values wait before they go into the histograms (512: the buckets a quantity
+/// crossing zero fills, some thousands, are each visited several times per flush).
+const BLOCK: usize = 512;
 
 /// The values of up to [`BLOCK`] samples, quantity by quantity, so that each quantity's
 /// buckets are visited in one run per block rather than once per sample (they stay in cache;
@@ -785,17 +786,27 @@ impl Prepared<'_> {
     }
 
     /// The standard variables of global sample `i`.
+    /// Normal variable j is output j mod 2 of Box–Muller pair j/2 ([`rng::normal_pair_keyed`]);
+    /// uniform variable j is the uniform (j, 0).
     pub fn draw(&self, seed: u64, i: u64) -> Vec<f64> {
         let key = rng::sample_key(seed, i);
-        (self.variables.iter().enumerate())
-            .map(|(j, v)| {
-                if v.uniform {
-                    2.0 * rng::uniform_keyed(key, j as u64, 0) - 1.0
+        let mut z = Vec::with_capacity(self.variables.len());
+        for (p, pair) in self.variables.chunks(2).enumerate() {
+            let normals = if pair.iter().any(|v| !v.uniform) {
+                let (a, b) = rng::normal_pair_keyed(key, p as u64);
+                [a, b]
+            } else {
+                [0.0; 2]
+            };
+            for (k, v) in pair.iter().enumerate() {
+                z.push(if v.uniform {
+                    2.0 * rng::uniform_keyed(key, (2 * p + k) as u64, 0) - 1.0
                 } else {
-                    rng::normal_keyed(key, j as u64)
-                }
-            })
-            .collect()
+                    normals[k]
+                });
+            }
+        }
+        z
     }
 
     /// Draw, solve and judge one sample.

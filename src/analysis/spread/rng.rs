@@ -36,6 +36,19 @@ pub fn normal_keyed(key: u64, j: u64) -> f64 {
     (-2.0 * u1.ln()).sqrt() * (std::f64::consts::TAU * u2).cos()
 }
 
+/// Two independent standard normals of pair `p` in the sample of key `key`: both outputs of
+/// Box–Muller (r·cos θ, r·sin θ; Box & Muller 1958) from the uniforms k = 2 and 3 of index p
+/// (k = 0 and 1 serve the single draws above, so the two never share a uniform). Sampling
+/// draws normal variable j as output j mod 2 of pair j/2: one logarithm, square root and
+/// sine–cosine per two variables.
+pub fn normal_pair_keyed(key: u64, p: u64) -> (f64, f64) {
+    let u1 = uniform_keyed(key, p, 2);
+    let u2 = uniform_keyed(key, p, 3);
+    let r = (-2.0 * u1.ln()).sqrt();
+    let (s, c) = (std::f64::consts::TAU * u2).sin_cos();
+    (r * c, r * s)
+}
+
 /// Uniform on (0, 1): the k-th number of variable `j` in sample `i`.
 pub fn uniform(seed: u64, i: u64, j: u64, k: u64) -> f64 {
     uniform_keyed(sample_key(seed, i), j, k)
@@ -73,6 +86,28 @@ mod tests {
         assert_ne!(uniform(1, 2, 3, 0), uniform(1, 3, 2, 0));
         assert_ne!(uniform(1, 2, 3, 0), uniform(2, 2, 3, 0));
         assert_eq!(uniform(5, 6, 7, 1), uniform(5, 6, 7, 1));
+    }
+
+    /// Both outputs of a pair: mean 0, variance 1, uncorrelated (n = 100 000 pairs: SE of
+    /// the mean and of the correlation 0.0032, of the variance 0.0045).
+    #[test]
+    fn paired_normals_moments() {
+        let n = 100_000u64;
+        let (mut s, mut ss, mut sxy) = ([0.0; 2], [0.0; 2], 0.0);
+        for i in 0..n {
+            let (a, b) = normal_pair_keyed(sample_key(11, i), 5);
+            for (k, z) in [a, b].into_iter().enumerate() {
+                s[k] += z;
+                ss[k] += z * z;
+            }
+            sxy += a * b;
+        }
+        let nf = n as f64;
+        for k in 0..2 {
+            assert!((s[k] / nf).abs() < 0.015);
+            assert!((ss[k] / nf - 1.0).abs() < 0.02);
+        }
+        assert!((sxy / nf).abs() < 0.015);
     }
 
     /// The keyed draws are the plain ones (the hoisted key changes no bit).
