@@ -9,9 +9,11 @@
 //! cargo run --release --example spread_speed -- [SAMPLES] [THREADS]
 //! ```
 //!
-//! Prints samples/s, the time of the first-order part, and the peak resident memory for two
-//! sample counts (no per-sample values are kept; the percentile histograms fill towards their
-//! bound, so the peak still rises between the two counts).
+//! Prints samples/s, the time of the first-order part, and the peak resident memory for three
+//! sample counts (SAMPLES/10, SAMPLES, 3·SAMPLES): no per-sample values are kept and the
+//! percentile histograms are sized by the model, so the peak does not grow with the samples.
+//! The CPU seconds of the process (user + system) are printed beside the wall time: on a
+//! machine shared with other jobs they say what the run costs when the wall time does not.
 
 #[path = "support/grid.rs"]
 mod grid;
@@ -27,6 +29,24 @@ fn peak_memory_mib() -> Option<f64> {
     let line = status.lines().find(|l| l.starts_with("VmHWM:"))?;
     let kb: f64 = line.split_whitespace().nth(1)?.parse().ok()?;
     Some(kb / 1024.0)
+}
+
+/// User + system CPU seconds of this process so far (Linux, 100 clock ticks per second).
+fn cpu_seconds() -> Option<f64> {
+    let stat = std::fs::read_to_string("/proc/self/stat").ok()?;
+    // Fields after the command name (which is in parentheses): utime and stime are the
+    // 12th and 13th of them.
+    let rest = stat.rsplit_once(')')?.1;
+    let fields: Vec<&str> = rest.split_whitespace().collect();
+    let ticks: f64 = fields.get(11)?.parse::<f64>().ok()? + fields.get(12)?.parse::<f64>().ok()?;
+    Some(ticks / 100.0)
+}
+
+fn load_average() -> String {
+    std::fs::read_to_string("/proc/loadavg")
+        .ok()
+        .and_then(|l| l.split_whitespace().next().map(str::to_string))
+        .unwrap_or_else(|| "?".into())
 }
 
 fn reset_peak_memory() {
@@ -91,15 +111,18 @@ fn main() {
         prepared.quantities.len(),
         t.elapsed().as_secs_f64()
     );
-    println!("samples   threads   time [s]   samples/s   peak MiB");
-    for n in [samples / 10, samples] {
+    println!("samples   threads   time [s]   CPU [s]   samples/s   peak MiB   load");
+    for n in [samples / 10, samples, 3 * samples] {
         reset_peak_memory();
+        let load = load_average();
+        let cpu = cpu_seconds().unwrap_or(f64::NAN);
         let t = Instant::now();
         let state = pool.install(|| prepared.monte_carlo(n, 1, Shard::WHOLE));
         let result = prepared.finish(state, 1, Shard::WHOLE, n);
         let secs = t.elapsed().as_secs_f64();
+        let cpu = cpu_seconds().unwrap_or(f64::NAN) - cpu;
         println!(
-            "{n:>7}   {threads:>7}   {secs:>8.3}   {:>9.0}   {:>8.1}",
+            "{n:>7}   {threads:>7}   {secs:>8.3}   {cpu:>7.2}   {:>9.0}   {:>8.1}   {load}",
             n as f64 / secs,
             peak_memory_mib().unwrap_or(f64::NAN)
         );

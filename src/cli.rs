@@ -71,6 +71,14 @@ pub enum Command {
         /// Merge the JSON outputs of every shard of one run (same chip file, seed, samples).
         #[arg(long, num_args = 1..)]
         merge: Vec<PathBuf>,
+        /// Draw the distributions of the key flows, split shares and wall shear (nominal,
+        /// target and its tolerance band, percentiles, limit) to this new .svg or .png file.
+        #[arg(long)]
+        plot: Option<PathBuf>,
+        /// Draw the tornado chart of the first-order variance contributions to this new .svg
+        /// or .png file.
+        #[arg(long)]
+        tornado: Option<PathBuf>,
         /// Output format.
         #[arg(long, value_enum, default_value_t = Format::Table)]
         format: Format,

@@ -876,14 +876,33 @@ pub fn report(req: &ReportRequest<'_>) -> Result<Outcome, Error> {
     } else {
         None
     };
+    // A chip with tolerances also gets the pictures of its spread (skipped when spread
+    // refuses the chip, e.g. for concentration targets).
+    let spread = spread_for_report(&chip);
     let files = crate::report::folder::write(
         &chip,
         &state,
         evolved.as_ref(),
+        spread.as_ref(),
         req.folder,
         &req.chip.protected(),
     )?;
     Ok(Outcome::Wrote(files))
+}
+
+/// Monte Carlo samples and seed of the spread pictures in a report.
+pub const REPORT_SPREAD_SAMPLES: u64 = 10_000;
+
+/// The spread of a chip with tolerances for its report (`None` without tolerances or when
+/// spread refuses the chip).
+fn spread_for_report(chip: &Chip) -> Option<analysis::spread::SpreadResult> {
+    use analysis::spread::{Prepared, Shard};
+    if chip.tolerances.is_empty() {
+        return None;
+    }
+    let prepared = Prepared::new(&chip.network, &chip.design, &chip.tolerances).ok()?;
+    let state = prepared.monte_carlo(REPORT_SPREAD_SAMPLES, 1, Shard::WHOLE);
+    Some(prepared.finish(state, 1, Shard::WHOLE, REPORT_SPREAD_SAMPLES))
 }
 
 /// Write an outcome rendered in `format` to the new file `path` (atomically, never
@@ -913,6 +932,10 @@ pub struct SpreadRequest<'a> {
     pub shard: Option<&'a str>,
     /// Outputs of `spread --format json --shard i/n` to merge into the run's result.
     pub merge: &'a [std::path::PathBuf],
+    /// New picture file for the distributions of the key quantities.
+    pub plot: Option<&'a Path>,
+    /// New picture file for the tornado chart of the variance contributions.
+    pub tornado: Option<&'a Path>,
 }
 
 /// FNV-1a (64 bit) of the chip text, as 16 hex digits: shards must share it to be merged.
@@ -974,6 +997,23 @@ pub fn spread(req: &SpreadRequest<'_>) -> Result<Outcome, Error> {
         let (seed, total, state) = merge_shards(req.merge, &fingerprint, &prepared)?;
         prepared.finish(state, seed, Shard::WHOLE, total)
     };
+    let mut protected = req.chip.protected();
+    protected.extend(req.merge.iter().map(|p| p.as_path()));
+    let nothing = |path: &Path| Error::Write {
+        path: path.to_path_buf(),
+        reason: "nothing to draw: every sample was withheld".into(),
+    };
+    if let Some(path) = req.plot {
+        let picture = plots::SpreadPicture::new(&chip, &result).ok_or_else(|| nothing(path))?;
+        plots::save(&picture, path, &protected)?;
+    }
+    if let Some(path) = req.tornado {
+        let chart = plots::TornadoChart::new(&chip, &result).ok_or_else(|| Error::Write {
+            path: path.to_path_buf(),
+            reason: "nothing to draw: no key quantity varies to first order".into(),
+        })?;
+        plots::save(&chart, path, &protected)?;
+    }
     Ok(Outcome::Spread(Box::new(crate::outcome::SpreadOutcome {
         chip,
         result,

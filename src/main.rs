@@ -88,7 +88,11 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
             merge,
             format,
             output,
+            plot,
+            tornado,
         } => {
+            picture_arg(plot.as_deref())?;
+            picture_arg(tornado.as_deref())?;
             let arg = chip(file)?;
             let outcome = commands::spread(&commands::SpreadRequest {
                 chip: arg.input(),
@@ -96,6 +100,8 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 seed: *seed,
                 shard: shard.as_deref(),
                 merge,
+                plot: plot.as_deref(),
+                tornado: tornado.as_deref(),
             })?;
             (outcome, *format, output.clone(), vec![arg.path])
         }

@@ -1,6 +1,6 @@
 //! Reading back the `state` of a `spread --format json` output, to merge shards.
 
-use crate::analysis::spread::stats::{Accumulator, Wide};
+use crate::analysis::spread::stats::{Accumulator, Buckets, Wide};
 use crate::analysis::spread::{McState, Shard};
 use serde::Deserialize;
 
@@ -56,14 +56,15 @@ pub fn parse_shard(text: &str) -> Result<ShardState, String> {
         )
     })?;
     let s = doc.state;
-    let counts = |v: &[[i64; 2]]| -> Result<std::collections::BTreeMap<i64, u64>, String> {
-        v.iter()
+    let counts = |v: &[[i64; 2]]| -> Result<Buckets, String> {
+        let pairs = (v.iter())
             .map(|[k, c]| {
                 u64::try_from(*c)
                     .map(|c| (*k, c))
                     .map_err(|_| format!("negative bucket count {c}"))
             })
-            .collect()
+            .collect::<Result<Vec<_>, String>>()?;
+        Ok(Buckets::from_counts(pairs))
     };
     let quantities = s
         .quantities

@@ -16,6 +16,7 @@ mod outlets;
 mod pressure;
 mod raster;
 mod section_field;
+mod spread;
 mod time;
 
 pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT};
@@ -24,6 +25,7 @@ pub use outlets::{OutletChart, OutletSeries};
 pub use pressure::{PressurePath, PressurePicture, DRAWN_PATHS};
 pub use raster::PNG_SCALE;
 pub use section_field::SectionPicture;
+pub use spread::{SpreadPicture, TornadoChart};
 pub use time::{default_channels, Curve, TimePicture, DEFAULT_CURVES};
 
 use crate::error::Error;

@@ -40,7 +40,7 @@ impl Folder<'_> {
 }
 
 /// The files a report writes, in order.
-fn file_names(state: &SteadyState, evolved: bool) -> Vec<String> {
+fn file_names(state: &SteadyState, evolved: bool, spread: bool) -> Vec<String> {
     let mut names: Vec<String> = ["summary.txt", "results.json", "results.csv"]
         .map(String::from)
         .to_vec();
@@ -56,6 +56,9 @@ fn file_names(state: &SteadyState, evolved: bool) -> Vec<String> {
         pictures.push("species");
         pictures.push("outlets");
     }
+    if spread {
+        pictures.extend(["spread", "tornado"]);
+    }
     for p in pictures {
         names.push(format!("{p}.svg"));
         names.push(format!("{p}.png"));
@@ -66,8 +69,8 @@ fn file_names(state: &SteadyState, evolved: bool) -> Vec<String> {
 
 /// Refuse before writing anything when a file of the report exists already, so a report is
 /// never left half written over an old one.
-fn refuse_existing(state: &SteadyState, evolved: bool, dir: &Path) -> Result<(), Error> {
-    let taken: Vec<String> = file_names(state, evolved)
+fn refuse_existing(state: &SteadyState, names: (bool, bool), dir: &Path) -> Result<(), Error> {
+    let taken: Vec<String> = file_names(state, names.0, names.1)
         .into_iter()
         .filter(|n| std::fs::symlink_metadata(dir.join(n)).is_ok())
         .collect();
@@ -102,10 +105,11 @@ pub fn write(
     chip: &Chip,
     state: &SteadyState,
     evolved: Option<&crate::outcome::EvolveOutcome>,
+    spread: Option<&crate::analysis::spread::SpreadResult>,
     dir: &Path,
     protected: &[&Path],
 ) -> Result<Vec<PathBuf>, Error> {
-    refuse_existing(state, evolved.is_some(), dir)?;
+    refuse_existing(state, (evolved.is_some(), spread.is_some()), dir)?;
     let mut folder = Folder {
         dir,
         protected,
@@ -182,6 +186,15 @@ pub fn write(
                     .into(),
                 folder.picture("outlets", &chart)?,
             ));
+        }
+    }
+    if let Some(r) = spread {
+        let (distributions, tornado) = super::spread::captions(r);
+        if let Some(p) = plots::SpreadPicture::new(chip, r) {
+            pictures.push((distributions, folder.picture("spread", &p)?));
+        }
+        if let Some(t) = plots::TornadoChart::new(chip, r) {
+            pictures.push((tornado, folder.picture("tornado", &t)?));
         }
     }
     let made = super::Made {

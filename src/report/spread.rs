@@ -193,8 +193,12 @@ fn json_state(o: &SpreadOutcome) -> JsonState {
         sum: a.sum.to_string(),
         sum_sq: [a.sum_sq.hi.to_string(), a.sum_sq.lo.to_string()],
         zeros: a.zeros,
-        positive: a.positive.iter().map(|(k, c)| [*k, *c as i64]).collect(),
-        negative: a.negative.iter().map(|(k, c)| [*k, *c as i64]).collect(),
+        positive: (a.positive.counts().into_iter())
+            .map(|(k, c)| [k, c as i64])
+            .collect(),
+        negative: (a.negative.counts().into_iter())
+            .map(|(k, c)| [k, c as i64])
+            .collect(),
     };
     JsonState {
         chip_fingerprint: o.fingerprint.clone(),
@@ -306,6 +310,22 @@ pub(crate) fn spread_json(o: &SpreadOutcome, w: &mut dyn Write) -> io::Result<()
         state: json_state(o),
     };
     super::json::write_json(&doc, w)
+}
+
+/// Captions of the report's spread pictures (distributions, tornado chart).
+pub(crate) fn captions(r: &SpreadResult) -> (String, String) {
+    (
+        format!(
+            "Spread under the chip's tolerances: Monte Carlo distributions of the key flows, \
+             splits and wall shear ({} samples, seed {}), with targets, tolerance bands and \
+             limits; `rillnet spread` gives the tables.",
+            r.samples - r.withheld,
+            r.seed
+        ),
+        "What drives the spread: first-order variance contributions of the tolerances to the \
+         key quantities."
+            .into(),
+    )
 }
 
 /// The name of a quantity for tables.

@@ -34,5 +34,6 @@ mod triangular;
 
 pub use figures::{SectionFigures, SectionModel};
 pub use profile::{ProfileNote, MAX_MESH_POINTS, MIN_PROFILE_POINTS, UNEVEN_GAP_RATIO};
+pub use rectangular::rectangle_k_and_shear;
 pub use shape::{GeometryKey, Shape, ShapeError};
 pub use special::elliptic_e;

@@ -41,7 +41,7 @@ use super::kirchhoff::{conductances, drive_values, Factor, FlowSolution, SolveEr
 use crate::chip::design::{Design, ShearMeasure, TargetKind, Tolerance as TargetTolerance};
 use crate::chip::tolerances::{Amount, Dim, Distribution, Toleranced, Tolerances};
 use crate::network::{ChannelId, Network, NodeId, Port};
-use crate::section::Shape;
+use crate::section::{rectangle_k_and_shear, Shape};
 use rayon::prelude::*;
 use stats::Accumulator;
 
@@ -652,8 +652,8 @@ impl McState {
             (Some(a), Some(b)) => Some(if a.0 <= b.0 { a } else { b }),
             (a, b) => a.or(b),
         };
-        for (a, b) in self.quantities.iter_mut().zip(&o.quantities) {
-            a.merge(b);
+        for (a, b) in self.quantities.iter_mut().zip(o.quantities) {
+            a.absorb(b);
         }
         for (a, b) in self.target_misses.iter_mut().zip(&o.target_misses) {
             *a += b;
@@ -685,19 +685,54 @@ enum Sample {
     },
 }
 
+/// Samples whose values wait before they go into the histograms (512: the buckets a quantity
+/// crossing zero fills, some thousands, are each visited several times per flush).
+const BLOCK: usize = 512;
+
+/// The values of up to [`BLOCK`] samples, quantity by quantity, so that each quantity's
+/// buckets are visited in one run per block rather than once per sample (they stay in cache;
+/// the order of adds does not change the integer counts and sums).
+struct Pending {
+    /// values[q·BLOCK + b]: quantity q of buffered sample b.
+    values: Vec<f64>,
+    filled: usize,
+}
+
+impl Pending {
+    fn new(quantities: usize) -> Pending {
+        Pending {
+            values: vec![0.0; quantities * BLOCK],
+            filled: 0,
+        }
+    }
+
+    fn push(&mut self, values: &[f64]) {
+        for (qi, v) in values.iter().enumerate() {
+            self.values[qi * BLOCK + self.filled] = *v;
+        }
+        self.filled += 1;
+    }
+
+    fn flush(&mut self, st: &mut McState, binnings: &[stats::Binning]) {
+        for (qi, (acc, b)) in st.quantities.iter_mut().zip(binnings).enumerate() {
+            for v in &self.values[qi * BLOCK..qi * BLOCK + self.filled] {
+                acc.add(*v, b);
+            }
+        }
+        self.filled = 0;
+    }
+}
+
 impl Prepared<'_> {
     /// Run the samples of `shard` out of `samples` with `seed`, in parallel (rayon).
     pub fn monte_carlo(&self, samples: u64, seed: u64, shard: Shard) -> McState {
-        let scales: Vec<(f64, f64)> = (0..self.quantities.len())
-            .map(|qi| {
-                let (x0, s) = (self.nominal[qi], self.std_linear(qi));
-                (stats::scale_for(x0, s), stats::floor_for(x0, s))
-            })
+        let binnings: Vec<stats::Binning> = (0..self.quantities.len())
+            .map(|qi| stats::Binning::new(self.nominal[qi], self.std_linear(qi)))
             .collect();
         let range = shard.range(samples);
-        // One contiguous part per thread, each accumulated in one state (the histograms of a
-        // partial state are the memory that grows, up to their bound, with the samples it
-        // sees); the result does not depend on the parts (exact merges).
+        // One contiguous part per thread, each accumulated in one state (its histograms are
+        // sized by the model when their first value arrives, not by the samples); the result
+        // does not depend on the parts (exact merges).
         let parts = (rayon::current_num_threads() as u64).max(1);
         let len = range.end - range.start;
         let at =
@@ -706,16 +741,21 @@ impl Prepared<'_> {
             .into_par_iter()
             .map(|k| {
                 let mut st = McState::empty(self);
+                let mut pending = Pending::new(self.quantities.len());
                 for i in at(k)..at(k + 1) {
-                    self.add_sample(&mut st, &scales, seed, i);
+                    self.add_sample(&mut st, &mut pending, seed, i);
+                    if pending.filled == BLOCK {
+                        pending.flush(&mut st, &binnings);
+                    }
                 }
+                pending.flush(&mut st, &binnings);
                 st
             })
             .reduce(|| McState::empty(self), McState::merge)
     }
 
     /// Draw, solve and judge sample `i`, and add it to `st`.
-    fn add_sample(&self, st: &mut McState, scales: &[(f64, f64)], seed: u64, i: u64) {
+    fn add_sample(&self, st: &mut McState, pending: &mut Pending, seed: u64, i: u64) {
         st.samples += 1;
         match self.sample(seed, i) {
             Sample::Withheld(why) => {
@@ -730,9 +770,7 @@ impl Prepared<'_> {
                 shear_over,
                 rating_over,
             } => {
-                for (qi, v) in values.iter().enumerate() {
-                    st.quantities[qi].add(*v, self.nominal[qi], scales[qi].0, scales[qi].1);
-                }
+                pending.push(&values);
                 for (t, m) in misses.iter().enumerate() {
                     st.target_misses[t] += u64::from(*m);
                 }
@@ -748,16 +786,27 @@ impl Prepared<'_> {
     }
 
     /// The standard variables of global sample `i`.
+    /// Normal variable j is output j mod 2 of Box–Muller pair j/2 ([`rng::normal_pair_keyed`]);
+    /// uniform variable j is the uniform (j, 0).
     pub fn draw(&self, seed: u64, i: u64) -> Vec<f64> {
-        (self.variables.iter().enumerate())
-            .map(|(j, v)| {
-                if v.uniform {
-                    2.0 * rng::uniform(seed, i, j as u64, 0) - 1.0
+        let key = rng::sample_key(seed, i);
+        let mut z = Vec::with_capacity(self.variables.len());
+        for (p, pair) in self.variables.chunks(2).enumerate() {
+            let normals = if pair.iter().any(|v| !v.uniform) {
+                let (a, b) = rng::normal_pair_keyed(key, p as u64);
+                [a, b]
+            } else {
+                [0.0; 2]
+            };
+            for (k, v) in pair.iter().enumerate() {
+                z.push(if v.uniform {
+                    2.0 * rng::uniform_keyed(key, (2 * p + k) as u64, 0) - 1.0
                 } else {
-                    rng::normal(seed, i, j as u64)
-                }
-            })
-            .collect()
+                    normals[k]
+                });
+            }
+        }
+        z
     }
 
     /// Draw, solve and judge one sample.
@@ -785,6 +834,9 @@ impl Prepared<'_> {
         }
         let mut g = self.base_g.clone();
         let mut per_channel: Vec<(f64, f64)> = Vec::with_capacity(n_ch);
+        // The last rectangle evaluated per section: channels of a section drawn with the
+        // same width and height (a group draw) share one series evaluation.
+        let mut last: Vec<Option<[f64; 4]>> = vec![None; net.sections.len()];
         for (k, ch) in net.channels.iter().enumerate() {
             let l0 = ch.length.si();
             let length = l0 + dlen[k];
@@ -793,6 +845,37 @@ impl Prepared<'_> {
             let mut kf = fig.conductance_factor;
             if ddim[k] != [0.0, 0.0] {
                 match &self.models[k] {
+                    SectionModel::ClosedForm(Shape::Rectangle { width, height }) => {
+                        let w = width.si() + ddim[k][Dim::Width as usize];
+                        let h = height.si() + ddim[k][Dim::Height as usize];
+                        for (v, dim) in [(w, Dim::Width), (h, Dim::Height)] {
+                            if v.is_nan() || v <= 0.0 {
+                                return Sample::Withheld(format!(
+                                    "the {} of channel '{}' drawn at or below zero",
+                                    dim.name(),
+                                    ch.name
+                                ));
+                            }
+                        }
+                        let slot = &mut last[ch.section.0];
+                        let [_, _, kk, ff] = match *slot {
+                            Some(e) if e[0] == w && e[1] == h => e,
+                            _ => {
+                                let (kk, ff) = rectangle_k_and_shear(w, h);
+                                let e = [w, h, kk, ff];
+                                *slot = Some(e);
+                                e
+                            }
+                        };
+                        if !(kk > 0.0 && kk.is_finite()) {
+                            return Sample::Withheld(format!(
+                                "the section of channel '{}' has no valid figures",
+                                ch.name
+                            ));
+                        }
+                        kf = kk;
+                        factor = ff;
+                    }
                     SectionModel::ClosedForm(shape) => {
                         let mut s = shape.clone();
                         for dim in [Dim::Width, Dim::Height] {
@@ -946,6 +1029,9 @@ pub struct Stat {
     pub mean_agrees: bool,
     /// Shares of the first-order variance: (variable index, share), largest first.
     pub contributions: Vec<(usize, f64)>,
+    /// For each listed contribution, the first-order change of the quantity with its variable
+    /// one standard deviation high (dJ/dz·sd z; its square over the variance is the share).
+    pub effects: Vec<f64>,
 }
 
 /// The answers of a spread run.
@@ -1002,6 +1088,7 @@ impl Prepared<'_> {
                     || (std - std_linear).abs() <= 3.0 * std / (2.0 * (n - 1.0)).sqrt() + floor;
                 let mean_agrees =
                     acc.count < 2 || (mean - nominal).abs() <= 3.0 * std / n.sqrt() + floor;
+                let contributions = self.contributions(qi, TOP_CONTRIBUTIONS);
                 Stat {
                     quantity,
                     nominal,
@@ -1013,7 +1100,10 @@ impl Prepared<'_> {
                     agree: std_agrees && mean_agrees,
                     std_agrees,
                     mean_agrees,
-                    contributions: self.contributions(qi, TOP_CONTRIBUTIONS),
+                    effects: (contributions.iter())
+                        .map(|&(j, _)| self.gradient[qi][j] * self.variables[j].variance().sqrt())
+                        .collect(),
+                    contributions,
                 }
             })
             .collect();
