@@ -25,8 +25,11 @@ pub fn step_125(lo: f64, hi: f64, max_ticks: usize) -> f64 {
 /// prints as 0.3.
 pub fn linear(lo: f64, hi: f64, max_ticks: usize) -> Vec<f64> {
     let (lo, hi) = if lo <= hi { (lo, hi) } else { (hi, lo) };
-    if !(lo.is_finite() && hi.is_finite()) || hi <= lo {
-        return if lo.is_finite() { vec![lo] } else { Vec::new() };
+    if !(lo.is_finite() && hi.is_finite()) {
+        return Vec::new();
+    }
+    if hi <= lo {
+        return vec![lo];
     }
     let at = |step: f64| -> Vec<f64> {
         let first = (lo / step - 1e-9).ceil() as i64;

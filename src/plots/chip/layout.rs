@@ -150,7 +150,7 @@ fn automatic(network: &Network, p: &[f64]) -> Vec<[f64; 2]> {
         let base = pred[v].iter().map(|&u| layer[u] + 1).max().unwrap_or(0);
         layer[v] = base;
         for &u in &pred[v] {
-            if rung_below[u] || succ[u].len() < 2 {
+            if rung_below[u] {
                 continue;
             }
             let others_before = pred[v].iter().all(|&w| w == u || layer[w] < layer[u]);

@@ -282,8 +282,16 @@ impl<'a> ChipPicture<'a> {
         } else {
             1.0
         };
+        // To scale from the file: one scale, set by the extent that has one (a chip drawn
+        // on a single line has no height to fit).
         let (sx, sy) = if self.layout.from_file {
-            (sx.min(sy), sx.min(sy))
+            let s = match (hi[0] > lo[0], hi[1] > lo[1]) {
+                (true, true) => sx.min(sy),
+                (true, false) => sx,
+                (false, true) => sy,
+                (false, false) => 1.0,
+            };
+            (s, s)
         } else {
             (sx, sy)
         };
