@@ -109,7 +109,14 @@ pub fn write(
     };
     let splits = plots::ChipPicture::new(chip, state, colour);
     pictures.push((
-        "Flow split: line width ∝ |flow|, arrows show direction.".into(),
+        if colour == plots::ColourBy::Margin {
+            "Flow split coloured by wall-shear margin (limits are set): line width ∝ channel \
+             width, arrows show direction."
+                .into()
+        } else {
+            "Flow split coloured by pressure: line width ∝ channel width, arrows show direction."
+                .into()
+        },
         folder.picture("splits", &splits)?,
     ));
     let pressure = plots::PressurePicture::new(chip, state);

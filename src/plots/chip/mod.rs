@@ -16,7 +16,7 @@
 //! moved away; dropped (least important first) only when no place is free.
 //!
 //! Layout: see [`layout`]. In SVG each channel's line carries a `<title>` (name, flow, ΔP,
-//! wall shear) that viewers show on hover.
+//! wall shear) that viewers show on hover (not on large chips).
 
 mod layout;
 
@@ -65,7 +65,7 @@ const MARGIN_R: f64 = 300.0;
 const MARGIN_T: f64 = 100.0;
 const MARGIN_B: f64 = 110.0;
 /// Pixels per layer and per row of the automatic layout.
-const LAYER_PX: f64 = 270.0;
+const LAYER_PX: f64 = 340.0;
 const ROW_PX: f64 = 96.0;
 const NAME_GREY: RGBColor = RGBColor(80, 80, 80);
 const LEADER_GREY: RGBColor = RGBColor(120, 120, 120);
@@ -448,10 +448,11 @@ impl<'a> ChipPicture<'a> {
             if large || s.flow == 0.0 || pts.len() < 2 {
                 continue;
             }
-            // Arrow at the middle of the longest segment, pointing along the flow.
+            // Arrow at 70 % of the longest segment (its middle is the label's first choice),
+            // pointing along the flow.
             let seg = longest_segment(pts);
             let (a, b) = (pts[seg], pts[seg + 1]);
-            let (mx, my) = ((a[0] + b[0]) / 2.0, (a[1] + b[1]) / 2.0);
+            let (mx, my) = (a[0] + (b[0] - a[0]) * 0.7, a[1] + (b[1] - a[1]) * 0.7);
             let (mut dx, mut dy) = (b[0] - a[0], b[1] - a[1]);
             if s.flow < 0.0 {
                 dx = -dx;
@@ -711,7 +712,7 @@ fn longest_segment(pts: &[[f64; 2]]) -> usize {
 }
 
 /// Channels drawn on the same pixel path (either direction) fanned out side by side: lane j
-/// of n offset by (j − (n−1)/2) × spacing, leaving and joining the shared end points at 45°.
+/// of n offset by (j − (n−1)/2) × spacing (room for a label between lanes), leaving and joining the shared end points at 45°.
 fn fan_out(paths: &[Vec<[f64; 2]>], strokes: &[f64]) -> Vec<Vec<[f64; 2]>> {
     let key = |p: &Vec<[f64; 2]>| -> (Vec<(i64, i64)>, bool) {
         let fwd: Vec<(i64, i64)> = p.iter().map(|q| (q[0] as i64, q[1] as i64)).collect();
@@ -735,7 +736,8 @@ fn fan_out(paths: &[Vec<[f64; 2]>], strokes: &[f64]) -> Vec<Vec<[f64; 2]>> {
             .iter()
             .map(|&(k, _)| strokes[k])
             .fold(0.0f64, f64::max);
-        let spacing = widest + 30.0;
+        // Room for a line of text between two lanes.
+        let spacing = widest + 44.0;
         for (j, &(k, flipped)) in members.iter().enumerate() {
             let d = (j as f64 - (n as f64 - 1.0) / 2.0) * spacing;
             if d == 0.0 {
@@ -882,7 +884,11 @@ impl Figure for ChipPicture<'_> {
 
     /// Give each channel's line (and halo) a `<title>`: the polylines come in drawing order,
     /// halos, then channels, then leader lines.
+    /// Large chips keep their SVG lean: no tooltips on lines too thin to point at.
     fn finish_svg(&self, svg: String) -> String {
+        if self.large() {
+            return svg;
+        }
         let scene = self.scene();
         let owners: Vec<usize> = scene
             .halos
@@ -933,11 +939,11 @@ mod tests {
             assert_eq!(p.first(), q.first());
             assert_eq!(p.last(), q.last());
         }
-        // … and the middle runs of the three lanes at three different heights, 34 px apart.
+        // … and the middle runs of the three lanes at three different heights, 48 px apart.
         let mid_y = |p: &Vec<[f64; 2]>| p[p.len() / 2][1];
         let mut ys: Vec<f64> = out.iter().map(mid_y).collect();
         ys.sort_by(f64::total_cmp);
-        assert_eq!(ys, vec![166.0, 200.0, 234.0]);
+        assert_eq!(ys, vec![152.0, 200.0, 248.0]);
     }
 
     #[test]
