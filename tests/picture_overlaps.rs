@@ -578,3 +578,23 @@ fn large_chips_are_thin_lines_with_only_ports_named() {
     assert!(!t.iter().any(|x| numbered(x, 'j')), "no junction labels");
     assert!(overlaps(&svg).is_empty(), "{:?}", overlaps(&svg));
 }
+
+#[test]
+fn the_overlap_check_sees_overlaps() {
+    // Two texts on one spot, and a channel line through a third: all three reported.
+    let svg = r##"<svg width="400" height="200" xmlns="http://www.w3.org/2000/svg">
+<text x="10" y="10" dy="0.76em" text-anchor="start" font-size="10" fill="#000">lane_1: 3.33</text>
+<text x="30" y="14" dy="0.76em" text-anchor="start" font-size="10" fill="#000">lane_2: 3.33</text>
+<text x="100" y="100" dy="0.76em" text-anchor="start" font-size="10" fill="#000">crossed</text>
+<polyline fill="none" stroke="#000" stroke-width="4" points="90,105 200,105 "/>
+</svg>"##;
+    let found = overlaps(svg);
+    assert_eq!(found.len(), 2, "{found:?}");
+    assert!(found[0].contains("lane_1") && found[0].contains("lane_2"));
+    assert!(found[1].contains("crossed"));
+    // Moved apart and off the line: clean.
+    let clean = svg
+        .replace("x=\"30\" y=\"14\"", "x=\"30\" y=\"40\"")
+        .replace("90,105 200,105", "90,130 200,130");
+    assert!(overlaps(&clean).is_empty(), "{:?}", overlaps(&clean));
+}
