@@ -7,8 +7,9 @@
 //!
 //! Each size is the square grid of `examples/scale.rs` (left column at 100 mbar, right at 0,
 //! a pump in the centre). Printed per size: the solve (assemble, analyse, factorise, check,
-//! derive), the pressure-along-path picture (tracing + SVG), the flow-split picture (SVG),
-//! and their ratios to the solve.
+//! derive), the pressure-along-path picture (tracing + SVG), the flow-split picture (SVG,
+//! then PNG), and their ratios to the solve. Above `plots::LARGE_LIMIT` channels the split
+//! picture is drawn as thin coloured lines with only the ports named.
 
 use rillnet::chip::{Chip, DrawnLayout, Source};
 use rillnet::format::Syntax;
@@ -29,7 +30,10 @@ fn main() {
         Some(n) => vec![n.parse().expect("a channel count")],
         None => vec![10_000, 100_000],
     };
-    println!("channels   solve [s]   pressure picture [s] (ratio)   split picture [s] (ratio)");
+    println!(
+        "channels   solve [s]   pressure picture [s] (ratio)   split picture [s] (ratio)   \
+         split PNG [s]"
+    );
     for channels in sizes {
         let side = ((channels as f64 / 2.0).sqrt().round() as usize).max(2);
         let network = grid(side);
@@ -62,12 +66,17 @@ fn main() {
         let split = plots::ChipPicture::new(&chip, &state, plots::ColourBy::Pressure);
         let svg2 = plots::render(&split, PictureFormat::Svg).expect("render");
         let splits = seconds(t);
+        let t = Instant::now();
+        let png = plots::render(&split, PictureFormat::Png).expect("render");
+        let split_png = seconds(t);
         println!(
-            "{n:>8}   {solve:9.3}   {pressure:9.3} ({:5.2}×, {} kB)   {splits:9.3} ({:5.2}×, {} kB)",
+            "{n:>8}   {solve:9.3}   {pressure:9.3} ({:5.2}×, {} kB)   {splits:9.3} ({:5.2}×, {} kB)   \
+             {split_png:9.3} ({} kB)",
             pressure / solve,
             svg.len() / 1024,
             splits / solve,
-            svg2.len() / 1024
+            svg2.len() / 1024,
+            png.len() / 1024
         );
     }
 }

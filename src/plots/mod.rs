@@ -11,15 +11,17 @@
 //! marked by text, never by colour alone.
 
 mod chip;
+pub(crate) mod labels;
 mod margins;
 mod outlets;
 mod pressure;
 mod raster;
 mod section_field;
 mod spread;
+pub mod ticks;
 mod time;
 
-pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT};
+pub use chip::{layout, ChipPicture, ColourBy, Layout, LABEL_LIMIT, LARGE_LIMIT};
 pub use margins::MarginChart;
 pub use outlets::{OutletChart, OutletSeries};
 pub use pressure::{PressurePath, PressurePicture, DRAWN_PATHS};
@@ -64,6 +66,10 @@ pub trait Figure {
     fn size(&self) -> (u32, u32);
     /// Draw onto `area` (already sized).
     fn draw<DB: DrawingBackend>(&self, area: &DrawingArea<DB, Shift>) -> Result<(), String>;
+    /// Last touches to the SVG text (e.g. tooltips); unchanged by default.
+    fn finish_svg(&self, svg: String) -> String {
+        svg
+    }
 }
 
 /// Picture formats, by file extension.
@@ -105,7 +111,7 @@ pub fn render(figure: &impl Figure, format: PictureFormat) -> Result<Vec<u8>, St
                 figure.draw(&area)?;
                 area.present().map_err(|e| e.to_string())?;
             }
-            Ok(text.into_bytes())
+            Ok(figure.finish_svg(text).into_bytes())
         }
         PictureFormat::Png => {
             let s = PNG_SCALE as u32;
@@ -148,15 +154,49 @@ pub(crate) fn text_style(size: u32, color: RGBColor) -> TextStyle<'static> {
     style
 }
 
-/// A vertical viridis colour bar at (x, y) of size w × h, framed, with five tick labels from
-/// `lo` (bottom) to `hi` (top) and a label above it.
+/// A colour bar: where, the value range (bottom to top), ticks (value, text), an optional
+/// marked value drawn as a line across the bar (e.g. margin = 1), and a label above.
+pub(crate) struct Bar {
+    pub rect: (i32, i32, i32, i32),
+    pub lo: f64,
+    pub hi: f64,
+    pub ticks: Vec<(f64, String)>,
+    pub mark: Option<(f64, String)>,
+    pub label: String,
+}
+
+/// A vertical viridis colour bar at (x, y) of size w × h, framed, with round ticks (1-2-5
+/// steps, see [`ticks`]) from `lo` (bottom) to `hi` (top) and a label above it.
 pub(crate) fn colour_bar<DB: DrawingBackend>(
     area: &DrawingArea<DB, Shift>,
-    (x, y, w, h): (i32, i32, i32, i32),
+    rect: (i32, i32, i32, i32),
     (lo, hi): (f64, f64),
     label: &str,
 ) -> Result<(), String> {
+    let ticks = ticks::linear(lo, hi, 6)
+        .into_iter()
+        .map(|v| (v, crate::units::display::fmt_sig(v, 3)))
+        .collect();
+    colour_bar_scaled(
+        area,
+        &Bar {
+            rect,
+            lo,
+            hi,
+            ticks,
+            mark: None,
+            label: label.to_string(),
+        },
+    )
+}
+
+/// Draw a [`Bar`].
+pub(crate) fn colour_bar_scaled<DB: DrawingBackend>(
+    area: &DrawingArea<DB, Shift>,
+    bar: &Bar,
+) -> Result<(), String> {
     use plotters::style::colors::colormaps::ViridisRGB;
+    let (x, y, w, h) = bar.rect;
     for k in 0..h {
         let v = 1.0 - k as f64 / h as f64;
         area.draw(&Rectangle::new(
@@ -170,19 +210,45 @@ pub(crate) fn colour_bar<DB: DrawingBackend>(
         ShapeStyle::from(&INK).stroke_width(1),
     ))
     .map_err(drawing)?;
-    for k in 0..=4 {
-        let v = lo + (hi - lo) * k as f64 / 4.0;
-        let ty = y + h - h * k / 4;
+    let span = (bar.hi - bar.lo).max(1e-300);
+    let at = |v: f64| y + h - ((v - bar.lo) / span * h as f64).round() as i32;
+    let mut taken: Vec<i32> = Vec::new();
+    if let Some((v, text)) = &bar.mark {
+        let ty = at(*v);
+        area.draw(&Rectangle::new(
+            [(x - 4, ty - 1), (x + w + 4, ty + 1)],
+            INK.filled(),
+        ))
+        .map_err(drawing)?;
         area.draw(&Text::new(
-            crate::units::display::fmt_sig(v, 3),
-            (x + w + 6, ty - 7),
+            text.clone(),
+            (x + w + 8, ty - 7),
+            text_style(12, INK),
+        ))
+        .map_err(drawing)?;
+        taken.push(ty);
+    }
+    for (v, text) in &bar.ticks {
+        let ty = at(*v);
+        if taken.iter().any(|t| (t - ty).abs() < 15) {
+            continue;
+        }
+        area.draw(&Rectangle::new(
+            [(x + w, ty), (x + w + 4, ty + 1)],
+            INK.filled(),
+        ))
+        .map_err(drawing)?;
+        area.draw(&Text::new(
+            text.clone(),
+            (x + w + 8, ty - 7),
             text_style(11, INK),
         ))
         .map_err(drawing)?;
+        taken.push(ty);
     }
     area.draw(&Text::new(
-        label.to_string(),
-        (x - 40, y - 22),
+        bar.label.clone(),
+        (x - 40, y - 24),
         text_style(12, INK),
     ))
     .map_err(drawing)?;

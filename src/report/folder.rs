@@ -119,20 +119,21 @@ pub fn write(
     folder.put("results.json", super::to_json(chip, state).as_bytes())?;
     folder.put("results.csv", super::to_csv(chip, state).as_bytes())?;
     let mut pictures: Vec<(String, String)> = Vec::new();
-    let (colour, coloured) = if state.channels.iter().any(|s| s.shear_limit.is_some()) {
-        (
-            plots::ColourBy::Margin,
-            "wall-shear margin (limit / maximum wall shear)",
-        )
+    let colour = if state.channels.iter().any(|s| s.shear_limit.is_some()) {
+        plots::ColourBy::Margin
     } else {
-        (plots::ColourBy::Pressure, "pressure")
+        plots::ColourBy::Pressure
     };
     let splits = plots::ChipPicture::new(chip, state, colour);
     pictures.push((
-        format!(
-            "Flow split: line width ∝ |flow|, arrows show direction; channels coloured by \
-             {coloured}."
-        ),
+        if colour == plots::ColourBy::Margin {
+            "Flow split coloured by wall-shear margin (limits are set): line width ∝ channel \
+             width, arrows show direction."
+                .into()
+        } else {
+            "Flow split coloured by pressure: line width ∝ channel width, arrows show direction."
+                .into()
+        },
         folder.picture("splits", &splits)?,
     ));
     let pressure = plots::PressurePicture::new(chip, state);
