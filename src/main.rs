@@ -32,7 +32,6 @@ fn picture_arg(path: Option<&Path>) -> Result<(), rillnet::Error> {
 /// to a pipe), so tests and scripts never see it.
 struct Bar {
     bar: Option<indicatif::ProgressBar>,
-    started: std::time::Instant,
 }
 
 impl Bar {
@@ -50,12 +49,18 @@ impl Bar {
             {
                 bar.set_style(style);
             }
+            // Drawn from the first second on, unless the work is done by then.
+            let later = bar.clone();
+            std::thread::spawn(move || {
+                std::thread::sleep(Self::AFTER);
+                if !later.is_finished() {
+                    later.set_draw_target(indicatif::ProgressDrawTarget::stderr());
+                    later.enable_steady_tick(std::time::Duration::from_millis(200));
+                }
+            });
             bar
         });
-        Bar {
-            bar,
-            started: std::time::Instant::now(),
-        }
+        Bar { bar }
     }
 }
 
@@ -73,10 +78,6 @@ impl Drop for Clear {
 impl Progress for Bar {
     fn begin(&self, phase: Phase) {
         let Some(bar) = &self.bar else { return };
-        if bar.is_hidden() && self.started.elapsed() >= Self::AFTER {
-            bar.set_draw_target(indicatif::ProgressDrawTarget::stderr());
-            bar.enable_steady_tick(std::time::Duration::from_millis(200));
-        }
         bar.set_position(phase.index() as u64);
         bar.set_message(phase.label());
     }
