@@ -1,6 +1,8 @@
 //! Time the phases of `rillnet solve` on a chip file: read+parse+validate, solve, render.
 //!
-//! `cargo run --release --example e2e_phases -- chip.json`
+//! `cargo run --release --example e2e_phases -- chip.json` (jsonc = compact JSON, the default
+//! of `solve -o FILE`; a chip of 10⁶ channels: `cargo run --release --example scale -- --write
+//! 1000000 grid.json`)
 use std::time::Instant;
 fn main() {
     let path = std::env::args().nth(1).expect("usage: e2e_phases CHIP");
@@ -49,14 +51,16 @@ fn main() {
         state,
         sensitivities: None,
     };
-    for (name, f) in [
-        ("json", rillnet::report::Format::Json),
-        ("csv", rillnet::report::Format::Csv),
-        ("table", rillnet::report::Format::Table),
+    use rillnet::report::{Format, JsonLayout};
+    for (name, f, layout) in [
+        ("json", Format::Json, JsonLayout::Pretty),
+        ("jsonc", Format::Json, JsonLayout::Compact),
+        ("csv", Format::Csv, JsonLayout::Pretty),
+        ("table", Format::Table, JsonLayout::Pretty),
     ] {
         let t = Instant::now();
         let mut s = Vec::new();
-        rillnet::report::render(&outcome, f, &mut s).expect("render");
+        rillnet::report::render_with(&outcome, f, layout, &mut s).expect("render");
         println!(
             "render {name:5} ({:6} kB):            {:8.1} ms",
             s.len() / 1024,

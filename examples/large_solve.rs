@@ -6,7 +6,12 @@
 //! cargo run --release --example large_solve                        # 10⁶ unknowns, 5 runs
 //! cargo run --release --example large_solve -- --runs 9 --size 100000
 //! cargo run --release --example large_solve -- --write-mtx DIR     # also write each system
+//! cargo run --release --example large_solve -- --only tree         # one system
 //! ```
+//!
+//! `ref s` is a fixed reference workload timed in the same runs (a dependent random walk over
+//! a 64 MB array, about the memory pattern of the solve): on a shared machine it grows with the
+//! load, so runs measured at different times can be compared through total/ref.
 //!
 //! Systems (invented test networks):
 //! - tree: a random recursive tree of `size` nodes (node i joins a uniformly random earlier
@@ -126,6 +131,25 @@ fn ladder(size: usize) -> Network {
     b.build().expect("connected")
 }
 
+/// The fixed reference workload: 2²² dependent reads at random places of a 64 MB array.
+fn reference() -> f64 {
+    let len = 1usize << 23;
+    let mut next: Vec<u64> = (0..len as u64).collect();
+    let mut rng = Rng(5);
+    for i in (1..len).rev() {
+        let j = (rng.next() % (i as u64 + 1)) as usize;
+        next.swap(i, j);
+    }
+    let t = Instant::now();
+    let mut at = 0u64;
+    for _ in 0..1 << 22 {
+        at = next[at as usize];
+    }
+    let s = secs(t);
+    std::hint::black_box(at);
+    s
+}
+
 fn median(mut v: Vec<f64>) -> f64 {
     v.sort_by(f64::total_cmp);
     v[v.len() / 2]
@@ -185,6 +209,7 @@ fn main() {
         .and_then(|v| v.parse().ok())
         .unwrap_or(1_000_000);
     let mtx = flag("--write-mtx").map(std::path::PathBuf::from);
+    let only = flag("--only").cloned();
     // Grid side for ≈ size channels (708 → 1 001 112 channels at the default size).
     let side = ((size as f64 / 2.0).sqrt().ceil() as usize).max(3);
     // Targets of the issue at 10⁶ unknowns (analyse + factor + solve, one core).
@@ -195,7 +220,7 @@ fn main() {
         ("grid", Box::new(move || grid::grid(side)), 1.0),
     ];
     println!(
-        "{:<7} {:>9} {:>10} {:>9} {:>9} {:>12} {:>9} {:>9} {:>9}  residual",
+        "{:<7} {:>9} {:>10} {:>9} {:>9} {:>12} {:>9} {:>9} {:>9} {:>7}  residual",
         "system",
         "unknowns",
         "eliminated",
@@ -205,8 +230,12 @@ fn main() {
         "total s",
         "target s",
         "whole s",
+        "ref s",
     );
     for (name, make, target) in systems {
+        if only.as_deref().is_some_and(|o| o != name) {
+            continue;
+        }
         let net = make();
         if let Some(dir) = &mtx {
             if let Err(e) = write_mtx(dir, name, &net) {
@@ -217,9 +246,10 @@ fn main() {
         let g = conductances(&net);
         let drives = drive_values(&net);
         let (mut an, mut fa, mut so, mut whole) = (vec![], vec![], vec![], vec![]);
-        let (mut st, mut de) = (vec![], vec![]);
+        let (mut st, mut de, mut rf) = (vec![], vec![], vec![]);
         let (mut unknowns, mut eliminated, mut residual) = (0, 0, 0.0);
         for _ in 0..runs {
+            rf.push(reference());
             let t = Instant::now();
             drop(KirchhoffSystem::new(&net));
             st.push(secs(t));
@@ -259,7 +289,7 @@ fn main() {
             median(de)
         );
         println!(
-            "{:<7} {:>9} {:>10} {:>9.3} {:>9.3} {:>12.3} {:>9.3} {:>9.2} {:>9.3}  {:.1e}",
+            "{:<7} {:>9} {:>10} {:>9.3} {:>9.3} {:>12.3} {:>9.3} {:>9.2} {:>9.3} {:>7.3}  {:.1e}",
             name,
             unknowns,
             eliminated,
@@ -269,12 +299,14 @@ fn main() {
             a + f + s,
             target,
             median(whole),
+            median(rf),
             residual
         );
     }
     println!(
         "\nseconds, medians of {runs} runs, one core. total = analyse + factor + solve+check \
          (the checked path of every command); whole = AMD + Cholesky + solve of the whole matrix \
-         without checks (the path before elimination). Targets are for 10⁶ unknowns."
+         without checks (the path before elimination); ref = the fixed reference workload (see the \
+         top of examples/large_solve.rs). Targets are for 10⁶ unknowns."
     );
 }

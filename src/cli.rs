@@ -48,6 +48,12 @@ pub struct Cli {
     /// the physical memory); larger chips are refused before they are built.
     #[arg(long, global = true, value_parser = rillnet::memory::parse_size)]
     pub memory_budget: Option<u64>,
+    /// JSON without whitespace between tokens (the default when writing to a file with -o).
+    #[arg(long, global = true, conflicts_with = "pretty")]
+    pub compact: bool,
+    /// Indented JSON (the default on standard output), also when writing to a file.
+    #[arg(long, global = true)]
+    pub pretty: bool,
     #[command(subcommand)]
     pub command: Command,
 }

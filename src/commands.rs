@@ -7,7 +7,8 @@ use crate::chip::Chip;
 use crate::error::Error;
 use crate::network::ChannelId;
 pub use crate::outcome::{Changed, Outcome, SectionOutcome, SensitivityTable};
-use crate::report::Format;
+use crate::progress::{Phase, Progress, Silent};
+use crate::report::{Format, JsonLayout};
 use crate::section::numeric::NumericOptions;
 use crate::section::Shape;
 use crate::{fluid, format, output, plots, units};
@@ -107,7 +108,18 @@ fn load_and_solve_with(
     input: &ChipInput<'_>,
     mixing: Option<crate::chip::species::Mixing>,
 ) -> Result<(Chip, SteadyState), Error> {
+    load_and_solve_watched(input, mixing, &Silent)
+}
+
+/// [`load_and_solve_with`] telling `progress` where the work is.
+fn load_and_solve_watched(
+    input: &ChipInput<'_>,
+    mixing: Option<crate::chip::species::Mixing>,
+    progress: &dyn Progress,
+) -> Result<(Chip, SteadyState), Error> {
+    progress.begin(Phase::Loading);
     let mut chip = input.load()?;
+    progress.begin(Phase::Solving);
     if let Some(m) = mixing {
         chip.mixing = m;
     }
@@ -196,7 +208,17 @@ pub fn solve_mixing(
     req: &SolveRequest<'_>,
     mixing: Option<crate::chip::species::Mixing>,
 ) -> Result<Outcome, Error> {
-    let (chip, state) = load_and_solve_with(&req.chip, mixing)?;
+    solve_watched(req, mixing, &Silent)
+}
+
+/// [`solve_mixing`] telling `progress` which phase the work is in (loading, solving; the
+/// caller reports writing).
+pub fn solve_watched(
+    req: &SolveRequest<'_>,
+    mixing: Option<crate::chip::species::Mixing>,
+    progress: &dyn Progress,
+) -> Result<Outcome, Error> {
+    let (chip, state) = load_and_solve_watched(&req.chip, mixing, progress)?;
     if let Some(path) = req.plot {
         margin_plot(&chip, &state, path, &req.chip)?;
     }
@@ -484,7 +506,12 @@ fn positive_duration(flag: &str, text: &str) -> Result<f64, Error> {
 
 /// Solve a chip and check it against its shear limits, pressure rating and vacuum.
 pub fn check(req: &CheckRequest<'_>) -> Result<Outcome, Error> {
-    let (chip, state) = load_and_solve(&req.chip)?;
+    check_watched(req, &Silent)
+}
+
+/// [`check`] telling `progress` which phase the work is in.
+pub fn check_watched(req: &CheckRequest<'_>, progress: &dyn Progress) -> Result<Outcome, Error> {
+    let (chip, state) = load_and_solve_watched(&req.chip, None, progress)?;
     if let Some(path) = req.plot {
         margin_plot(&chip, &state, path, &req.chip)?;
     }
@@ -913,12 +940,20 @@ pub fn write_outcome(
     path: &Path,
     protected: &[&Path],
 ) -> Result<(), Error> {
-    let mut bytes = Vec::new();
-    crate::report::render(outcome, format, &mut bytes).map_err(|e| Error::Write {
-        path: path.to_path_buf(),
-        reason: e.to_string(),
-    })?;
-    output::write_new_file(path, &bytes, protected)
+    write_outcome_as(outcome, format, JsonLayout::Pretty, path, protected)
+}
+
+/// [`write_outcome`] with JSON laid out as `layout`, streamed into the new file.
+pub fn write_outcome_as(
+    outcome: &Outcome,
+    format: Format,
+    layout: JsonLayout,
+    path: &Path,
+    protected: &[&Path],
+) -> Result<(), Error> {
+    output::write_new_file_with(path, protected, &mut |w| {
+        crate::report::render_with(outcome, format, layout, w)
+    })
 }
 
 /// What the `spread` command needs.

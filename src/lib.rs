@@ -30,6 +30,7 @@ pub mod network;
 pub mod outcome;
 pub mod output;
 pub mod plots;
+pub mod progress;
 pub mod report;
 pub mod section;
 pub mod serpentine;
@@ -209,7 +210,17 @@ pub fn emit(
     format: report::Format,
     out: &mut dyn std::io::Write,
 ) -> std::io::Result<()> {
+    emit_as(outcome, format, report::JsonLayout::Pretty, out)
+}
+
+/// [`emit`] with JSON laid out as `layout`.
+pub fn emit_as(
+    outcome: &Outcome,
+    format: report::Format,
+    layout: report::JsonLayout,
+    out: &mut dyn std::io::Write,
+) -> std::io::Result<()> {
     let mut buffered = std::io::BufWriter::with_capacity(1 << 16, out);
-    report::render(outcome, format, &mut buffered)?;
+    report::render_with(outcome, format, layout, &mut buffered)?;
     std::io::Write::flush(&mut buffered)
 }

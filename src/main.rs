@@ -7,7 +7,8 @@ use cli::{Cli, Colour, Command, Show, SyntaxArg};
 use rillnet::commands::{self, Outcome, SensitivityChoice};
 use rillnet::error::exit;
 use rillnet::input::{positive_length, ChipArg};
-use rillnet::report::Format;
+use rillnet::progress::{Phase, Progress};
+use rillnet::report::{Format, JsonLayout};
 use std::io::{IsTerminal, Write};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
@@ -25,6 +26,65 @@ fn picture_arg(path: Option<&Path>) -> Result<(), rillnet::Error> {
         None => Ok(()),
     }
 }
+
+/// The progress line on standard error: drawn only once the work has taken
+/// [`Bar::AFTER`], never when hidden (`-q`, standard error not a terminal, JSON or CSV going
+/// to a pipe), so tests and scripts never see it.
+struct Bar {
+    bar: Option<indicatif::ProgressBar>,
+}
+
+impl Bar {
+    const AFTER: std::time::Duration = std::time::Duration::from_secs(1);
+
+    fn new(cli: &Cli, format: Format, to_file: bool) -> Bar {
+        let piped = !to_file && format != Format::Table && !std::io::stdout().is_terminal();
+        let shown = !cli.quiet && !piped && std::io::stderr().is_terminal();
+        let bar = shown.then(|| {
+            let bar = indicatif::ProgressBar::with_draw_target(
+                Some(Phase::ALL.len() as u64),
+                indicatif::ProgressDrawTarget::hidden(),
+            );
+            if let Ok(style) = indicatif::ProgressStyle::with_template("{bar:12} {msg} ({elapsed})")
+            {
+                bar.set_style(style);
+            }
+            // Drawn from the first second on, unless the work is done by then.
+            let later = bar.clone();
+            std::thread::spawn(move || {
+                std::thread::sleep(Self::AFTER);
+                if !later.is_finished() {
+                    later.set_draw_target(indicatif::ProgressDrawTarget::stderr());
+                    later.enable_steady_tick(std::time::Duration::from_millis(200));
+                }
+            });
+            bar
+        });
+        Bar { bar }
+    }
+}
+
+/// Clears the progress line when dropped.
+struct Clear(Option<&'static Bar>);
+
+impl Drop for Clear {
+    fn drop(&mut self) {
+        if let Some(bar) = self.0.and_then(|b| b.bar.as_ref()) {
+            bar.finish_and_clear();
+        }
+    }
+}
+
+impl Progress for Bar {
+    fn begin(&self, phase: Phase) {
+        let Some(bar) = &self.bar else { return };
+        bar.set_position(phase.index() as u64);
+        bar.set_message(phase.label());
+    }
+}
+
+/// The progress line of a solve or check, cleared once the results are written.
+static BAR: std::sync::OnceLock<Bar> = std::sync::OnceLock::new();
 
 /// Run the command: its outcome and how to deliver it.
 fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), rillnet::Error> {
@@ -62,7 +122,8 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
                 plot: plot.as_deref(),
                 sensitivity: choice,
             };
-            let outcome = commands::solve_mixing(&request, mixing)?;
+            let bar = BAR.get_or_init(|| Bar::new(cli, *format, output.is_some()));
+            let outcome = commands::solve_watched(&request, mixing, bar)?;
             (outcome, *format, output.clone(), vec![arg.path])
         }
         Command::Evolve {
@@ -108,10 +169,12 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
         Command::Check { file, format, plot } => {
             picture_arg(plot.as_deref())?;
             let arg = chip(file)?;
-            let outcome = commands::check(&commands::CheckRequest {
+            let bar = BAR.get_or_init(|| Bar::new(cli, *format, false));
+            let request = commands::CheckRequest {
                 chip: arg.input(),
                 plot: plot.as_deref(),
-            })?;
+            };
+            let outcome = commands::check_watched(&request, bar)?;
             (outcome, *format, None, vec![arg.path])
         }
         Command::Tune {
@@ -235,6 +298,9 @@ fn run(cli: &Cli) -> Result<(Outcome, Format, Option<PathBuf>, Vec<PathBuf>), ri
 
 /// Write to standard error, ignoring failure (nowhere left to report it).
 fn say(text: &str) {
+    if let Some(bar) = BAR.get().and_then(|b| b.bar.as_ref()) {
+        bar.finish_and_clear();
+    }
     let _ = writeln!(std::io::stderr(), "{text}");
 }
 
@@ -268,7 +334,14 @@ fn main() -> ExitCode {
         return result.map_or_else(|e| stdout_failure(&e), |_| ExitCode::from(exit::OK));
     }
     let started = std::time::Instant::now();
-    let (outcome, format, output, inputs) = match run(&cli) {
+    let result = run(&cli);
+    let bar = BAR.get();
+    if let (Some(bar), Ok(_)) = (bar, &result) {
+        bar.begin(Phase::Writing);
+    }
+    // Cleared when main returns, after the results are written.
+    let _clear = Clear(bar);
+    let (outcome, format, output, inputs) = match result {
         Ok(done) => done,
         Err(e) => {
             say(&format!("error: {e}"));
@@ -294,9 +367,17 @@ fn main() -> ExitCode {
         }
         return ExitCode::from(code);
     }
+    // JSON: compact in files, indented on standard output, unless a flag says otherwise.
+    let layout = |to_file: bool| match (cli.compact, cli.pretty) {
+        (true, _) => JsonLayout::Compact,
+        (_, true) => JsonLayout::Pretty,
+        _ if to_file => JsonLayout::Compact,
+        _ => JsonLayout::Pretty,
+    };
     if let Some(path) = output {
         let protected: Vec<&Path> = inputs.iter().map(PathBuf::as_path).collect();
-        if let Err(e) = commands::write_outcome(&outcome, format, &path, &protected) {
+        let written = commands::write_outcome_as(&outcome, format, layout(true), &path, &protected);
+        if let Err(e) = written {
             say(&format!("error: {e}"));
             return ExitCode::from(e.exit_code());
         }
@@ -309,7 +390,7 @@ fn main() -> ExitCode {
     if cli.verbose && stdout.is_terminal() {
         say("rillnet: writing the results");
     }
-    match rillnet::emit(&outcome, format, &mut stdout.lock()) {
+    match rillnet::emit_as(&outcome, format, layout(false), &mut stdout.lock()) {
         Ok(()) => ExitCode::from(code),
         Err(e) => stdout_failure(&e),
     }

@@ -11,6 +11,17 @@ use std::path::Path;
 /// Write `contents` to the new file `path`, atomically; refuse if it exists or if it is
 /// one of `protected` (inputs of this run).
 pub fn write_new_file(path: &Path, contents: &[u8], protected: &[&Path]) -> Result<(), Error> {
+    write_new_file_with(path, protected, &mut |w| w.write_all(contents))
+}
+
+/// [`write_new_file`] with the contents streamed by `write` through a buffer into the
+/// temporary file (a result of hundreds of megabytes is never held in memory whole). An error
+/// of `write` leaves no file behind.
+pub fn write_new_file_with(
+    path: &Path,
+    protected: &[&Path],
+    write: &mut dyn FnMut(&mut dyn Write) -> std::io::Result<()>,
+) -> Result<(), Error> {
     let fail = |reason: String| Error::Write {
         path: path.to_path_buf(),
         reason,
@@ -45,7 +56,12 @@ pub fn write_new_file(path: &Path, contents: &[u8], protected: &[&Path]) -> Resu
         .suffix(".part")
         .tempfile_in(dir)
         .map_err(|e| fail(e.to_string()))?;
-    tmp.write_all(contents).map_err(|e| fail(e.to_string()))?;
+    {
+        let mut buffered = std::io::BufWriter::with_capacity(1 << 16, tmp.as_file_mut());
+        write(&mut buffered)
+            .and_then(|()| buffered.flush())
+            .map_err(|e| fail(e.to_string()))?;
+    }
     // Temporary files are created private (0600); a result file is an ordinary file.
     #[cfg(unix)]
     {

@@ -4,7 +4,23 @@ use super::findings::JsonFinding;
 use super::role;
 use crate::analysis::SteadyState;
 use crate::chip::Chip;
-use serde::Serialize;
+use serde::{Serialize, Serializer};
+
+/// A sequence serialised straight from an iterator, so a document with a million channels is
+/// written record by record without a vector of records (or of text) built first.
+pub(crate) struct Records<'a, T>(Box<dyn Fn() -> Box<dyn Iterator<Item = T> + 'a> + 'a>);
+
+impl<'a, T> Records<'a, T> {
+    fn new<I: Iterator<Item = T> + 'a>(make: impl Fn() -> I + 'a) -> Self {
+        Records(Box::new(move || Box::new(make())))
+    }
+}
+
+impl<T: Serialize> Serialize for Records<'_, T> {
+    fn serialize<S: Serializer>(&self, s: S) -> Result<S::Ok, S::Error> {
+        s.collect_seq((self.0)())
+    }
+}
 
 /// Version of the JSON documents' layout; raised whenever a key changes meaning or moves.
 pub const SCHEMA_VERSION: u32 = 3;
@@ -30,10 +46,10 @@ pub(crate) struct JsonReport<'a> {
     pressure_rating_pa: Option<f64>,
     /// Limits exceeded and model notes, most serious first.
     findings: Vec<JsonFinding>,
-    nodes: Vec<JsonNode<'a>>,
-    ports: Vec<JsonPort<'a>>,
-    channels: Vec<JsonChannel<'a>>,
-    sections: Vec<JsonSection<'a>>,
+    nodes: Records<'a, JsonNode<'a>>,
+    ports: Records<'a, JsonPort<'a>>,
+    channels: Records<'a, JsonChannel<'a>>,
+    sections: Records<'a, JsonSection<'a>>,
     /// `check` only: "pass" or "fail".
     #[serde(skip_serializing_if = "Option::is_none")]
     pub(crate) verdict: Option<&'static str>,
@@ -128,23 +144,21 @@ pub(crate) fn solve_report<'a>(chip: &'a Chip, state: &'a SteadyState) -> JsonRe
         max_relative_residual: sol.max_relative_residual,
         pressure_rating_pa: network.pressure_rating.map(|p| p.si()),
         findings: super::findings::records(chip, &crate::analysis::findings(network, state)),
-        nodes: network
-            .nodes
-            .iter()
-            .enumerate()
-            .map(|(i, n)| JsonNode {
-                name: &n.name,
-                kind: role(n.port),
-                pressure_pa: sol.pressures[i],
-                balance_residual: sol.node_residuals[i],
-                solutes: super::solutes::json(chip, state, super::solutes::At::Node(i)),
-            })
-            .collect(),
-        ports: network
-            .nodes
-            .iter()
-            .enumerate()
-            .filter_map(|(i, n)| {
+        nodes: Records::new(move || {
+            network
+                .nodes
+                .iter()
+                .enumerate()
+                .map(move |(i, n)| JsonNode {
+                    name: &n.name,
+                    kind: role(n.port),
+                    pressure_pa: sol.pressures[i],
+                    balance_residual: sol.node_residuals[i],
+                    solutes: super::solutes::json(chip, state, super::solutes::At::Node(i)),
+                })
+        }),
+        ports: Records::new(move || {
+            network.nodes.iter().enumerate().filter_map(move |(i, n)| {
                 state.port(network, i).map(|p| JsonPort {
                     name: &n.name,
                     kind: role(n.port),
@@ -152,37 +166,36 @@ pub(crate) fn solve_report<'a>(chip: &'a Chip, state: &'a SteadyState) -> JsonRe
                     flow_into_chip_m3_per_s: p.flow_into_chip,
                 })
             })
-            .collect(),
-        channels: network
-            .channels
-            .iter()
-            .zip(&state.channels)
-            .enumerate()
-            .map(|(k, (c, s))| JsonChannel {
-                name: &c.name,
-                from: &network.nodes[c.from].name,
-                to: &network.nodes[c.to].name,
-                section: chip.section_label(crate::network::ChannelId(k)),
-                length_m: c.length.si(),
-                flow_m3_per_s: s.flow,
-                pressure_drop_pa: s.pressure_drop,
-                resistance_pa_s_per_m3: s.resistance,
-                mean_velocity_m_per_s: s.mean_velocity,
-                reynolds: s.reynolds,
-                wall_shear_mean_pa: s.wall_shear_mean,
-                wall_shear_max_pa: s.wall_shear_max,
-                shear_limit_pa: s.shear_limit,
-                shear_margin: s.shear_margin.filter(|m| m.is_finite()),
-                entrance_length_m: s.entrance_length,
-                residence_time_s: Some(s.residence_time).filter(|t| t.is_finite()),
-                power_w: s.power,
-                solutes: super::solutes::json(chip, state, super::solutes::At::Channel(k)),
-            })
-            .collect(),
-        sections: network
-            .sections
-            .iter()
-            .map(|s| JsonSection {
+        }),
+        channels: Records::new(move || {
+            network
+                .channels
+                .iter()
+                .zip(&state.channels)
+                .enumerate()
+                .map(move |(k, (c, s))| JsonChannel {
+                    name: &c.name,
+                    from: &network.nodes[c.from].name,
+                    to: &network.nodes[c.to].name,
+                    section: chip.section_label(crate::network::ChannelId(k)),
+                    length_m: c.length.si(),
+                    flow_m3_per_s: s.flow,
+                    pressure_drop_pa: s.pressure_drop,
+                    resistance_pa_s_per_m3: s.resistance,
+                    mean_velocity_m_per_s: s.mean_velocity,
+                    reynolds: s.reynolds,
+                    wall_shear_mean_pa: s.wall_shear_mean,
+                    wall_shear_max_pa: s.wall_shear_max,
+                    shear_limit_pa: s.shear_limit,
+                    shear_margin: s.shear_margin.filter(|m| m.is_finite()),
+                    entrance_length_m: s.entrance_length,
+                    residence_time_s: Some(s.residence_time).filter(|t| t.is_finite()),
+                    power_w: s.power,
+                    solutes: super::solutes::json(chip, state, super::solutes::At::Channel(k)),
+                })
+        }),
+        sections: Records::new(move || {
+            network.sections.iter().map(move |s| JsonSection {
                 name: &s.name,
                 shape: s.shape.kind(),
                 area_m2: s.figures.area,
@@ -193,7 +206,7 @@ pub(crate) fn solve_report<'a>(chip: &'a Chip, state: &'a SteadyState) -> JsonRe
                     .resistance_per_length(network.fluid.viscosity.si()),
                 fre_fanning: s.figures.f_re(),
             })
-            .collect(),
+        }),
         verdict: None,
         sensitivities: None,
     }
@@ -264,4 +277,102 @@ pub(crate) fn sensitivity_json<'a>(
 /// `x` with a negative zero made positive (no output prints −0).
 fn z(x: f64) -> f64 {
     x + 0.0
+}
+
+/// How a JSON document is laid out. The keys, values and order are the same either way;
+/// only the whitespace between tokens differs.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+pub enum JsonLayout {
+    /// Indented, one value per line: for people (the default on standard output).
+    #[default]
+    Pretty,
+    /// No whitespace between tokens: for files and programs (the default with `-o`; about
+    /// half the bytes of the indented layout for a solve document, and quicker to write).
+    Compact,
+}
+
+/// Write a serialisable document in `layout` and a final newline.
+pub(crate) fn write_json_as<T: Serialize>(
+    value: &T,
+    layout: JsonLayout,
+    w: &mut dyn std::io::Write,
+) -> std::io::Result<()> {
+    match layout {
+        JsonLayout::Pretty => write_json(value, w),
+        JsonLayout::Compact => {
+            serde_json::to_writer(&mut *w, value).map_err(std::io::Error::from)?;
+            w.write_all(b"\n")
+        }
+    }
+}
+
+/// A writer that drops the whitespace between the tokens of the JSON written through it
+/// (whitespace inside strings is kept): indented JSON in, compact JSON out, for the documents
+/// that are only written indented.
+pub(crate) struct Minify<'w> {
+    inner: &'w mut dyn std::io::Write,
+    in_string: bool,
+    escaped: bool,
+    buf: Vec<u8>,
+}
+
+impl<'w> Minify<'w> {
+    pub(crate) fn new(inner: &'w mut dyn std::io::Write) -> Self {
+        Minify {
+            inner,
+            in_string: false,
+            escaped: false,
+            buf: Vec::with_capacity(1 << 16),
+        }
+    }
+}
+
+impl std::io::Write for Minify<'_> {
+    fn write(&mut self, bytes: &[u8]) -> std::io::Result<usize> {
+        for &b in bytes {
+            if self.in_string {
+                if self.escaped {
+                    self.escaped = false;
+                } else if b == b'\\' {
+                    self.escaped = true;
+                } else if b == b'"' {
+                    self.in_string = false;
+                }
+            } else if b == b'"' {
+                self.in_string = true;
+            } else if matches!(b, b' ' | b'\n' | b'\r' | b'\t') {
+                continue;
+            }
+            self.buf.push(b);
+        }
+        if self.buf.len() >= 1 << 16 {
+            self.inner.write_all(&self.buf)?;
+            self.buf.clear();
+        }
+        Ok(bytes.len())
+    }
+
+    fn flush(&mut self) -> std::io::Result<()> {
+        self.inner.write_all(&self.buf)?;
+        self.buf.clear();
+        self.inner.flush()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::io::Write;
+
+    #[test]
+    fn minify_keeps_strings_and_drops_layout() {
+        let mut out = Vec::new();
+        {
+            let mut m = Minify::new(&mut out);
+            m.write_all(b"{\n  \"a b\": \"x \\\" y\",\n  \"c\": [\n    1,\n    2\n  ]\n}\n")
+                .unwrap();
+            m.flush().unwrap();
+        }
+        assert_eq!(out, b"{\"a b\":\"x \\\" y\",\"c\":[1,2]}".to_vec());
+    }
 }

@@ -19,7 +19,7 @@ pub use csv::to_csv;
 pub use design::{sensitivity_report, size_report, tune_report};
 pub use findings::{finding_text, note_text};
 pub use html::{html_page, utc_date, Made};
-pub use json::{to_json, SCHEMA_VERSION};
+pub use json::{to_json, JsonLayout, SCHEMA_VERSION};
 pub use section::section_report;
 pub use text::{check_text, to_table};
 
@@ -60,6 +60,50 @@ fn operating_point_table(after: &crate::outcome::Changed, w: &mut dyn Write) -> 
         b"\nOperating point of the changed chip (the copy as written, read back and solved)\n\n",
     )?;
     w.write_all(to_table(&after.chip, &after.state).as_bytes())
+}
+
+/// [`render`] with JSON laid out as `layout` (tables and CSV are the same either way). A
+/// solve or check document is serialised compact directly; the other documents pass through
+/// [`json::Minify`].
+pub fn render_with(
+    outcome: &Outcome,
+    format: Format,
+    layout: JsonLayout,
+    w: &mut dyn Write,
+) -> io::Result<()> {
+    if format != Format::Json || layout == JsonLayout::Pretty {
+        return render(outcome, format, w);
+    }
+    match outcome {
+        Outcome::Solved {
+            chip,
+            state,
+            sensitivities,
+        } => {
+            let mut doc = json::solve_report(chip, state);
+            doc.sensitivities = sensitivities
+                .as_ref()
+                .map(|t| json::sensitivity_json(&chip.network, t));
+            json::write_json_as(&doc, layout, w)
+        }
+        Outcome::Checked {
+            chip,
+            state,
+            passed,
+        } => {
+            let mut doc = json::solve_report(chip, state);
+            doc.verdict = Some(if *passed { "pass" } else { "fail" });
+            json::write_json_as(&doc, layout, w)
+        }
+        Outcome::Wrote(_) => Ok(()),
+        other => {
+            let mut m = json::Minify::new(w);
+            render(other, format, &mut m)?;
+            m.flush()?;
+            drop(m);
+            w.write_all(b"\n")
+        }
+    }
 }
 
 /// Render a command's outcome in `format` to `w`. An outcome that has nothing to print

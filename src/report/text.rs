@@ -71,6 +71,23 @@ impl TextTable {
     }
 }
 
+/// Most rows a terminal table lists. A longer table (junctions, channels, wall shear of a chip
+/// of thousands of channels) lists its first rows (the worst, where there is an order) and says
+/// how many it left out and where to find them all: read on a terminal, a million rows help no
+/// one, and writing them takes seconds.
+pub const TABLE_ROWS: usize = 5000;
+
+/// The note under a table cut at [`TABLE_ROWS`] rows of `total` (nothing when not cut).
+fn cut_note(total: usize, what: &str, out: &mut String) {
+    if total > TABLE_ROWS {
+        out.push_str(&format!(
+            "  … {} more {what} not listed (a table lists at most {TABLE_ROWS} rows; \
+             --format csv or --format json gives all {total})\n",
+            total - TABLE_ROWS
+        ));
+    }
+}
+
 /// Render a table of text rows (columns from `first_numeric` on right-aligned) into `out`.
 pub(crate) fn render_rows(
     header: &[String],
@@ -134,7 +151,7 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
         .collect();
     if !junctions.is_empty() {
         let mut nodes = TextTable::new(&["Junction", "Pressure [mbar]"], 1);
-        for i in junctions {
+        for &i in junctions.iter().take(TABLE_ROWS) {
             nodes.add_row(vec![
                 network.nodes[NodeId(i)].name.clone(),
                 fmt_sig(display::mbar(sol.pressures[i]), 4),
@@ -142,6 +159,7 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
         }
         out.push_str("\nJunctions\n");
         nodes.render(&mut out);
+        cut_note(junctions.len(), "junctions", &mut out);
     }
 
     let mut ch = TextTable::new(
@@ -156,7 +174,12 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
         ],
         2,
     );
-    for (c, s) in network.channels.iter().zip(&state.channels) {
+    for (c, s) in network
+        .channels
+        .iter()
+        .zip(&state.channels)
+        .take(TABLE_ROWS)
+    {
         let (a, b) = (&network.nodes[c.from].name, &network.nodes[c.to].name);
         let direction = if s.flow == 0.0 {
             format!("{a} ─ {b} (no flow)")
@@ -178,6 +201,7 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
     }
     out.push_str("\nChannels\n");
     ch.render(&mut out);
+    cut_note(network.channels.len(), "channels", &mut out);
     out.push('\n');
     shear_section(network, state, &mut out);
     super::solutes::text_section(chip, state, &mut out);
@@ -194,9 +218,10 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
 
 /// Channels in the order a cell biologist wants them: smallest shear margin first, then
 /// channels without a limit by decreasing maximum shear; ties (to 10 digits) in file order.
+/// At most [`TABLE_ROWS`] of them: the worst are selected first (O(n)), then sorted.
 pub(super) fn worst_first(state: &SteadyState) -> Vec<usize> {
     let mut order: Vec<usize> = (0..state.channels.len()).collect();
-    order.sort_by(|&a, &b| {
+    let cmp = |&a: &usize, &b: &usize| {
         let (sa, sb) = (&state.channels[a], &state.channels[b]);
         match (sa.shear_margin, sb.shear_margin) {
             (Some(ma), Some(mb)) => tie_key(ma).total_cmp(&tie_key(mb)),
@@ -205,7 +230,12 @@ pub(super) fn worst_first(state: &SteadyState) -> Vec<usize> {
             (None, None) => tie_key(sb.wall_shear_max).total_cmp(&tie_key(sa.wall_shear_max)),
         }
         .then(a.cmp(&b))
-    });
+    };
+    if order.len() > TABLE_ROWS {
+        order.select_nth_unstable_by(TABLE_ROWS, cmp);
+        order.truncate(TABLE_ROWS);
+    }
+    order.sort_by(cmp);
     order
 }
 
@@ -263,6 +293,7 @@ pub fn shear_section(network: &Network, state: &SteadyState, out: &mut String) {
         "Wall shear stress (highest first; no shear limit set: add 'shear_limit' to fluid.cells or a channel)\n"
     });
     t.render(out);
+    cut_note(state.channels.len(), "channels", out);
 }
 
 /// Limits exceeded, notes, and the cautions that apply.

@@ -324,9 +324,15 @@ impl Plan {
         };
         let (mut channel_edge, mut channel_ground) = (Vec::new(), Vec::new());
         for (c, s) in network.channels.iter().zip(&system.slots) {
-            channel_edge.push(s.off.map_or(NONE, |e| e as u32));
-            let ground = match (system.unknown_of[c.from.0], system.unknown_of[c.to.0]) {
-                (Some(a), None) | (None, Some(a)) => a as u32,
+            channel_edge.push(if s.off == super::NONE {
+                NONE
+            } else {
+                s.off as u32
+            });
+            let (a, b) = (system.unknown_of[c.from.0], system.unknown_of[c.to.0]);
+            let ground = match (a == super::NONE, b == super::NONE) {
+                (false, true) => a as u32,
+                (true, false) => b as u32,
                 _ => NONE,
             };
             channel_ground.push(ground);

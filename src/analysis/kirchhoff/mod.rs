@@ -127,29 +127,36 @@ pub enum SolveError {
     },
 }
 
-/// Where each channel's conductance lands in the matrix value array.
+/// No unknown / no slot.
+const NONE: usize = usize::MAX;
+
+/// Where each channel's conductance lands in the matrix value array ([`NONE`] where the end
+/// is a pressure port).
 #[derive(Clone, Copy, Debug)]
 struct ChannelSlots {
     /// Slot of the diagonal entry of `from` (if `from` is an unknown).
-    from_diag: Option<usize>,
+    from_diag: usize,
     /// Slot of the diagonal entry of `to` (if `to` is an unknown).
-    to_diag: Option<usize>,
+    to_diag: usize,
     /// Slot of the off-diagonal entry (if both ends are unknowns).
-    off: Option<usize>,
+    off: usize,
 }
 
 /// The assembled structure of a network's Kirchhoff system: which node is which unknown,
 /// the sparsity pattern, and where each channel's conductance goes. It depends on the
 /// topology and on which nodes are pressure ports, not on the values, so sweeps over
 /// channel sizes or drive settings reuse it (and its symbolic factorisation).
+///
+/// Built in O(nodes + channels) without a comparison sort
+/// ([`SymmetricPattern::from_entries`]); every unknown's diagonal is the first entry of its
+/// column.
 #[derive(Debug)]
 pub struct KirchhoffSystem {
-    unknown_of: Vec<Option<usize>>,
+    /// Per node: its unknown, or [`NONE`] at a known pressure.
+    unknown_of: Vec<usize>,
     node_of: Vec<usize>,
     pattern: SymmetricPattern,
     slots: Vec<ChannelSlots>,
-    /// Slot of each unknown's diagonal entry.
-    diag: Vec<usize>,
 }
 
 impl KirchhoffSystem {
@@ -166,56 +173,70 @@ impl KirchhoffSystem {
     /// The structure with the nodes marked `fixed` as known pressures and every other node an
     /// unknown (time evolution frees the wells, whose pressure follows their level).
     pub fn with_fixed(network: &Network, fixed: &[bool]) -> Self {
-        let mut unknown_of = Vec::with_capacity(network.nodes.len());
-        let mut node_of = Vec::new();
-        for (i, &f) in fixed.iter().enumerate().take(network.nodes.len()) {
-            if f {
-                unknown_of.push(None);
-            } else {
-                unknown_of.push(Some(node_of.len()));
+        let nodes = network.nodes.len();
+        let mut unknown_of = vec![NONE; nodes];
+        let mut node_of = Vec::with_capacity(nodes);
+        for (i, &f) in fixed.iter().enumerate().take(nodes) {
+            if !f {
+                unknown_of[i] = node_of.len();
                 node_of.push(i);
             }
         }
-        let n = node_of.len();
-        // Positions 0..n are the diagonals (so isolated unknowns still have an entry); then one
-        // off-diagonal position per channel joining two unknowns. A channel's diagonal slots
-        // are those of its end nodes.
-        let mut positions: Vec<(usize, usize)> = (0..n).map(|i| (i, i)).collect();
-        positions.reserve(network.channels.len());
-        let mut off_position = Vec::with_capacity(network.channels.len());
-        for c in &network.channels {
-            match (unknown_of[c.from.0], unknown_of[c.to.0]) {
-                (Some(a), Some(b)) => {
-                    off_position.push(Some(positions.len()));
-                    positions.push((a, b));
-                }
-                _ => off_position.push(None),
-            }
+        // A node beyond `fixed` is an unknown, as before.
+        for (i, u) in unknown_of.iter_mut().enumerate().skip(fixed.len()) {
+            *u = node_of.len();
+            node_of.push(i);
         }
-        let (pattern, slot_of) = SymmetricPattern::from_positions(n, &positions);
-        let slots = network
+        let n = node_of.len();
+        // Entries 0..n are the diagonals (so isolated unknowns still have one); then one
+        // off-diagonal entry per channel joining two unknowns, in channel order.
+        let ends: Vec<(usize, usize)> = network
             .channels
             .iter()
-            .zip(off_position)
-            .map(|(c, off)| ChannelSlots {
-                from_diag: unknown_of[c.from.0].map(|a| slot_of[a]),
-                to_diag: unknown_of[c.to.0].map(|b| slot_of[b]),
-                off: off.map(|k| slot_of[k]),
+            .map(|c| (unknown_of[c.from.0], unknown_of[c.to.0]))
+            .collect();
+        let joined: Vec<(usize, usize)> = ends
+            .iter()
+            .copied()
+            .filter(|&(a, b)| a != NONE && b != NONE)
+            .collect();
+        let (pattern, slot_of) = SymmetricPattern::from_entries(n, n + joined.len(), |k| {
+            if k < n {
+                (k, k)
+            } else {
+                joined[k - n]
+            }
+        });
+        drop(joined);
+        let diag = |u: usize| if u == NONE { NONE } else { slot_of[u] };
+        let mut next_off = n;
+        let slots = ends
+            .iter()
+            .map(|&(a, b)| {
+                let off = if a != NONE && b != NONE {
+                    next_off += 1;
+                    slot_of[next_off - 1]
+                } else {
+                    NONE
+                };
+                ChannelSlots {
+                    from_diag: diag(a),
+                    to_diag: diag(b),
+                    off,
+                }
             })
             .collect();
-        let diag = slot_of[..n].to_vec();
         KirchhoffSystem {
             unknown_of,
             node_of,
             pattern,
             slots,
-            diag,
         }
     }
 
     /// Slot of the diagonal entry of unknown `u` in the matrix values.
     pub fn diagonal_slot(&self, u: usize) -> usize {
-        self.diag[u]
+        self.pattern.column(u).0
     }
 
     /// The sparsity pattern (lower triangle).
@@ -232,14 +253,14 @@ impl KirchhoffSystem {
     pub fn matrix_values(&self, g: &[f64]) -> Vec<f64> {
         let mut values = vec![0.0; self.pattern.nnz()];
         for (s, &gk) in self.slots.iter().zip(g) {
-            if let Some(i) = s.from_diag {
-                values[i] += gk;
+            if s.from_diag != NONE {
+                values[s.from_diag] += gk;
             }
-            if let Some(i) = s.to_diag {
-                values[i] += gk;
+            if s.to_diag != NONE {
+                values[s.to_diag] += gk;
             }
-            if let Some(i) = s.off {
-                values[i] -= gk;
+            if s.off != NONE {
+                values[s.off] -= gk;
             }
         }
         values
@@ -255,18 +276,18 @@ impl KirchhoffSystem {
     /// depend on the drives, so one factorisation serves every setting.
     pub fn rhs_for(&self, network: &Network, g: &[f64], drives: &[f64]) -> Vec<f64> {
         let mut b = vec![0.0; self.dim()];
-        for ((node, u), d) in network.nodes.iter().zip(&self.unknown_of).zip(drives) {
-            if let (Port::Flow(_), Some(u)) = (node.port, u) {
-                b[*u] += d;
+        for ((node, &u), d) in network.nodes.iter().zip(&self.unknown_of).zip(drives) {
+            if let (Port::Flow(_), true) = (node.port, u != NONE) {
+                b[u] += d;
             }
         }
         for (c, &gk) in network.channels.iter().zip(g) {
             let a = self.unknown_of[c.from.0];
             let bb = self.unknown_of[c.to.0];
-            match (a, bb) {
-                (Some(a), None) => b[a] += gk * drives[c.to.0],
-                (None, Some(bb)) => b[bb] += gk * drives[c.from.0],
-                _ => {}
+            if a != NONE && bb == NONE {
+                b[a] += gk * drives[c.to.0];
+            } else if a == NONE && bb != NONE {
+                b[bb] += gk * drives[c.from.0];
             }
         }
         b
@@ -282,16 +303,13 @@ impl KirchhoffSystem {
         self.unknown_of
             .iter()
             .zip(drives)
-            .map(|(u, d)| match u {
-                Some(u) => x[*u],
-                None => *d,
-            })
+            .map(|(&u, &d)| if u == NONE { d } else { x[u] })
             .collect()
     }
 
     /// The unknown index of a node (None for pressure ports).
     pub fn unknown(&self, node: usize) -> Option<usize> {
-        self.unknown_of[node]
+        Some(self.unknown_of[node]).filter(|&u| u != NONE)
     }
 
     /// The node of an unknown index (the inverse of [`KirchhoffSystem::unknown`]).
