@@ -194,8 +194,8 @@ pub fn load_chip(path: &Path) -> Result<Chip, Error> {
     // Files the chip names (measured profiles) are found beside the chip file.
     let base = path.parent().unwrap_or(Path::new(".")).to_path_buf();
     let read = move |name: &str| read_named_file(&base.join(name));
-    Ok(format::parse_chip_with(
-        &text,
+    Ok(format::parse_chip_owned(
+        text,
         &origin,
         format::Syntax::from_path(path),
         &read,

@@ -401,7 +401,9 @@ impl ChipFile {
         Ok(drives)
     }
 
-    fn into_chip(self, read: FileReader<'_>, source: Source) -> Result<Chip, Misplaced> {
+    /// The chip, taking `source`'s text once nothing can fail any more (on an error the text
+    /// stays with the caller, to locate the error in it).
+    fn into_chip(self, read: FileReader<'_>, source: &mut Source) -> Result<Chip, Misplaced> {
         let (fluid, notes) = self.fluid.to_fluid()?;
         let mut b =
             NetworkBuilder::new(fluid).with_capacity(self.nodes.0.len(), self.channels.0.len());
@@ -492,7 +494,11 @@ impl ChipFile {
         Ok(Chip {
             name: self.name,
             description: self.description,
-            source,
+            source: Source {
+                origin: std::mem::take(&mut source.origin),
+                text: std::mem::take(&mut source.text),
+                syntax: source.syntax,
+            },
             network,
             design,
             species,
@@ -935,6 +941,17 @@ pub fn parse_chip_with(
     syntax: Syntax,
     read: FileReader<'_>,
 ) -> Result<Chip, InputError> {
+    parse_chip_owned(text.to_string(), origin, syntax, read)
+}
+
+/// [`parse_chip_with`] taking the text by value: the chip keeps it as its source without a
+/// second copy (a 10⁶-channel file is about 100 MB).
+pub fn parse_chip_owned(
+    mut text: String,
+    origin: &str,
+    syntax: Syntax,
+    read: FileReader<'_>,
+) -> Result<Chip, InputError> {
     if text.len() > MAX_FILE_BYTES {
         return Err(InputError::whole_file(
             origin,
@@ -946,13 +963,15 @@ pub fn parse_chip_with(
     }
     within_budget(origin, crate::memory::for_text(text.len()), "its size")?;
     // A byte-order mark is not part of the text (editors on some systems write one).
-    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
+    if text.starts_with('\u{feff}') {
+        text.drain(..'\u{feff}'.len_utf8());
+    }
     let file: ChipFile = match syntax {
-        Syntax::Yaml => read_yaml(text, origin)?,
+        Syntax::Yaml => read_yaml(&text, origin)?,
         Syntax::Json => {
             // Fast path without path tracking; on error, parse again to learn the field path.
-            serde_json::from_str::<ChipFile>(text).map_err(|plain| {
-                let mut de = serde_json::Deserializer::from_str(text);
+            serde_json::from_str::<ChipFile>(&text).map_err(|plain| {
+                let mut de = serde_json::Deserializer::from_str(&text);
                 let path = match serde_path_to_error::deserialize::<_, ChipFile>(&mut de) {
                     Err(e) => Some(e.path().to_string()).filter(|p| p != "."),
                     Ok(_) => None,
@@ -976,19 +995,19 @@ pub fn parse_chip_with(
             file.channels.0.len()
         ),
     )?;
-    let source = Source {
+    let mut source = Source {
         origin: origin.to_string(),
-        text: text.to_string(),
+        text,
         syntax,
     };
-    file.into_chip(read, source).map_err(|m| {
+    file.into_chip(read, &mut source).map_err(|m| {
         let mut parts: Vec<&str> = m.path.iter().map(String::as_str).collect();
         if m.repeated {
             if let Some(last) = parts.last().copied() {
                 parts.push(last);
             }
         }
-        let place = locate(text, &parts);
+        let place = locate(&source.text, &parts);
         InputError {
             origin: origin.to_string(),
             line: place.map(|p| p.0),
