@@ -11,8 +11,7 @@
 //! then PNG), and their ratios to the solve. Above `plots::LARGE_LIMIT` channels the split
 //! picture is drawn as thin coloured lines with only the ports named.
 
-use rillnet::chip::{Chip, DrawnLayout, Source};
-use rillnet::format::Syntax;
+use rillnet::chip::Chip;
 use rillnet::plots::{self, PictureFormat};
 use rillnet::prelude::*;
 use std::time::Instant;
@@ -38,23 +37,7 @@ fn main() {
         let side = ((channels as f64 / 2.0).sqrt().round() as usize).max(2);
         let network = grid(side);
         let n = network.channels.len();
-        let chip = Chip {
-            name: Some(format!("grid {side}×{side}")),
-            description: None,
-            source: Source {
-                origin: "generated".into(),
-                text: String::new(),
-                syntax: Syntax::Yaml,
-            },
-            network,
-            design: Default::default(),
-            species: Vec::new(),
-            mixing: Default::default(),
-            layout: DrawnLayout::default(),
-            drives: Default::default(),
-            tolerances: Default::default(),
-            notes: Vec::new(),
-        };
+        let chip = Chip::from_network(format!("grid {side}×{side}"), network);
         let t = Instant::now();
         let state = steady_state(&chip.network).expect("solve");
         let solve = seconds(t);

@@ -12,8 +12,7 @@
 //! Printed per chip and size: the solve, the tracing (`PressurePicture::new`), the SVG and PNG
 //! rendering (left out above 2·10⁶ points), the paths drawn and the points on them.
 
-use rillnet::chip::{Chip, DrawnLayout, Source};
-use rillnet::format::Syntax;
+use rillnet::chip::Chip;
 use rillnet::plots::{self, PictureFormat};
 use rillnet::prelude::*;
 use std::time::Instant;
@@ -91,23 +90,7 @@ fn main() {
 
 fn run(kind: &str, network: Network) {
     let n = network.channels.len();
-    let chip = Chip {
-        name: Some(format!("{kind} {n}")),
-        description: None,
-        source: Source {
-            origin: "generated".into(),
-            text: String::new(),
-            syntax: Syntax::Yaml,
-        },
-        network,
-        design: Default::default(),
-        species: Vec::new(),
-        mixing: Default::default(),
-        layout: DrawnLayout::default(),
-        drives: Default::default(),
-        tolerances: Default::default(),
-        notes: Vec::new(),
-    };
+    let chip = Chip::from_network(format!("{kind} {n}"), network);
     let t = Instant::now();
     let state = steady_state(&chip.network).expect("solve");
     let solve = seconds(t);

@@ -92,14 +92,6 @@ impl LevelTable {
         Ok(LevelTable { heights, volumes })
     }
 
-    /// The rows, bottom first.
-    pub fn rows(&self) -> impl Iterator<Item = (f64, f64)> + '_ {
-        self.heights
-            .iter()
-            .copied()
-            .zip(self.volumes.iter().copied())
-    }
-
     /// Height of the last row: the well is full there [m].
     pub fn top(&self) -> f64 {
         self.heights[self.heights.len() - 1]

@@ -106,6 +106,28 @@ pub struct Chip {
 }
 
 impl Chip {
+    /// A chip with no file behind it (a network built in code, e.g. by a benchmark): no
+    /// design problem, drawing, drives, tolerances or notes.
+    pub fn from_network(name: impl Into<String>, network: Network) -> Chip {
+        Chip {
+            name: Some(name.into()),
+            description: None,
+            source: Source {
+                origin: "generated".into(),
+                text: String::new(),
+                syntax: Syntax::Yaml,
+            },
+            network,
+            design: Default::default(),
+            species: Vec::new(),
+            mixing: Default::default(),
+            layout: DrawnLayout::default(),
+            drives: Default::default(),
+            tolerances: Default::default(),
+            notes: Vec::new(),
+        }
+    }
+
     /// The name to print in titles.
     pub fn title(&self) -> &str {
         self.name.as_deref().unwrap_or("chip")

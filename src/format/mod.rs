@@ -706,18 +706,15 @@ fn well(name: &str, r: &ReservoirSpec, has_elevation: bool) -> Result<Well, Misp
 
 /// A well's geometry: exactly one of `area`, `diameter` and `table`.
 fn well_shape(name: &str, r: &ReservoirSpec) -> Result<WellShape, Misplaced> {
-    let place = |field: &str| ["nodes", name, "reservoir", field].map(str::to_string);
-    let given = [r.area.is_some(), r.diameter.is_some(), r.table.is_some()];
-    if given.iter().filter(|g| **g).count() > 1 {
-        let second = ["area", "diameter", "table"]
-            .into_iter()
-            .zip(given)
-            .filter(|(_, g)| *g)
-            .nth(1)
-            .map_or("table", |(f, _)| f);
-        let [a, b, c, d] = place(second);
+    let given = [
+        ("area", r.area.is_some()),
+        ("diameter", r.diameter.is_some()),
+        ("table", r.table.is_some()),
+    ];
+    // Point at the second geometry given.
+    if let Some((second, _)) = given.iter().filter(|(_, g)| *g).nth(1) {
         return Err(at(
-            &[&a, &b, &c, &d],
+            &["nodes", name, "reservoir", second],
             "give one of the well's 'area', 'diameter' or level–volume 'table', not several",
         ));
     }
