@@ -260,6 +260,15 @@ pub enum NetworkError {
     #[error("the chip has no channels; add at least one channel between two nodes")]
     Empty,
     #[error(
+        "the chip has {nodes} nodes and {channels} channels; rillnet solves at most {limit} of \
+         each. Split the network into parts joined at pressure ports"
+    )]
+    TooLarge {
+        nodes: usize,
+        channels: usize,
+        limit: usize,
+    },
+    #[error(
         "{kind} name '{shown}' contains {what} (U+{code:04X}); names may not hide characters. \
          Use visible letters, digits, '_', '-' or '.'"
     )]
@@ -316,7 +325,7 @@ impl NetworkError {
                 Some(first) => p(&["nodes", first]),
                 None => p(&["nodes"]),
             },
-            NetworkError::Empty => p(&["channels"]),
+            NetworkError::Empty | NetworkError::TooLarge { .. } => p(&["channels"]),
             NetworkError::BadName { kind, name, .. } => match *kind {
                 "node" => p(&["nodes", name]),
                 "section" => p(&["sections", name]),
@@ -776,6 +785,15 @@ impl NetworkBuilder {
         if self.channels.is_empty() {
             return Err(NetworkError::Empty);
         }
+        // Node and channel indices are held in 32 bits in the solver's compact topology.
+        let limit = u32::MAX as usize - 1;
+        if self.nodes.len() > limit || self.channels.len() > limit {
+            return Err(NetworkError::TooLarge {
+                nodes: self.nodes.len(),
+                channels: self.channels.len(),
+                limit,
+            });
+        }
         let mut graph = UnGraph::with_capacity(self.nodes.len(), self.channels.len());
         for i in 0..self.nodes.len() {
             graph.add_node(NodeId(i));
@@ -870,36 +888,12 @@ impl Network {
     /// channel counts once at each of its two ends. A peeled branch is followed to its end
     /// at once, so no work list is needed.
     pub fn dead_end_channels(&self) -> Vec<bool> {
-        let n = self.nodes.len();
-        let mut dead = vec![false; self.channels.len()];
-        let mut degree = vec![0u32; n];
-        let mut xor = vec![0usize; n];
-        for (k, c) in self.channels.iter().enumerate() {
-            degree[c.from.0] += 1;
-            degree[c.to.0] += 1;
-            xor[c.from.0] ^= k;
-            xor[c.to.0] ^= k;
-        }
-        let junction: Vec<bool> = self
-            .nodes
+        let ends: Vec<[u32; 2]> = self
+            .channels
             .iter()
-            .map(|node| node.port == Port::Junction)
+            .map(|c| [c.from.0 as u32, c.to.0 as u32])
             .collect();
-        for start in 0..n {
-            let mut leaf = start;
-            while degree[leaf] == 1 && junction[leaf] {
-                let k = xor[leaf];
-                dead[k] = true;
-                let c = &self.channels[ChannelId(k)];
-                let other = if c.from.0 == leaf { c.to.0 } else { c.from.0 };
-                degree[leaf] = 0;
-                xor[leaf] = 0;
-                degree[other] -= 1;
-                xor[other] ^= k;
-                leaf = other;
-            }
-        }
-        dead
+        dead_end_mask(&ends, |i| self.nodes[NodeId(i)].port == Port::Junction)
     }
 
     /// Hydraulic resistance of a channel, R = μ·L/K [Pa·s/m³].
@@ -961,6 +955,42 @@ impl Network {
     pub fn section_of(&self, channel: ChannelId) -> &Section {
         &self.sections[self.channels[channel].section]
     }
+}
+
+/// [`Network::dead_end_channels`] for channels given by their (from, to) node indices (every
+/// node index below `u32::MAX`, which [`NetworkBuilder::build`] guarantees) and `junction(i)`
+/// telling whether node i is a junction. The per-node count and XOR sit side by side (one
+/// cache line per visit: on a large random tree the visits are random).
+pub(crate) fn dead_end_mask(ends: &[[u32; 2]], junction: impl Fn(usize) -> bool) -> Vec<bool> {
+    let n = ends
+        .iter()
+        .map(|&[a, b]| a.max(b) as usize + 1)
+        .max()
+        .unwrap_or(0);
+    let mut dead = vec![false; ends.len()];
+    // Per node: live channels and the XOR of their indices.
+    let mut live = vec![[0u32; 2]; n];
+    for (k, &[a, b]) in ends.iter().enumerate() {
+        for end in [a, b] {
+            let x = &mut live[end as usize];
+            x[0] += 1;
+            x[1] ^= k as u32;
+        }
+    }
+    for start in 0..n {
+        let mut leaf = start;
+        while live[leaf][0] == 1 && junction(leaf) {
+            let k = live[leaf][1];
+            dead[k as usize] = true;
+            let [a, b] = ends[k as usize];
+            let other = if a as usize == leaf { b } else { a } as usize;
+            live[leaf] = [0, 0];
+            live[other][0] -= 1;
+            live[other][1] ^= k;
+            leaf = other;
+        }
+    }
+    dead
 }
 
 #[cfg(test)]

@@ -32,7 +32,6 @@
 //! pressure, takes that pressure exactly (a loop hanging off one node then carries exactly 0).
 
 use super::KirchhoffSystem;
-use crate::network::Network;
 use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky, SymmetricPattern};
 
 /// No index.
@@ -66,9 +65,11 @@ pub(crate) struct Plan {
     channel_edge: Vec<u32>,
     /// Per channel with exactly one unknown end: that unknown, else [`NONE`].
     channel_ground: Vec<u32>,
+    /// In the numbering of [`Plan::renumber`]: step t eliminates unknown t.
     steps: Vec<Step>,
-    /// Reduced index → unknown.
-    kept: Vec<u32>,
+    /// Unknown (numbered as in [`Plan::renumber`]) → unknown of the system; the last
+    /// `n − steps.len()` are the kept unknowns, in their reduced order.
+    old_of: Vec<u32>,
     /// Edges left between kept unknowns: (edge, reduced a, reduced b) and their value slots.
     live: Vec<(u32, u32, u32)>,
     live_slot: Vec<usize>,
@@ -77,14 +78,11 @@ pub(crate) struct Plan {
     symbolic: Option<SymbolicCholesky>,
 }
 
-/// Per unknown, everything the elimination order reads about it in one record (one cache
-/// line is fetched per visit, not one per array: on a random tree the visits are random).
+/// Per unknown, everything the elimination of dead ends reads about it in one 16-byte record
+/// (one cache line is fetched per visit, not one per array: on a random tree the visits are
+/// random, and 10⁶ records stay within a large last-level cache).
 #[derive(Clone, Copy, Debug)]
 struct Rec {
-    /// Its neighbour list in [`Adjacency::pool`]: start, live-or-stale entries, capacity.
-    start: usize,
-    len: u32,
-    cap: u32,
     /// Live neighbouring unknowns (distinct).
     degree: u32,
     /// XOR of the live neighbours' indices and of their edges' slots: with one live
@@ -96,16 +94,67 @@ struct Rec {
     alive: bool,
 }
 
+/// Where an unknown's neighbour list lies in [`Adjacency::pool`]: start, live-or-stale
+/// entries, capacity.
+#[derive(Clone, Copy, Debug, Default)]
+struct List {
+    start: usize,
+    len: u32,
+    cap: u32,
+}
+
 /// Growable neighbour lists (neighbour, edge) in one pool, with lazy removal of eliminated
 /// neighbours.
 struct Adjacency {
     rec: Vec<Rec>,
+    /// Built only when series joints are eliminated ([`Adjacency::build_lists`]).
+    list: Vec<List>,
     pool: Vec<(u32, u32)>,
+    /// The neighbour lists are built ([`Adjacency::build_lists`]).
+    listed: bool,
 }
 
 impl Adjacency {
+    /// Neighbour lists of the live unknowns, from the pattern (no fill edge exists yet: only
+    /// dead ends, which add none, have been eliminated). Each list has room for two more.
+    fn build_lists(&mut self, full: &SymmetricPattern) {
+        let mut total = 0usize;
+        self.list = self
+            .rec
+            .iter()
+            .map(|r| {
+                let cap = if r.alive { r.degree + 2 } else { 0 };
+                total += cap as usize;
+                List {
+                    start: total - cap as usize,
+                    len: 0,
+                    cap,
+                }
+            })
+            .collect();
+        self.pool = vec![(NONE, NONE); total];
+        for j in 0..full.dim() {
+            if !self.rec[j].alive {
+                continue;
+            }
+            let (first, rows) = full.column(j);
+            for (t, &i) in rows.iter().enumerate() {
+                if i == j || !self.rec[i].alive {
+                    continue;
+                }
+                let e = (first + t) as u32;
+                for (x, y) in [(i, j), (j, i)] {
+                    let l = &mut self.list[x];
+                    self.pool[l.start + l.len as usize] = (y as u32, e);
+                    l.len += 1;
+                }
+            }
+        }
+        self.listed = true;
+    }
+
     fn compact(&mut self, v: usize) {
-        let Rec { start, len, .. } = self.rec[v];
+        let List { start, len, .. } = self.list[v];
         let mut w = 0;
         for r in 0..len as usize {
             let entry = self.pool[start + r];
@@ -114,33 +163,123 @@ impl Adjacency {
                 w += 1;
             }
         }
-        self.rec[v].len = w as u32;
+        self.list[v].len = w as u32;
     }
 
     fn push(&mut self, v: usize, u: u32, e: u32) {
-        if self.rec[v].len == self.rec[v].cap {
+        if self.list[v].len == self.list[v].cap {
             self.compact(v);
         }
-        let Rec {
-            start, len, cap, ..
-        } = self.rec[v];
+        let List { start, len, cap } = self.list[v];
         if len == cap {
             let l = len as usize;
             let cap = 2 * l + 2;
             let new = self.pool.len();
             self.pool.extend_from_within(start..start + l);
             self.pool.resize(new + cap, (NONE, NONE));
-            self.rec[v].start = new;
-            self.rec[v].cap = cap as u32;
+            self.list[v].start = new;
+            self.list[v].cap = cap as u32;
         }
-        let r = &mut self.rec[v];
-        self.pool[r.start + r.len as usize] = (u, e);
-        r.len += 1;
+        let l = &mut self.list[v];
+        self.pool[l.start + l.len as usize] = (u, e);
+        l.len += 1;
     }
 
     fn entries(&self, v: usize) -> &[(u32, u32)] {
-        let Rec { start, len, .. } = self.rec[v];
+        let List { start, len, .. } = self.list[v];
         &self.pool[start..start + len as usize]
+    }
+
+    /// Eliminate the queued unknowns (dead ends, and series joints when `with_joints`: those
+    /// need the neighbour lists), queueing neighbours as their degrees fall; each elimination
+    /// is recorded in `steps`, fill edges numbered from `edges` on.
+    fn eliminate(
+        &mut self,
+        ends: &mut Vec<u32>,
+        joints: &mut Vec<u32>,
+        steps: &mut Vec<Step>,
+        edges: &mut usize,
+        with_joints: bool,
+    ) {
+        while let Some(v) = ends
+            .pop()
+            .or_else(|| if with_joints { joints.pop() } else { None })
+        {
+            let v = v as usize;
+            let rv = self.rec[v];
+            if !rv.alive || rv.degree > 2 {
+                continue;
+            }
+            let mut nb = [(NONE, NONE); 2];
+            let count = rv.degree as usize;
+            if count == 1 {
+                nb[0] = (rv.xn, rv.xe);
+            } else if count == 2 {
+                let mut found = 0;
+                for &(u, e) in self.entries(v) {
+                    if self.rec[u as usize].alive {
+                        nb[found] = (u, e);
+                        found += 1;
+                        if found == 2 {
+                            break;
+                        }
+                    }
+                }
+            }
+            let [(j, e1), (k, e2)] = nb;
+            let mut e3 = NONE;
+            if count == 2 {
+                let (a, b) = if self.list[j as usize].len <= self.list[k as usize].len {
+                    (j as usize, k)
+                } else {
+                    (k as usize, j)
+                };
+                if self.list[a].len as usize > SCAN_LIMIT {
+                    self.compact(a);
+                }
+                if self.list[a].len as usize > SCAN_LIMIT {
+                    self.rec[v].queued = 0;
+                    continue;
+                }
+                e3 = self
+                    .entries(a)
+                    .iter()
+                    .find(|&&(u, _)| u == b && self.rec[u as usize].alive)
+                    .map_or(NONE, |&(_, e)| e);
+            }
+            self.rec[v].alive = false;
+            for (u, e) in [(j, e1), (k, e2)].into_iter().filter(|&(u, _)| u != NONE) {
+                let r = &mut self.rec[u as usize];
+                r.xn ^= v as u32;
+                r.xe ^= e;
+            }
+            if count == 2 && e3 == NONE {
+                e3 = *edges as u32;
+                *edges += 1;
+                self.push(j as usize, k, e3);
+                self.push(k as usize, j, e3);
+                for (x, y) in [(j, k), (k, j)] {
+                    let r = &mut self.rec[x as usize];
+                    r.xn ^= y;
+                    r.xe ^= e3;
+                }
+            } else {
+                for u in [j, k].into_iter().filter(|&u| u != NONE) {
+                    self.rec[u as usize].degree -= 1;
+                }
+            }
+            for u in [j, k].into_iter().filter(|&u| u != NONE) {
+                self.enqueue(u as usize, ends, joints);
+            }
+            steps.push(Step {
+                v: v as u32,
+                j,
+                k,
+                e1,
+                e2,
+                e3,
+            });
+        }
     }
 
     /// Queue `u` if it has become a dead end or a series joint.
@@ -157,20 +296,13 @@ impl Adjacency {
 }
 
 impl Plan {
-    /// Decide the elimination for `system` (built for `network`) and analyse what is left.
-    pub(crate) fn new(
-        network: &Network,
-        system: &KirchhoffSystem,
-        par: Parallelism,
-    ) -> Result<Plan, SolverError> {
+    /// Decide the elimination for `system` and analyse what is left.
+    pub(crate) fn new(system: &KirchhoffSystem, par: Parallelism) -> Result<Plan, SolverError> {
         let n = system.dim();
         let full = system.pattern();
         // Indices are u32; a system beyond that is factorised whole.
         let fits = n < NONE as usize / 2 && full.nnz() < NONE as usize / 2;
         let blank = Rec {
-            start: 0,
-            len: 0,
-            cap: 0,
             degree: 0,
             xn: 0,
             xe: 0,
@@ -179,7 +311,9 @@ impl Plan {
         };
         let mut adj = Adjacency {
             rec: vec![blank; n],
+            list: Vec::new(),
             pool: Vec::new(),
+            listed: false,
         };
         for j in 0..n {
             let (first, rows) = full.column(j);
@@ -193,108 +327,33 @@ impl Plan {
                 }
             }
         }
-        let mut total = 0usize;
-        for r in &mut adj.rec {
-            r.start = total;
-            r.cap = r.degree + 2;
-            total += r.cap as usize;
-        }
-        adj.pool = vec![(NONE, NONE); total];
-        for j in 0..n {
-            let (first, rows) = full.column(j);
-            for (t, &i) in rows.iter().enumerate().filter(|(_, &i)| i != j) {
-                let e = (first + t) as u32;
-                for (x, y) in [(i, j), (j, i)] {
-                    let r = &mut adj.rec[x];
-                    adj.pool[r.start + r.len as usize] = (y as u32, e);
-                    r.len += 1;
-                }
-            }
-        }
         let mut edges = full.nnz();
         let mut steps = Vec::with_capacity(n);
-        // Dead ends first (their elimination adds nothing), then series joints.
         let (mut ends, mut joints) = (Vec::new(), Vec::new());
         if fits {
-            for v in (0..n).rev() {
-                adj.enqueue(v, &mut ends, &mut joints);
+            // Dead ends first, with no neighbour lists: a dead end's count and XORs name its
+            // one neighbour. A tree is eliminated completely here.
+            ends.extend(
+                (0..n as u32)
+                    .rev()
+                    .filter(|&v| adj.rec[v as usize].degree <= 1),
+            );
+            for r in adj.rec.iter_mut().filter(|r| r.degree <= 1) {
+                r.queued = 2;
             }
-        }
-        while let Some(v) = ends.pop().or_else(|| joints.pop()) {
-            let v = v as usize;
-            let rv = adj.rec[v];
-            if !rv.alive || rv.degree > 2 {
-                continue;
-            }
-            let mut nb = [(NONE, NONE); 2];
-            let count = rv.degree as usize;
-            if count == 1 {
-                nb[0] = (rv.xn, rv.xe);
-            } else if count == 2 {
-                let mut found = 0;
-                for &(u, e) in adj.entries(v) {
-                    if adj.rec[u as usize].alive {
-                        nb[found] = (u, e);
-                        found += 1;
-                        if found == 2 {
-                            break;
-                        }
+            adj.eliminate(&mut ends, &mut joints, &mut steps, &mut edges, false);
+            // Then series joints, which need the neighbour lists of what is left.
+            if adj.rec.iter().any(|r| r.alive && r.degree == 2) {
+                adj.build_lists(full);
+                joints.clear();
+                for v in (0..n).rev() {
+                    if adj.rec[v].alive {
+                        adj.rec[v].queued = 0;
+                        adj.enqueue(v, &mut ends, &mut joints);
                     }
                 }
+                adj.eliminate(&mut ends, &mut joints, &mut steps, &mut edges, true);
             }
-            let [(j, e1), (k, e2)] = nb;
-            let mut e3 = NONE;
-            if count == 2 {
-                let (a, b) = if adj.rec[j as usize].len <= adj.rec[k as usize].len {
-                    (j as usize, k)
-                } else {
-                    (k as usize, j)
-                };
-                if adj.rec[a].len as usize > SCAN_LIMIT {
-                    adj.compact(a);
-                }
-                if adj.rec[a].len as usize > SCAN_LIMIT {
-                    adj.rec[v].queued = 0;
-                    continue;
-                }
-                e3 = adj
-                    .entries(a)
-                    .iter()
-                    .find(|&&(u, _)| u == b && adj.rec[u as usize].alive)
-                    .map_or(NONE, |&(_, e)| e);
-            }
-            adj.rec[v].alive = false;
-            for (u, e) in [(j, e1), (k, e2)].into_iter().filter(|&(u, _)| u != NONE) {
-                let r = &mut adj.rec[u as usize];
-                r.xn ^= v as u32;
-                r.xe ^= e;
-            }
-            if count == 2 && e3 == NONE {
-                e3 = edges as u32;
-                edges += 1;
-                adj.push(j as usize, k, e3);
-                adj.push(k as usize, j, e3);
-                for (x, y) in [(j, k), (k, j)] {
-                    let r = &mut adj.rec[x as usize];
-                    r.xn ^= y;
-                    r.xe ^= e3;
-                }
-            } else {
-                for u in [j, k].into_iter().filter(|&u| u != NONE) {
-                    adj.rec[u as usize].degree -= 1;
-                }
-            }
-            for u in [j, k].into_iter().filter(|&u| u != NONE) {
-                adj.enqueue(u as usize, &mut ends, &mut joints);
-            }
-            steps.push(Step {
-                v: v as u32,
-                j,
-                k,
-                e1,
-                e2,
-                e3,
-            });
         }
         // The reduced system: kept unknowns and the edges left between them.
         let mut reduced_of = vec![NONE; n];
@@ -305,6 +364,9 @@ impl Plan {
             reduced_of[v as usize] = r as u32;
         }
         let m = kept.len();
+        if m > 0 && !adj.listed {
+            adj.build_lists(full);
+        }
         let mut live = Vec::new();
         for (r, &v) in kept.iter().enumerate() {
             for &(u, e) in adj.entries(v as usize) {
@@ -322,14 +384,18 @@ impl Plan {
         } else {
             None
         };
-        let (mut channel_edge, mut channel_ground) = (Vec::new(), Vec::new());
-        for (c, s) in network.channels.iter().zip(&system.slots) {
+        let mut channel_edge = Vec::with_capacity(system.channels());
+        let mut channel_ground = Vec::with_capacity(system.channels());
+        for (&[from, to], s) in system.ends().iter().zip(&system.slots) {
             channel_edge.push(if s.off == super::NONE {
                 NONE
             } else {
                 s.off as u32
             });
-            let (a, b) = (system.unknown_of[c.from.0], system.unknown_of[c.to.0]);
+            let (a, b) = (
+                system.unknown_of[from as usize],
+                system.unknown_of[to as usize],
+            );
             let ground = match (a == super::NONE, b == super::NONE) {
                 (false, true) => a as u32,
                 (true, false) => b as u32,
@@ -337,19 +403,70 @@ impl Plan {
             };
             channel_ground.push(ground);
         }
-        Ok(Plan {
+        let mut plan = Plan {
             n,
             edges,
             channel_edge,
             channel_ground,
             steps,
-            kept,
+            old_of: kept,
             live_slot: slot[m..].to_vec(),
             diag_slot: slot[..m].to_vec(),
             live,
             pattern,
             symbolic,
-        })
+        };
+        plan.renumber();
+        Ok(plan)
+    }
+
+    /// Number the unknowns in elimination order (step t eliminates unknown t; the kept ones
+    /// follow, in their reduced order) and the edges in the order the steps first use them,
+    /// so that the numeric replay and the substitutions walk their arrays nearly in order;
+    /// [`Plan::old_of`] maps back. On input `old_of` holds the kept unknowns.
+    fn renumber(&mut self) {
+        let kept = std::mem::take(&mut self.old_of);
+        let mut new_of = vec![NONE; self.n];
+        let mut old_of = Vec::with_capacity(self.n);
+        for st in self.steps.iter().map(|st| st.v).chain(kept) {
+            new_of[st as usize] = old_of.len() as u32;
+            old_of.push(st);
+        }
+        let mut edge_new = vec![NONE; self.edges];
+        let mut next = 0u32;
+        let mut number = |e: u32| {
+            if e == NONE {
+                return NONE;
+            }
+            let slot = &mut edge_new[e as usize];
+            if *slot == NONE {
+                *slot = next;
+                next += 1;
+            }
+            *slot
+        };
+        let unknown = |u: u32| if u == NONE { NONE } else { new_of[u as usize] };
+        for (t, st) in self.steps.iter_mut().enumerate() {
+            *st = Step {
+                v: t as u32,
+                j: unknown(st.j),
+                k: unknown(st.k),
+                e1: number(st.e1),
+                e2: number(st.e2),
+                e3: number(st.e3),
+            };
+        }
+        for live in &mut self.live {
+            live.0 = number(live.0);
+        }
+        for e in &mut self.channel_edge {
+            *e = number(*e);
+        }
+        for u in &mut self.channel_ground {
+            *u = unknown(*u);
+        }
+        self.edges = next as usize;
+        self.old_of = old_of;
     }
 
     /// Unknowns eliminated before the factorisation (the rest are factorised by Cholesky).
@@ -392,7 +509,7 @@ impl Plan {
                 w[st.e2 as usize]
             };
             let d = sv + w1 + w2;
-            let floor = f64::EPSILON * (diagonal(st.v as usize) - free[st.v as usize]);
+            let floor = f64::EPSILON * (diagonal(self.old_of[t] as usize) - free[t]);
             if d.is_nan() || d <= floor {
                 return Err(SolverError::NotPositiveDefinite {
                     pivot: t,
@@ -428,7 +545,7 @@ impl Plan {
             None => None,
             Some(symbolic) => {
                 let mut values = vec![0.0; self.pattern.nnz()];
-                let mut sum: Vec<f64> = self.kept.iter().map(|&v| s[v as usize]).collect();
+                let mut sum = s[self.steps.len()..].to_vec();
                 for (&(e, a, b), &slot) in self.live.iter().zip(&self.live_slot) {
                     let we = w[e as usize];
                     values[slot] -= we;
@@ -488,43 +605,57 @@ impl Eliminated<'_> {
         if n == 0 {
             return Ok(());
         }
-        let at = |i: u32| i as usize;
-        for col in rhs.chunks_mut(n) {
-            for (st, p) in plan.steps.iter().zip(&self.pivots) {
-                let bv = col[at(st.v)];
+        let ne = plan.steps.len();
+        let columns = rhs.len() / n;
+        // Into the plan's numbering (one gather), where the replay walks nearly in order.
+        let mut x = Vec::with_capacity(rhs.len());
+        for col in rhs.chunks(n) {
+            x.extend(plan.old_of.iter().map(|&v| col[v as usize]));
+        }
+        for col in x.chunks_mut(n) {
+            for (t, (st, p)) in plan.steps.iter().zip(&self.pivots).enumerate() {
+                let bv = col[t];
                 if bv != 0.0 {
                     if st.j != NONE {
-                        col[at(st.j)] += p.m1 * bv;
+                        col[st.j as usize] += p.m1 * bv;
                     }
                     if st.k != NONE {
-                        col[at(st.k)] += p.m2 * bv;
+                        col[st.k as usize] += p.m2 * bv;
                     }
                 }
             }
         }
         if let Some(cholesky) = &self.cholesky {
-            let m = plan.kept.len();
-            let mut y = Vec::with_capacity(m * rhs.len() / n);
-            for col in rhs.chunks(n) {
-                y.extend(plan.kept.iter().map(|&v| col[at(v)]));
+            let m = n - ne;
+            let mut y = Vec::with_capacity(m * columns);
+            for col in x.chunks(n) {
+                y.extend_from_slice(&col[ne..]);
             }
             cholesky.solve_in_place(&mut y)?;
-            for (col, ys) in rhs.chunks_mut(n).zip(y.chunks(m)) {
-                for (&v, &yv) in plan.kept.iter().zip(ys) {
-                    col[at(v)] = yv;
-                }
+            for (col, ys) in x.chunks_mut(n).zip(y.chunks(m)) {
+                col[ne..].copy_from_slice(ys);
             }
         }
-        for col in rhs.chunks_mut(n) {
-            for (st, p) in plan.steps.iter().zip(&self.pivots).rev() {
-                let bv = col[at(st.v)];
-                let xj = if st.j == NONE { 0.0 } else { col[at(st.j)] };
-                let xk = if st.k == NONE { xj } else { col[at(st.k)] };
-                col[at(st.v)] = if p.free && bv == 0.0 && st.j != NONE && xj == xk {
+        for col in x.chunks_mut(n) {
+            for (t, (st, p)) in plan.steps.iter().zip(&self.pivots).enumerate().rev() {
+                let bv = col[t];
+                let xj = if st.j == NONE {
+                    0.0
+                } else {
+                    col[st.j as usize]
+                };
+                let xk = if st.k == NONE { xj } else { col[st.k as usize] };
+                col[t] = if p.free && bv == 0.0 && st.j != NONE && xj == xk {
                     xj
                 } else {
                     bv / p.d + p.m1 * xj + p.m2 * if st.k == NONE { 0.0 } else { xk }
                 };
+            }
+        }
+        // Back to the system's numbering (one scatter).
+        for (col, xs) in rhs.chunks_mut(n).zip(x.chunks(n)) {
+            for (&v, &xv) in plan.old_of.iter().zip(xs) {
+                col[v as usize] = xv;
             }
         }
         Ok(())

@@ -157,22 +157,54 @@ pub struct KirchhoffSystem {
     node_of: Vec<usize>,
     pattern: SymmetricPattern,
     slots: Vec<ChannelSlots>,
+    /// Per channel: its (from, to) nodes, 8 bytes a channel. The passes over every channel
+    /// after a solve (balance, flows, checks) read these rather than the network's channel
+    /// records (72 bytes each, names included): on 10⁶ channels that is most of their cost.
+    ends: Vec<[u32; 2]>,
+    /// Per node: what it imposes (1 byte a node, for the same reason).
+    role: Vec<Role>,
+}
+
+/// What a node imposes on the solve: its pressure (a pressure port), its injected flow (a
+/// flow port) or nothing (a junction, whose flows balance).
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub(crate) enum Role {
+    Pressure,
+    Flow,
+    Junction,
+}
+
+impl Role {
+    fn of(port: &Port) -> Role {
+        match port {
+            Port::Pressure(_) => Role::Pressure,
+            Port::Flow(_) => Role::Flow,
+            Port::Junction => Role::Junction,
+        }
+    }
+
+    /// The node's flow balance is imposed (a junction or a flow port).
+    pub(crate) fn imposed(self) -> bool {
+        self != Role::Pressure
+    }
 }
 
 impl KirchhoffSystem {
     /// Build the structure for `network`.
     pub fn new(network: &Network) -> Self {
-        let fixed: Vec<bool> = network
-            .nodes
-            .iter()
-            .map(|n| matches!(n.port, Port::Pressure(_)))
-            .collect();
-        Self::with_fixed(network, &fixed)
+        let role: Vec<Role> = network.nodes.iter().map(|n| Role::of(&n.port)).collect();
+        let fixed: Vec<bool> = role.iter().map(|&r| r == Role::Pressure).collect();
+        Self::build(network, role, &fixed)
     }
 
     /// The structure with the nodes marked `fixed` as known pressures and every other node an
     /// unknown (time evolution frees the wells, whose pressure follows their level).
     pub fn with_fixed(network: &Network, fixed: &[bool]) -> Self {
+        let role = network.nodes.iter().map(|n| Role::of(&n.port)).collect();
+        Self::build(network, role, fixed)
+    }
+
+    fn build(network: &Network, role: Vec<Role>, fixed: &[bool]) -> Self {
         let nodes = network.nodes.len();
         let mut unknown_of = vec![NONE; nodes];
         let mut node_of = Vec::with_capacity(nodes);
@@ -188,16 +220,17 @@ impl KirchhoffSystem {
             node_of.push(i);
         }
         let n = node_of.len();
-        // Entries 0..n are the diagonals (so isolated unknowns still have one); then one
-        // off-diagonal entry per channel joining two unknowns, in channel order.
-        let ends: Vec<(usize, usize)> = network
+        let ends: Vec<[u32; 2]> = network
             .channels
             .iter()
-            .map(|c| (unknown_of[c.from.0], unknown_of[c.to.0]))
+            .map(|c| [c.from.0 as u32, c.to.0 as u32])
             .collect();
+        let unknowns = |[a, b]: [u32; 2]| (unknown_of[a as usize], unknown_of[b as usize]);
+        // Entries 0..n are the diagonals (so isolated unknowns still have one); then one
+        // off-diagonal entry per channel joining two unknowns, in channel order.
         let joined: Vec<(usize, usize)> = ends
             .iter()
-            .copied()
+            .map(|&e| unknowns(e))
             .filter(|&(a, b)| a != NONE && b != NONE)
             .collect();
         let (pattern, slot_of) = SymmetricPattern::from_entries(n, n + joined.len(), |k| {
@@ -212,7 +245,8 @@ impl KirchhoffSystem {
         let mut next_off = n;
         let slots = ends
             .iter()
-            .map(|&(a, b)| {
+            .map(|&e| {
+                let (a, b) = unknowns(e);
                 let off = if a != NONE && b != NONE {
                     next_off += 1;
                     slot_of[next_off - 1]
@@ -231,7 +265,33 @@ impl KirchhoffSystem {
             node_of,
             pattern,
             slots,
+            ends,
+            role,
         }
+    }
+
+    /// Exactly the pressure ports are known pressures (as [`KirchhoffSystem::new`] builds it).
+    pub(crate) fn fixes_pressure_ports_only(&self) -> bool {
+        self.role
+            .iter()
+            .zip(&self.unknown_of)
+            .all(|(&r, &u)| (r == Role::Pressure) == (u == NONE))
+    }
+
+    /// Per channel, its (from, to) nodes.
+    pub(crate) fn ends(&self) -> &[[u32; 2]] {
+        &self.ends
+    }
+
+    /// Per node, what it imposes.
+    pub(crate) fn roles(&self) -> &[Role] {
+        &self.role
+    }
+
+    /// The channels on dead-end branches ([`Network::dead_end_channels`]), from the compact
+    /// topology.
+    pub(crate) fn dead_end_channels(&self) -> Vec<bool> {
+        crate::network::dead_end_mask(&self.ends, |i| self.role[i] == Role::Junction)
     }
 
     /// Slot of the diagonal entry of unknown `u` in the matrix values.
@@ -266,6 +326,20 @@ impl KirchhoffSystem {
         values
     }
 
+    /// The matrix diagonal alone, Σ g_k over each unknown's channels, indexed by unknown.
+    pub fn diagonal(&self, g: &[f64]) -> Vec<f64> {
+        let mut d = vec![0.0; self.dim()];
+        for (&[from, to], &gk) in self.ends.iter().zip(g) {
+            for end in [from, to] {
+                let u = self.unknown_of[end as usize];
+                if u != NONE {
+                    d[u] += gk;
+                }
+            }
+        }
+        d
+    }
+
     /// Right-hand side: pump injections plus the pull of known port pressures.
     pub fn rhs(&self, network: &Network, g: &[f64]) -> Vec<f64> {
         self.rhs_for(network, g, &drive_values(network))
@@ -275,19 +349,21 @@ impl KirchhoffSystem {
     /// port i or the injected flow of flow port i (ignored at junctions). The matrix does not
     /// depend on the drives, so one factorisation serves every setting.
     pub fn rhs_for(&self, network: &Network, g: &[f64], drives: &[f64]) -> Vec<f64> {
+        debug_assert_eq!(network.nodes.len(), self.role.len());
         let mut b = vec![0.0; self.dim()];
-        for ((node, &u), d) in network.nodes.iter().zip(&self.unknown_of).zip(drives) {
-            if let (Port::Flow(_), true) = (node.port, u != NONE) {
+        for ((&role, &u), d) in self.role.iter().zip(&self.unknown_of).zip(drives) {
+            if role == Role::Flow && u != NONE {
                 b[u] += d;
             }
         }
-        for (c, &gk) in network.channels.iter().zip(g) {
-            let a = self.unknown_of[c.from.0];
-            let bb = self.unknown_of[c.to.0];
+        for (&[from, to], &gk) in self.ends.iter().zip(g) {
+            let (from, to) = (from as usize, to as usize);
+            let a = self.unknown_of[from];
+            let bb = self.unknown_of[to];
             if a != NONE && bb == NONE {
-                b[a] += gk * drives[c.to.0];
+                b[a] += gk * drives[to];
             } else if a == NONE && bb != NONE {
-                b[bb] += gk * drives[c.from.0];
+                b[bb] += gk * drives[from];
             }
         }
         b
@@ -418,7 +494,8 @@ pub fn balance_residuals_for(
     for (c, &gk) in network.channels.iter().zip(g) {
         sums.add(c.from.0, c.to.0, gk, pressures[c.from.0], pressures[c.to.0]);
     }
-    sums.residuals(network, pressures, drives)
+    let roles: Vec<Role> = network.nodes.iter().map(|n| Role::of(&n.port)).collect();
+    sums.residuals(&roles, pressures, drives)
 }
 
 /// Per-node sums behind [`balance_residuals_for`], accumulated channel by channel so that the
@@ -454,13 +531,18 @@ impl BalanceSums {
     }
 
     /// The residuals of [`balance_residuals_for`] from the sums.
+    /// Each node's total channel conductance Σ g_k.
+    pub(crate) fn into_conductance(self) -> Vec<f64> {
+        self.conductance
+    }
+
     pub(crate) fn residuals(
         &self,
-        network: &Network,
+        roles: &[Role],
         pressures: &[f64],
         drives: &[f64],
     ) -> Vec<Option<f64>> {
-        let n = network.nodes.len();
+        let n = roles.len();
         let (imbalance, scale, conductance) = (&self.imbalance, &self.scale, &self.conductance);
         let p_max = pressures.iter().fold(0.0f64, |m, p| m.max(p.abs()));
         // Arioli, Demmel & Duff (1989), SIAM J. Matrix Anal. Appl. 10, 165: where the componentwise
@@ -468,16 +550,15 @@ impl BalanceSums {
         // (‖A_i‖·‖x‖∞ + |b_i|), e.g. where pressures have decayed to nothing far down a leaky
         // line, the normwise denominator is used, so rounding there is not read as an imbalance.
         let tau = 1000.0 * n as f64 * f64::EPSILON;
-        network
-            .nodes
+        roles
             .iter()
             .zip(drives)
             .enumerate()
-            .map(|(i, (node, &d))| {
-                let inj = match node.port {
-                    Port::Pressure(_) => return None,
-                    Port::Junction => 0.0,
-                    Port::Flow(_) => d,
+            .map(|(i, (role, &d))| {
+                let inj = match role {
+                    Role::Pressure => return None,
+                    Role::Junction => 0.0,
+                    Role::Flow => d,
                 };
                 let componentwise = scale[i] + inj.abs();
                 let normwise = 2.0 * conductance[i] * p_max + inj.abs();

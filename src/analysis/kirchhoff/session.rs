@@ -18,7 +18,7 @@
 use super::eliminate::{Eliminated, Plan};
 use super::{
     conductances, drive_values, node_outflows, worst, BalanceSums, FlowSolution, KirchhoffSystem,
-    SolveError, MAX_REFINEMENTS, RESIDUAL_LIMIT,
+    Role, SolveError, MAX_REFINEMENTS, RESIDUAL_LIMIT,
 };
 use crate::network::{Network, NodeId, Port};
 use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky};
@@ -51,15 +51,37 @@ impl<'n> Solver<'n> {
         Self::with_parallelism(network, Parallelism::default())
     }
 
+    /// Analyse `network` on a structure already assembled for it by
+    /// [`KirchhoffSystem::new`] (sequential factorisation). A structure of other dimensions,
+    /// or one that holds other nodes than the pressure ports fixed
+    /// ([`KirchhoffSystem::with_fixed`]), is [`SolveError::TopologyChanged`].
+    pub fn from_system(network: &'n Network, system: KirchhoffSystem) -> Result<Self, SolveError> {
+        if system.nodes() != network.nodes.len()
+            || system.channels() != network.channels.len()
+            || !system.fixes_pressure_ports_only()
+        {
+            return Err(SolveError::TopologyChanged);
+        }
+        Self::analyse(network, system, Parallelism::default())
+    }
+
     /// Assemble and analyse `network`, factorising with `par` threads.
     pub fn with_parallelism(network: &'n Network, par: Parallelism) -> Result<Self, SolveError> {
-        let system = KirchhoffSystem::new(network);
-        let plan = Plan::new(network, &system, par)?;
+        Self::analyse(network, KirchhoffSystem::new(network), par)
+    }
+
+    fn analyse(
+        network: &'n Network,
+        system: KirchhoffSystem,
+        par: Parallelism,
+    ) -> Result<Self, SolveError> {
+        let plan = Plan::new(&system, par)?;
+        let dead_end = system.dead_end_channels();
         Ok(Solver {
             network,
             system,
             plan,
-            dead_end: network.dead_end_channels(),
+            dead_end,
             factorizations: AtomicUsize::new(0),
         })
     }
@@ -156,7 +178,8 @@ pub struct Factor<'a> {
     network: &'a Network,
     system: &'a KirchhoffSystem,
     g: Vec<f64>,
-    values: Vec<f64>,
+    /// The assembled matrix values, made when first needed (refinement, adjoint checks).
+    values: std::sync::OnceLock<Vec<f64>>,
     linear: Linear<'a>,
     dead_end: Cow<'a, [bool]>,
 }
@@ -219,6 +242,8 @@ fn name_the_cause(network: &Network, g: &[f64], e: SolverError) -> SolveError {
 /// channel could be stiff: see [`super::flows`]).
 struct Forward {
     pressures: Vec<f64>,
+    /// Each node's total channel conductance Σ g_k.
+    conductance: Vec<f64>,
     residuals: Vec<Option<f64>>,
     node: usize,
     residual: f64,
@@ -265,13 +290,17 @@ impl<'a> Factor<'a> {
         expect_len("system nodes", network.nodes.len(), system.nodes())?;
         expect_len("system channels", network.channels.len(), system.channels())?;
         expect_len("conductances", network.channels.len(), g.len())?;
-        let values = system.matrix_values(&g);
+        let values = std::sync::OnceLock::new();
         let linear = match analysis {
-            Analysis::Eliminating(plan) => plan
-                .factorize(&g, |u| values[system.diagonal_slot(u)])
-                .map(Linear::Eliminated),
+            Analysis::Eliminating(plan) => {
+                let diagonal = system.diagonal(&g);
+                plan.factorize(&g, |u| diagonal[u]).map(Linear::Eliminated)
+            }
             Analysis::Whole(symbolic) => symbolic
-                .factorize(system.pattern(), &values)
+                .factorize(
+                    system.pattern(),
+                    values.get_or_init(|| system.matrix_values(&g)),
+                )
                 .map(Linear::Whole),
         }
         .map_err(|e| name_the_cause(network, &g, e))?;
@@ -283,6 +312,12 @@ impl<'a> Factor<'a> {
             linear,
             dead_end,
         })
+    }
+
+    /// The assembled matrix values for this factor's conductances.
+    fn values(&self) -> &[f64] {
+        self.values
+            .get_or_init(|| self.system.matrix_values(&self.g))
     }
 
     /// The conductances this factor is for.
@@ -304,6 +339,16 @@ impl<'a> Factor<'a> {
         let mut x = b.clone();
         self.linear.solve_in_place(&mut x)?;
         self.finish_forward(drives, &b, x)
+    }
+
+    /// Solve A·x = b in place over the unknowns (`b` in the order of
+    /// [`KirchhoffSystem::node`]) by the factor alone: the elimination, the sparse triangular
+    /// solves and the back substitution, with no refinement and no balance check — for
+    /// callers who check the result themselves, and for timing against other sparse
+    /// solvers. Every command goes through [`Factor::solve`].
+    pub fn substitute(&self, b: &mut [f64]) -> Result<(), SolveError> {
+        expect_len("right-hand side", self.system.dim(), b.len())?;
+        Ok(self.linear.solve_in_place(b)?)
     }
 
     /// [`Factor::solve`] for several drive sets: one multi-column solve, then each column
@@ -340,7 +385,7 @@ impl<'a> Factor<'a> {
         }
         let mut x = b.clone();
         self.linear.solve_in_place(&mut x)?;
-        let abs_values: Vec<f64> = self.values.iter().map(|v| v.abs()).collect();
+        let abs_values: Vec<f64> = self.values().iter().map(|v| v.abs()).collect();
         (0..rhs.len())
             .map(|k| {
                 let cols = k * n..(k + 1) * n;
@@ -363,7 +408,7 @@ impl<'a> Factor<'a> {
         while residual > RESIDUAL_LIMIT && refinements < MAX_REFINEMENTS {
             // r = b − A x; solve A d = r; x += d.
             let mut d = vec![0.0; x.len()];
-            self.system.pattern().multiply(&self.values, x, &mut d);
+            self.system.pattern().multiply(self.values(), x, &mut d);
             d.iter_mut().zip(b).for_each(|(di, bi)| *di = bi - *di);
             self.linear.solve_in_place(&mut d)?;
             x.iter_mut().zip(&d).for_each(|(xi, di)| *xi += di);
@@ -376,25 +421,17 @@ impl<'a> Factor<'a> {
     /// Everything the checks of a forward solution need, in one pass over the channels (see
     /// [`Forward`]).
     fn forward_pass(&self, x: &[f64], drives: &[f64]) -> Forward {
-        let network = self.network;
-        let pressures = self.system.node_pressures_for(x, drives);
-        let n = network.nodes.len();
+        let system = self.system;
+        let pressures = system.node_pressures_for(x, drives);
+        let roles = system.roles();
+        let n = pressures.len();
         let mut sums = BalanceSums::new(n);
-        let mut flows = Vec::with_capacity(network.channels.len());
+        let mut flows = Vec::with_capacity(system.channels());
         let mut net = vec![0.0; n];
         let mut through = vec![0.0f64; n];
         let (mut noise, mut cancel) = (0.0, false);
-        let both_set = |c: &crate::network::Channel| {
-            matches!(network.nodes[c.from].port, Port::Pressure(_))
-                && matches!(network.nodes[c.to].port, Port::Pressure(_))
-        };
-        for ((c, &gk), &dead) in network
-            .channels
-            .iter()
-            .zip(&self.g)
-            .zip(self.dead_end.iter())
-        {
-            let (i, j) = (c.from.0, c.to.0);
+        for ((&[i, j], &gk), &dead) in system.ends().iter().zip(&self.g).zip(self.dead_end.iter()) {
+            let (i, j) = (i as usize, j as usize);
             let (pi, pj) = (pressures[i], pressures[j]);
             let (q, size) = sums.add(i, j, gk, pi, pj);
             // Dead-end branches carry no flow; what the solve left there is rounding.
@@ -404,13 +441,16 @@ impl<'a> Factor<'a> {
             through[i] = through[i].max(q.abs());
             through[j] = through[j].max(q.abs());
             noise += size;
-            cancel |= !dead && super::flows::cancels(pi, pj) && !both_set(c);
+            cancel |= !dead
+                && super::flows::cancels(pi, pj)
+                && !(roles[i] == Role::Pressure && roles[j] == Role::Pressure);
             flows.push(q);
         }
-        let residuals = sums.residuals(network, &pressures, drives);
+        let residuals = sums.residuals(roles, &pressures, drives);
         let (node, residual) = worst(residuals.iter().copied());
         Forward {
             pressures,
+            conductance: sums.into_conductance(),
             residuals,
             node,
             residual,
@@ -473,7 +513,7 @@ impl<'a> Factor<'a> {
         loop {
             let (flows, net) = self.trusted_flows(&mut pass, &injection)?;
             let miss = super::flows::port_balance_miss(
-                self.network,
+                self.system,
                 &pass.pressures,
                 &self.g,
                 &injection,
@@ -533,17 +573,11 @@ impl<'a> Factor<'a> {
 
     /// The flow each node injects: a flow port's setting, 0 elsewhere.
     fn injection(&self, drives: &[f64]) -> Vec<f64> {
-        self.network
-            .nodes
+        self.system
+            .roles()
             .iter()
             .zip(drives)
-            .map(|(n, &d)| {
-                if matches!(n.port, Port::Flow(_)) {
-                    d
-                } else {
-                    0.0
-                }
-            })
+            .map(|(&r, &d)| if r == Role::Flow { d } else { 0.0 })
             .collect()
     }
 
@@ -558,30 +592,43 @@ impl<'a> Factor<'a> {
     ) -> Result<(Vec<f64>, Vec<f64>), SolveError> {
         let network = self.network;
         let mut flows = std::mem::take(&mut pass.flows);
-        let (worst, net) = if pass.cancel {
-            let (stiff, unresolved) = super::flows::recover_stiff(
-                network,
+        let stiff = if pass.cancel {
+            super::flows::stiff_channels(
+                self.system,
                 &pass.pressures,
                 &self.g,
-                injection,
+                &pass.conductance,
                 &self.dead_end,
-                &mut flows,
-            );
-            self.refuse_unresolved(&pass.pressures, &unresolved)?;
-            let worst = super::flows::worst_flow_imbalance(
-                network,
-                &pass.pressures,
-                &self.g,
-                &stiff,
-                injection,
-                &flows,
-            );
-            (worst, node_outflows(network, &flows))
+            )
         } else {
-            let net = std::mem::take(&mut pass.net);
-            let worst =
-                super::flows::worst_of_sums(network, &net, &pass.through, pass.noise, injection);
-            (worst, net)
+            None
+        };
+        let (worst, net) = match stiff {
+            Some(stiff) => {
+                let unresolved =
+                    super::flows::recover_stiff(network, &stiff, injection, &mut flows);
+                self.refuse_unresolved(&pass.pressures, &unresolved)?;
+                let worst = super::flows::worst_flow_imbalance(
+                    network,
+                    &pass.pressures,
+                    &self.g,
+                    &stiff,
+                    injection,
+                    &flows,
+                );
+                (worst, node_outflows(network, &flows))
+            }
+            None => {
+                let net = std::mem::take(&mut pass.net);
+                let worst = super::flows::worst_of_sums(
+                    self.system.roles(),
+                    &net,
+                    &pass.through,
+                    pass.noise,
+                    injection,
+                );
+                (worst, net)
+            }
         };
         let Some((node, residual)) = worst else {
             return Ok((flows, net));
@@ -670,7 +717,7 @@ impl<'a> Factor<'a> {
     fn backward_error(&self, abs_values: &[f64], b: &[f64], x: &[f64]) -> (usize, f64) {
         let pattern = self.system.pattern();
         let mut ax = vec![0.0; x.len()];
-        pattern.multiply(&self.values, x, &mut ax);
+        pattern.multiply(self.values(), x, &mut ax);
         let abs_x: Vec<f64> = x.iter().map(|v| v.abs()).collect();
         let mut scale = vec![0.0; x.len()];
         pattern.multiply(abs_values, &abs_x, &mut scale);
@@ -780,7 +827,7 @@ mod tests {
         assert_eq!(clean[0].lambda[1], 0.0); // pressure port
         let n = solver.system().dim();
         let b: Vec<f64> = (0..n).map(|u| rhs[solver.system().node(u)]).collect();
-        let abs_values: Vec<f64> = factor.values.iter().map(|v| v.abs()).collect();
+        let abs_values: Vec<f64> = factor.values().iter().map(|v| v.abs()).collect();
         let x = perturbed_first_solve(&factor, &b, 1e-6);
         assert!(factor.backward_error(&abs_values, &b, &x).1 > RESIDUAL_LIMIT);
         let fixed = factor.finish_adjoint(&abs_values, &b, x).unwrap();
@@ -791,6 +838,35 @@ mod tests {
         assert!(matches!(
             factor.finish_adjoint(&abs_values, &b, vec![f64::NAN; n]),
             Err(SolveError::Adjoint { .. })
+        ));
+    }
+
+    #[test]
+    fn plain_substitution_and_an_assembled_structure_give_the_checked_answer() {
+        let net = mesh(100e-6);
+        let solver = Solver::from_system(&net, KirchhoffSystem::new(&net)).unwrap();
+        let factor = solver.factorize(conductances(&net)).unwrap();
+        let checked = factor.solve(&drive_values(&net)).unwrap();
+        let mut x = solver.system().rhs(&net, factor.conductances());
+        factor.substitute(&mut x).unwrap();
+        let p = solver.system().node_pressures(&net, &x);
+        for (a, b) in p.iter().zip(&checked.pressures) {
+            assert!((a - b).abs() <= 1e-13 * b.abs().max(1.0), "{a} vs {b}");
+        }
+        assert!(matches!(
+            factor.substitute(&mut [0.0; 2]),
+            Err(SolveError::Mismatch { .. })
+        ));
+        // A structure that frees a pressure port (as time evolution builds) is refused.
+        let mut fixed: Vec<bool> = net
+            .nodes
+            .iter()
+            .map(|n| matches!(n.port, Port::Pressure(_)))
+            .collect();
+        fixed[1] = false;
+        assert!(matches!(
+            Solver::from_system(&net, KirchhoffSystem::with_fixed(&net, &fixed)),
+            Err(SolveError::TopologyChanged)
         ));
     }
 
