@@ -17,7 +17,7 @@ residual ||b - A x||_inf / (||A||_inf ||x||_inf + ||b||_inf) is printed next to 
 so that every figure belongs to a correct solve.
 
 Run:
-    python3 examples/reference_solvers.py DIR [--runs 5] [--json]
+    python3 examples/reference_solvers.py DIR [--runs 5] [--json]   # every DIR/NAME.mtx
     python3 examples/reference_solvers.py DIR/tree.mtx DIR/grid.mtx
     cargo run --release --example large_solve -- --reference   # writes, then calls this
 
@@ -234,13 +234,14 @@ def relative_residual(a, x, b):
 
 
 def systems(paths):
-    """(name, matrix file, rhs file) for each directory entry or file named."""
+    """(name, matrix file, rhs file) for each NAME.mtx of the directories, or file named."""
     out = []
     for p in paths:
         if os.path.isdir(p):
-            files = sorted(f for f in os.listdir(p)
-                           if f.endswith(".mtx") and not f.endswith("_b.mtx"))
-            out += [os.path.join(p, f) for f in files]
+            files = [os.path.join(p, f) for f in os.listdir(p)
+                     if f.endswith(".mtx") and not f.endswith("_b.mtx")]
+            # In the order they were written (large_solve's order), then by name.
+            out += sorted(files, key=lambda f: (os.stat(f).st_mtime_ns, f))
         else:
             out.append(p)
     return [(os.path.basename(f)[:-4], f, f[:-4] + "_b.mtx") for f in out]
