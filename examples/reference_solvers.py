@@ -16,7 +16,8 @@ script reads those files and times two established solvers on exactly the same s
   column ordering MMD_AT_PLUS_A (minimum degree on A'+A, the choice for a symmetric
   pattern); `splu` includes its analysis, so its analysis and factorisation are one figure.
 
-Each figure is the median of `--runs` runs (time.perf_counter). Each solver's relative
+Each figure is the median of `--runs` runs (wall time, time.perf_counter; the process CPU time
+of the three phases, time.process_time, is printed beside the total). Each solver's relative
 residual ||b - A x||_inf / (||A||_inf ||x||_inf + ||b||_inf) is printed next to its times,
 so that every figure belongs to a correct solve.
 
@@ -184,6 +185,7 @@ class Cholmod:
         rhs = np.ascontiguousarray(b, dtype=np.float64)
         bd = _Dense(n, 1, n, n, rhs.ctypes.data, None, CHOLMOD_REAL, CHOLMOD_DOUBLE)
         lib, c = self.lib, self.c
+        c0 = time.process_time()
         t0 = time.perf_counter()
         f = lib.cholmod_analyze(ctypes.byref(a), c)
         t1 = time.perf_counter()
@@ -196,6 +198,7 @@ class Cholmod:
                 raise RuntimeError("cholmod_factorize failed (matrix not positive definite?)")
             xd = lib.cholmod_solve(CHOLMOD_A, f, ctypes.byref(bd), c)
             t3 = time.perf_counter()
+            cpu = time.process_time() - c0
             if not xd:
                 raise RuntimeError("cholmod_solve failed")
             try:
@@ -209,7 +212,7 @@ class Cholmod:
                      "factor_entries": int(fc.xsize if fc.is_super else fc.nzmax)}
         finally:
             lib.cholmod_free_factor(ctypes.byref(f), c)
-        return (t1 - t0, t2 - t1, t3 - t2), x, facts
+        return (t1 - t0, t2 - t1, t3 - t2, cpu), x, facts
 
 
 def blas_name(lib):
@@ -325,23 +328,25 @@ def main():
                     for _ in range(args.runs):
                         ts, x, facts = cholmod.run(lower, b)
                         times.append(ts)
-                    med = [statistics.median(t[k] for t in times) for k in range(3)]
+                    med = [statistics.median(t[k] for t in times) for k in range(4)]
                     rows.append(dict(base, solver="CHOLMOD", analyse_s=med[0],
-                                     factor_s=med[1], solve_s=med[2], total_s=sum(med),
+                                     factor_s=med[1], solve_s=med[2], total_s=sum(med[:3]),
+                                     cpu_s=med[3],
                                      residual=relative_residual(full_csr, x, b), **facts))
             if "superlu" in wanted:
                 times, x, lu = [], None, None
                 for _ in range(args.runs):
                     lu = None  # free the previous factor before the next one
+                    c0 = time.process_time()
                     t0 = time.perf_counter()
                     lu = sla.splu(full, permc_spec="MMD_AT_PLUS_A")
                     t1 = time.perf_counter()
                     x = lu.solve(b)
                     t2 = time.perf_counter()
-                    times.append((t1 - t0, t2 - t1))
-                med = [statistics.median(t[k] for t in times) for k in range(2)]
+                    times.append((t1 - t0, t2 - t1, time.process_time() - c0))
+                med = [statistics.median(t[k] for t in times) for k in range(3)]
                 rows.append(dict(base, solver="SuperLU", analyse_s=None, factor_s=med[0],
-                                 solve_s=med[1], total_s=sum(med),
+                                 solve_s=med[1], total_s=sum(med[:2]), cpu_s=med[2],
                                  residual=relative_residual(full_csr, x, b),
                                  ordering="MMD_AT_PLUS_A", supernodal=True,
                                  factor_entries=int(lu.L.nnz + lu.U.nnz)))
@@ -354,15 +359,16 @@ def main():
         print(json.dumps({"runs": args.runs, "notes": notes, "results": rows}, indent=1))
         return 0
     print(f"{'system':<8} {'unknowns':>9} {'solver':<8} {'ordering, factor kind':<26} {'analyse':>8} "
-          f"{'factor':>8} {'solve':>8} {'total s':>8} {'factor nnz':>11}  residual")
+          f"{'factor':>8} {'solve':>8} {'total s':>8} {'cpu s':>7} {'factor nnz':>11}  residual")
     for r in rows:
         analyse = "(in f.)" if r["analyse_s"] is None else f"{r['analyse_s']:.3f}"
         kind = f"{r['ordering']}, {'supernodal' if r['supernodal'] else 'simplicial'}"
         print(f"{r['system']:<8} {r['unknowns']:>9} {r['solver']:<8} {kind:<26} "
               f"{analyse:>8} {r['factor_s']:>8.3f} {r['solve_s']:>8.3f} {r['total_s']:>8.3f} "
-              f"{r['factor_entries']:>11}  {r['residual']:.1e}")
+              f"{r['cpu_s']:>7.3f} {r['factor_entries']:>11}  {r['residual']:.1e}")
     print(f"\nseconds, medians of {args.runs} runs, one thread. SuperLU's factor includes its "
-          "analysis; factor nnz = stored factor entries (CHOLMOD: L, supernodal with "
+          "analysis; total is wall time, cpu the process CPU time of the same phases (below the "
+          "total when the machine is shared and the process waits for a core); factor nnz = stored factor entries (CHOLMOD: L, supernodal with "
           "its supernode padding; SuperLU: L + U).")
     for note in notes:
         print(note)
