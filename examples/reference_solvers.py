@@ -249,8 +249,10 @@ def systems(paths):
                      if f.endswith(".mtx") and not f.endswith("_b.mtx")]
             # In the order they were written (large_solve's order), then by name.
             out += sorted(files, key=lambda f: (os.stat(f).st_mtime_ns, f))
-        else:
+        elif p.endswith(".mtx"):
             out.append(p)
+        else:
+            raise ValueError(f"{p}: neither a directory nor a NAME.mtx file")
     return [(os.path.basename(f)[:-4], f, f[:-4] + "_b.mtx") for f in out]
 
 
@@ -276,7 +278,11 @@ def main():
     except ImportError as e:
         print(f"reference solvers not run: {e} (pip install numpy scipy)")
         return 0
-    todo = systems(args.paths)
+    try:
+        todo = systems(args.paths)
+    except (OSError, ValueError) as e:
+        print(f"reference_solvers: {e}", file=sys.stderr)
+        return 2
     if not todo:
         print("reference_solvers: no NAME.mtx files in " + ", ".join(args.paths),
               file=sys.stderr)
@@ -318,16 +324,22 @@ def main():
                 lower, full = None, a.tocsc()
             read_s = time.perf_counter() - t
             n = full.shape[0]
-            base = {"system": name, "unknowns": n, "stored": int(a.nnz), "read_s": read_s}
+            base = {"system": name, "unknowns": n, "nonzeros": int(full.nnz), "read_s": read_s}
             full_csr = full.tocsr()
             if cholmod is not None:
+                times = []
                 if lower is None:
                     notes.append(f"{name}: not symmetric, CHOLMOD skipped")
                 else:
-                    times, x, facts = [], None, None
-                    for _ in range(args.runs):
-                        ts, x, facts = cholmod.run(lower, b)
-                        times.append(ts)
+                    x, facts = None, None
+                    try:
+                        for _ in range(args.runs):
+                            ts, x, facts = cholmod.run(lower, b)
+                            times.append(ts)
+                    except RuntimeError as e:
+                        notes.append(f"{name}: CHOLMOD failed: {e}")
+                        times = []
+                if times:
                     med = [statistics.median(t[k] for t in times) for k in range(4)]
                     rows.append(dict(base, solver="CHOLMOD", analyse_s=med[0],
                                      factor_s=med[1], solve_s=med[2], total_s=sum(med[:3]),
@@ -335,15 +347,19 @@ def main():
                                      residual=relative_residual(full_csr, x, b), **facts))
             if "superlu" in wanted:
                 times, x, lu = [], None, None
-                for _ in range(args.runs):
-                    lu = None  # free the previous factor before the next one
-                    c0 = time.process_time()
-                    t0 = time.perf_counter()
-                    lu = sla.splu(full, permc_spec="MMD_AT_PLUS_A")
-                    t1 = time.perf_counter()
-                    x = lu.solve(b)
-                    t2 = time.perf_counter()
-                    times.append((t1 - t0, t2 - t1, time.process_time() - c0))
+                try:
+                    for _ in range(args.runs):
+                        lu = None  # free the previous factor before the next one
+                        c0 = time.process_time()
+                        t0 = time.perf_counter()
+                        lu = sla.splu(full, permc_spec="MMD_AT_PLUS_A")
+                        t1 = time.perf_counter()
+                        x = lu.solve(b)
+                        t2 = time.perf_counter()
+                        times.append((t1 - t0, t2 - t1, time.process_time() - c0))
+                except (RuntimeError, MemoryError) as e:
+                    notes.append(f"{name}: SuperLU failed: {e}")
+                    continue
                 med = [statistics.median(t[k] for t in times) for k in range(3)]
                 rows.append(dict(base, solver="SuperLU", analyse_s=None, factor_s=med[0],
                                  solve_s=med[1], total_s=sum(med[:2]), cpu_s=med[2],
