@@ -10,8 +10,8 @@ script reads those files and times two established solvers on exactly the same s
   factorisation, one solve; the three phases are timed separately. The factor kind is
   CHOLMOD's own default choice (`--cholmod-mode auto`: supernodal LL' when the flop count per
   factor entry is 40 or more, as on grids; simplicial LDL' otherwise, as on trees and ladders,
-  where forcing supernodal makes the factor 3-8x slower); `--cholmod-mode supernodal` forces
-  it. The kind used is printed.
+  where forcing supernodal made the factor about 3-8x slower at 10^6 unknowns);
+  `--cholmod-mode supernodal` forces it. The kind used is printed.
 - SuperLU as shipped with SciPy (`scipy.sparse.linalg.splu`) on the full symmetric matrix,
   column ordering MMD_AT_PLUS_A (minimum degree on A'+A, the choice for a symmetric
   pattern); `splu` includes its analysis, so its analysis and factorisation are one figure.
@@ -27,9 +27,9 @@ Run:
     cargo run --release --example large_solve -- --reference   # writes, then calls this
 
 Needs `pip install numpy scipy`. CHOLMOD needs the shared library libcholmod (Debian/Ubuntu:
-`apt-get install libsuitesparse-dev` or `libcholmod3`; any CHOLMOD whose cholmod_common
-starts with the documented 3.x/4.x/5.x fields; the layout is checked against the defaults
-set by cholmod_start before use); `--libcholmod PATH` picks a particular library. Without
+`apt-get install libsuitesparse-dev` or `libcholmod3`). The struct layouts here were checked
+against CHOLMOD 3.0 (SuiteSparse 5.x); with any library, the defaults set by cholmod_start must
+read back at the expected places or CHOLMOD is not used. `--libcholmod PATH` picks a library. Without
 numpy/scipy the script prints why and exits 0, so a benchmark on a fresh machine does not
 fail; without CHOLMOD it prints "CHOLMOD not available: <reason>" and times SuperLU alone.
 
