@@ -7,6 +7,7 @@
 //! cargo run --release --example large_solve -- --runs 9 --size 100000
 //! cargo run --release --example large_solve -- --write-mtx DIR     # also write each system
 //! cargo run --release --example large_solve -- --only tree         # one system
+//! cargo run --release --example large_solve -- --reference         # also CHOLMOD, SuperLU
 //! ```
 //!
 //! `ref s` is a fixed reference workload timed in the same runs (a dependent random walk over
@@ -32,7 +33,11 @@
 //! whole matrix + one triangular solve, no checks. Medians
 //! of `--runs` runs. With `--write-mtx DIR`, each system's matrix (symmetric, lower triangle)
 //! and right-hand side are written in Matrix Market format as DIR/NAME.mtx and DIR/NAME_b.mtx
-//! so that other solvers can be timed on exactly the same systems.
+//! so that other solvers can be timed on exactly the same systems. With `--reference`, the
+//! systems are written (to a fresh temporary directory unless `--write-mtx` is given) and
+//! `examples/reference_solvers.py` times SuiteSparse CHOLMOD and SuperLU on them in the same
+//! run, its table printed after rillnet's (python3 with numpy and scipy; CHOLMOD from the
+//! shared library libcholmod; without them it says what is missing and the run goes on).
 
 use rillnet::analysis::kirchhoff::{conductances, drive_values, KirchhoffSystem, Solver};
 use rillnet::prelude::*;
@@ -214,6 +219,10 @@ fn main() {
         .and_then(|v| v.parse().ok())
         .unwrap_or(1_000_000);
     let mtx = flag("--write-mtx").map(std::path::PathBuf::from);
+    let solvers = args.iter().any(|a| a == "--reference");
+    // `--reference` without `--write-mtx`: the systems go to a fresh temporary directory.
+    let temporary = solvers && mtx.is_none();
+    let mtx = if temporary { reference_dir() } else { mtx };
     let only = flag("--only").cloned();
     // Grid side for ≈ size channels (708 → 1 001 112 channels at the default size).
     let side = ((size as f64 / 2.0).sqrt().ceil() as usize).max(3);
@@ -323,6 +332,61 @@ fn main() {
          without elimination or checks; ref = the fixed reference workload (see the top of \
          examples/large_solve.rs). Targets are for 10⁶ unknowns."
     );
+    if let (true, Some(dir)) = (solvers, &mtx) {
+        reference_solvers(dir, runs, temporary);
+    }
+}
+
+/// A fresh directory under the system's temporary directory for `--reference` (`None`, with
+/// the reason printed, when it cannot be created: rillnet's own figures are still taken).
+fn reference_dir() -> Option<std::path::PathBuf> {
+    let nanos = std::time::SystemTime::now()
+        .duration_since(std::time::UNIX_EPOCH)
+        .map_or(0, |d| d.as_nanos());
+    let dir = std::env::temp_dir().join(format!(
+        "rillnet-large-solve-{}-{nanos}",
+        std::process::id()
+    ));
+    match std::fs::create_dir(&dir) {
+        Ok(()) => Some(dir),
+        Err(e) => {
+            println!(
+                "reference solvers not run: cannot create {}: {e}",
+                dir.display()
+            );
+            None
+        }
+    }
+}
+
+/// `--reference`: time SuiteSparse CHOLMOD and SuperLU on the systems just written to `dir`
+/// (`examples/reference_solvers.py`, same number of runs), its output after rillnet's table;
+/// a missing python3 or a failing script is reported and the run goes on. A temporary `dir`
+/// is removed afterwards.
+fn reference_solvers(dir: &std::path::Path, runs: usize, temporary: bool) {
+    let script = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("examples")
+        .join("reference_solvers.py");
+    println!(
+        "\nreference solvers on the same systems ({}):",
+        dir.display()
+    );
+    let _ = std::io::stdout().flush();
+    let status = std::process::Command::new("python3")
+        .arg(&script)
+        .arg(dir)
+        .args(["--runs", &runs.to_string()])
+        .status();
+    match status {
+        Ok(s) if s.success() => {}
+        Ok(s) => println!("reference solvers failed ({s}); rillnet's figures above stand"),
+        Err(e) => println!("reference solvers not run: cannot start python3: {e}"),
+    }
+    if temporary {
+        if let Err(e) = std::fs::remove_dir_all(dir) {
+            println!("cannot remove {}: {e}", dir.display());
+        }
+    }
 }
 
 /// Per-phase times of the runs of one system.
