@@ -63,8 +63,8 @@ pub(crate) struct Plan {
     edges: usize,
     /// Per channel: its edge, or [`NONE`] when an end is a pressure port.
     channel_edge: Vec<u32>,
-    /// Per channel with exactly one unknown end: that unknown, else [`NONE`].
-    channel_ground: Vec<u32>,
+    /// Per channel: its two ends' unknowns, [`NONE`] at a pressure port.
+    channel_ends: Vec<[u32; 2]>,
     /// In the numbering of [`Plan::renumber`]: step t eliminates unknown t.
     steps: Vec<Step>,
     /// Unknown (numbered as in [`Plan::renumber`]) → unknown of the system; the last
@@ -356,22 +356,24 @@ impl Plan {
             }
         }
         // The reduced system: kept unknowns and the edges left between them.
-        let mut reduced_of = vec![NONE; n];
         let kept: Vec<u32> = (0..n as u32)
             .filter(|&v| adj.rec[v as usize].alive)
             .collect();
-        for (r, &v) in kept.iter().enumerate() {
-            reduced_of[v as usize] = r as u32;
-        }
         let m = kept.len();
-        if m > 0 && !adj.listed {
-            adj.build_lists(full);
-        }
         let mut live = Vec::new();
-        for (r, &v) in kept.iter().enumerate() {
-            for &(u, e) in adj.entries(v as usize) {
-                if adj.rec[u as usize].alive && u > v {
-                    live.push((e, r as u32, reduced_of[u as usize]));
+        if m > 0 {
+            let mut reduced_of = vec![NONE; n];
+            for (r, &v) in kept.iter().enumerate() {
+                reduced_of[v as usize] = r as u32;
+            }
+            if !adj.listed {
+                adj.build_lists(full);
+            }
+            for (r, &v) in kept.iter().enumerate() {
+                for &(u, e) in adj.entries(v as usize) {
+                    if adj.rec[u as usize].alive && u > v {
+                        live.push((e, r as u32, reduced_of[u as usize]));
+                    }
                 }
             }
         }
@@ -385,29 +387,24 @@ impl Plan {
             None
         };
         let mut channel_edge = Vec::with_capacity(system.channels());
-        let mut channel_ground = Vec::with_capacity(system.channels());
+        let mut channel_ends = Vec::with_capacity(system.channels());
+        let unknown = |node: u32| match system.unknown_of[node as usize] {
+            super::NONE => NONE,
+            u => u as u32,
+        };
         for (&[from, to], s) in system.ends().iter().zip(&system.slots) {
             channel_edge.push(if s.off == super::NONE {
                 NONE
             } else {
                 s.off as u32
             });
-            let (a, b) = (
-                system.unknown_of[from as usize],
-                system.unknown_of[to as usize],
-            );
-            let ground = match (a == super::NONE, b == super::NONE) {
-                (false, true) => a as u32,
-                (true, false) => b as u32,
-                _ => NONE,
-            };
-            channel_ground.push(ground);
+            channel_ends.push([unknown(from), unknown(to)]);
         }
         let mut plan = Plan {
             n,
             edges,
             channel_edge,
-            channel_ground,
+            channel_ends,
             steps,
             old_of: kept,
             live_slot: slot[m..].to_vec(),
@@ -462,8 +459,8 @@ impl Plan {
         for e in &mut self.channel_edge {
             *e = number(*e);
         }
-        for u in &mut self.channel_ground {
-            *u = unknown(*u);
+        for ends in &mut self.channel_ends {
+            *ends = ends.map(unknown);
         }
         self.edges = next as usize;
         self.old_of = old_of;
@@ -474,23 +471,25 @@ impl Plan {
         self.steps.len()
     }
 
-    /// Replay the elimination on conductances `g` and factorise what is left. `diagonal(u)` is
-    /// unknown u's assembled diagonal Σg: a pivot below ε times it fails as the full
-    /// factorisation would (see the module documentation) — leaving out the conductance
-    /// towards free parts already eliminated (a pump or dead end with no conductance of its
-    /// own to a port, which hands back exactly nothing to the pivot).
-    pub(crate) fn factorize(
-        &self,
-        g: &[f64],
-        diagonal: impl Fn(usize) -> f64,
-    ) -> Result<Eliminated<'_>, SolverError> {
+    /// Replay the elimination on conductances `g` and factorise what is left. A pivot below ε
+    /// times the unknown's assembled diagonal Σg fails as the full factorisation would (see
+    /// the module documentation) — leaving out the conductance towards free parts already
+    /// eliminated (a pump or dead end with no conductance of its own to a port, which hands
+    /// back exactly nothing to the pivot).
+    pub(crate) fn factorize(&self, g: &[f64]) -> Result<Eliminated<'_>, SolverError> {
         let mut w = vec![0.0; self.edges];
         let mut s = vec![0.0; self.n];
-        for ((&e, &u), &gk) in self.channel_edge.iter().zip(&self.channel_ground).zip(g) {
+        let mut diagonal = vec![0.0; self.n];
+        for ((&e, &[a, b]), &gk) in self.channel_edge.iter().zip(&self.channel_ends).zip(g) {
+            for u in [a, b].into_iter().filter(|&u| u != NONE) {
+                diagonal[u as usize] += gk;
+            }
             if e != NONE {
                 w[e as usize] += gk;
-            } else if u != NONE {
-                s[u as usize] += gk;
+            } else if a != NONE {
+                s[a as usize] += gk;
+            } else if b != NONE {
+                s[b as usize] += gk;
             }
         }
         let mut numeric = Vec::with_capacity(self.steps.len());
@@ -509,7 +508,7 @@ impl Plan {
                 w[st.e2 as usize]
             };
             let d = sv + w1 + w2;
-            let floor = f64::EPSILON * (diagonal(self.old_of[t] as usize) - free[t]);
+            let floor = f64::EPSILON * (diagonal[t] - free[t]);
             if d.is_nan() || d <= floor {
                 return Err(SolverError::NotPositiveDefinite {
                     pivot: t,
@@ -535,10 +534,9 @@ impl Plan {
                 w[st.e3 as usize] += w1 / d * w2;
             }
             numeric.push(Pivot {
-                d,
+                signed_d: if sv == 0.0 { -d } else { d },
                 m1: w1 / d,
                 m2: w2 / d,
-                free: sv == 0.0,
             });
         }
         let cholesky = match &self.symbolic {
@@ -579,14 +577,24 @@ impl Plan {
     }
 }
 
-/// One eliminated unknown's pivot d = s + w₁ + w₂ and multipliers wᵢ/d; `free` when it had
-/// no conductance to a port (s = 0).
+/// One eliminated unknown's pivot d = s + w₁ + w₂ > 0 and multipliers wᵢ/d, in 24 bytes:
+/// the pivot is stored negated when the unknown had no conductance to a port (s = 0, a
+/// "free" unknown).
 #[derive(Clone, Copy, Debug)]
 struct Pivot {
-    d: f64,
+    signed_d: f64,
     m1: f64,
     m2: f64,
-    free: bool,
+}
+
+impl Pivot {
+    fn d(self) -> f64 {
+        self.signed_d.abs()
+    }
+
+    fn free(self) -> bool {
+        self.signed_d < 0.0
+    }
 }
 
 /// The numeric elimination for one set of conductances, with the factor of what is left.
@@ -645,10 +653,10 @@ impl Eliminated<'_> {
                     col[st.j as usize]
                 };
                 let xk = if st.k == NONE { xj } else { col[st.k as usize] };
-                col[t] = if p.free && bv == 0.0 && st.j != NONE && xj == xk {
+                col[t] = if p.free() && bv == 0.0 && st.j != NONE && xj == xk {
                     xj
                 } else {
-                    bv / p.d + p.m1 * xj + p.m2 * if st.k == NONE { 0.0 } else { xk }
+                    bv / p.d() + p.m1 * xj + p.m2 * if st.k == NONE { 0.0 } else { xk }
                 };
             }
         }

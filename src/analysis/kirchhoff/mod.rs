@@ -326,20 +326,6 @@ impl KirchhoffSystem {
         values
     }
 
-    /// The matrix diagonal alone, Σ g_k over each unknown's channels, indexed by unknown.
-    pub fn diagonal(&self, g: &[f64]) -> Vec<f64> {
-        let mut d = vec![0.0; self.dim()];
-        for (&[from, to], &gk) in self.ends.iter().zip(g) {
-            for end in [from, to] {
-                let u = self.unknown_of[end as usize];
-                if u != NONE {
-                    d[u] += gk;
-                }
-            }
-        }
-        d
-    }
-
     /// Right-hand side: pump injections plus the pull of known port pressures.
     pub fn rhs(&self, network: &Network, g: &[f64]) -> Vec<f64> {
         self.rhs_for(network, g, &drive_values(network))

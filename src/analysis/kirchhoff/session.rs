@@ -292,10 +292,7 @@ impl<'a> Factor<'a> {
         expect_len("conductances", network.channels.len(), g.len())?;
         let values = std::sync::OnceLock::new();
         let linear = match analysis {
-            Analysis::Eliminating(plan) => {
-                let diagonal = system.diagonal(&g);
-                plan.factorize(&g, |u| diagonal[u]).map(Linear::Eliminated)
-            }
+            Analysis::Eliminating(plan) => plan.factorize(&g).map(Linear::Eliminated),
             Analysis::Whole(symbolic) => symbolic
                 .factorize(
                     system.pattern(),
