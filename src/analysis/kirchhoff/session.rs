@@ -24,6 +24,7 @@ use crate::network::{Network, NodeId, Port};
 use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky};
 use std::borrow::Cow;
 use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::OnceLock;
 
 /// A channel whose conductance exceeds the others at its ends by this factor is named as the
 /// cause when the flows do not balance (its resistance is negligible: merging its ends is
@@ -41,7 +42,9 @@ pub struct Solver<'n> {
     network: &'n Network,
     system: KirchhoffSystem,
     plan: Plan,
-    dead_end: Vec<bool>,
+    /// Dead-end channels ([`Network::dead_end_channels`]), marked at the first solve: only the
+    /// checks and the flows need them, not the factorisation.
+    dead_end: OnceLock<Vec<bool>>,
     factorizations: AtomicUsize,
 }
 
@@ -76,12 +79,11 @@ impl<'n> Solver<'n> {
         par: Parallelism,
     ) -> Result<Self, SolveError> {
         let plan = Plan::new(&system, par)?;
-        let dead_end = system.dead_end_channels();
         Ok(Solver {
             network,
             system,
             plan,
-            dead_end,
+            dead_end: OnceLock::new(),
             factorizations: AtomicUsize::new(0),
         })
     }
@@ -181,7 +183,7 @@ pub struct Factor<'a> {
     /// The assembled matrix values, made when first needed (refinement, adjoint checks).
     values: std::sync::OnceLock<Vec<f64>>,
     linear: Linear<'a>,
-    dead_end: Cow<'a, [bool]>,
+    dead_end: Cow<'a, OnceLock<Vec<bool>>>,
 }
 
 /// The analysis a factor is built on: a [`Solver`]'s elimination plan, or a caller's symbolic
@@ -276,7 +278,7 @@ impl<'a> Factor<'a> {
         symbolic: &'a SymbolicCholesky,
         g: Vec<f64>,
     ) -> Result<Self, SolveError> {
-        let dead_end = Cow::Owned(network.dead_end_channels());
+        let dead_end = Cow::Owned(OnceLock::new());
         Self::build(network, system, Analysis::Whole(symbolic), g, dead_end)
     }
 
@@ -285,7 +287,7 @@ impl<'a> Factor<'a> {
         system: &'a KirchhoffSystem,
         analysis: Analysis<'a>,
         g: Vec<f64>,
-        dead_end: Cow<'a, [bool]>,
+        dead_end: Cow<'a, OnceLock<Vec<bool>>>,
     ) -> Result<Self, SolveError> {
         expect_len("system nodes", network.nodes.len(), system.nodes())?;
         expect_len("system channels", network.channels.len(), system.channels())?;
@@ -309,6 +311,12 @@ impl<'a> Factor<'a> {
             linear,
             dead_end,
         })
+    }
+
+    /// The dead-end channels, marked on first use.
+    fn dead_ends(&self) -> &[bool] {
+        self.dead_end
+            .get_or_init(|| self.system.dead_end_channels())
     }
 
     /// The assembled matrix values for this factor's conductances.
@@ -427,7 +435,7 @@ impl<'a> Factor<'a> {
         let mut net = vec![0.0; n];
         let mut through = vec![0.0f64; n];
         let (mut noise, mut cancel) = (0.0, false);
-        for ((&[i, j], &gk), &dead) in system.ends().iter().zip(&self.g).zip(self.dead_end.iter()) {
+        for ((&[i, j], &gk), &dead) in system.ends().iter().zip(&self.g).zip(self.dead_ends()) {
             let (i, j) = (i as usize, j as usize);
             let (pi, pj) = (pressures[i], pressures[j]);
             let (q, size) = sums.add(i, j, gk, pi, pj);
@@ -595,7 +603,7 @@ impl<'a> Factor<'a> {
                 &pass.pressures,
                 &self.g,
                 &pass.conductance,
-                &self.dead_end,
+                self.dead_ends(),
             )
         } else {
             None
