@@ -340,6 +340,8 @@ impl Row for NodeRow {
 }
 
 /// A [`NodeSpec`] borrowed from a [`NodeRow::Full`] or rebuilt from a plain row.
+// Lives on the stack for one node at a time; boxing the owned form would allocate per node.
+#[allow(clippy::large_enum_variant)]
 enum SpecRef<'a> {
     Borrowed(&'a NodeSpec),
     Owned(NodeSpec),
