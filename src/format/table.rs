@@ -145,3 +145,46 @@ impl<'de> DeserializeSeed<'de> for NameSeed<'_> {
         deserializer.deserialize_any(V(self.0))
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use crate::format::{parse_chip, Syntax};
+
+    #[test]
+    fn plain_and_full_entries_and_numeric_names_read_back() {
+        let text = "\
+fluid: {viscosity: 1 mPa*s, density: 1000 kg/m^3}
+sections:
+  s: {shape: circle, diameter: 100 um}
+nodes:
+  1: {pressure: 100 mbar}
+  j: {at: [1 mm, 2 mm]}
+  out: {pressure: 0 Pa, elevation: 3 mm}
+channels:
+  a: {from: 1, to: j, section: s, length: 5 mm}
+  b: {from: j, to: out, section: {shape: circle, diameter: 80 um}, length: 7 mm,
+      path: [[2 mm, 2 mm], [2 mm, 4 mm]], shear_limit: 2 Pa}
+";
+        let chip = parse_chip(text, "t.yaml", Syntax::Yaml).unwrap();
+        let net = &chip.network;
+        let names: Vec<&str> = net.nodes.iter().map(|n| n.name.as_str()).collect();
+        assert_eq!(names, ["1", "j", "out"]);
+        assert_eq!(net.nodes[crate::network::NodeId(2)].elevation.si(), 3e-3);
+        assert_eq!(chip.layout.node_at[1], Some([1e-3, 2e-3]));
+        assert_eq!(chip.layout.node_at[0], None);
+        let (a, b) = (
+            &net.channels[crate::network::ChannelId(0)],
+            &net.channels[crate::network::ChannelId(1)],
+        );
+        assert_eq!((a.from.0, a.to.0, b.from.0, b.to.0), (0, 1, 1, 2));
+        assert_eq!(net.sections[a.section].name, "s");
+        assert_eq!(net.sections[b.section].name, "b.section");
+        assert_eq!(b.length.si(), 7e-3);
+        assert_eq!(b.shear_limit.map(|p| p.si()), Some(2.0));
+        assert!(chip.layout.channel_path[0].is_empty());
+        assert_eq!(
+            chip.layout.channel_path[1],
+            vec![[2e-3, 2e-3], [2e-3, 4e-3]]
+        );
+    }
+}
