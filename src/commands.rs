@@ -108,7 +108,15 @@ fn load_and_solve_with(
     input: &ChipInput<'_>,
     mixing: Option<crate::chip::species::Mixing>,
 ) -> Result<(Chip, SteadyState), Error> {
-    load_and_solve_watched(input, mixing, &Silent)
+    load_and_solve_watched(input, mixing, &Silent, Text::Keep)
+}
+
+/// Whether a loaded chip keeps its text after loading (edited copies and the report page
+/// need it; `solve` and `check` do not, and a 10⁶-channel file is about 100 MB).
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Text {
+    Keep,
+    Drop,
 }
 
 /// [`load_and_solve_with`] telling `progress` where the work is.
@@ -116,9 +124,14 @@ fn load_and_solve_watched(
     input: &ChipInput<'_>,
     mixing: Option<crate::chip::species::Mixing>,
     progress: &dyn Progress,
+    text: Text,
 ) -> Result<(Chip, SteadyState), Error> {
     progress.begin(Phase::Loading);
     let mut chip = input.load()?;
+    if text == Text::Drop {
+        // Errors found after loading name channels and nodes, not places in the text.
+        chip.source.text = String::new();
+    }
     progress.begin(Phase::Solving);
     if let Some(m) = mixing {
         chip.mixing = m;
@@ -199,6 +212,8 @@ fn margin_plot(
 }
 
 /// Load and solve a chip (and its sensitivities when asked), solutes in the chip's model.
+/// The outcome's chip keeps its origin but not its text (`source.text` is empty; `check`
+/// likewise).
 pub fn solve(req: &SolveRequest<'_>) -> Result<Outcome, Error> {
     solve_mixing(req, None)
 }
@@ -218,7 +233,7 @@ pub fn solve_watched(
     mixing: Option<crate::chip::species::Mixing>,
     progress: &dyn Progress,
 ) -> Result<Outcome, Error> {
-    let (chip, state) = load_and_solve_watched(&req.chip, mixing, progress)?;
+    let (chip, state) = load_and_solve_watched(&req.chip, mixing, progress, Text::Drop)?;
     if let Some(path) = req.plot {
         margin_plot(&chip, &state, path, &req.chip)?;
     }
@@ -511,7 +526,7 @@ pub fn check(req: &CheckRequest<'_>) -> Result<Outcome, Error> {
 
 /// [`check`] telling `progress` which phase the work is in.
 pub fn check_watched(req: &CheckRequest<'_>, progress: &dyn Progress) -> Result<Outcome, Error> {
-    let (chip, state) = load_and_solve_watched(&req.chip, None, progress)?;
+    let (chip, state) = load_and_solve_watched(&req.chip, None, progress, Text::Drop)?;
     if let Some(path) = req.plot {
         margin_plot(&chip, &state, path, &req.chip)?;
     }

@@ -496,12 +496,84 @@ fn check_storage(
     }
 }
 
+/// Names → indices without a second copy of each name: an open-addressing table (linear
+/// probing, at most half full) of indices into the builder's own nodes or channels, whose
+/// names are the keys. About 8–16 bytes per name where a `HashMap<String, _>` took a copy of
+/// the name and its own entry (≈ 70 bytes per name at 10⁶ channels).
+#[derive(Debug, Default)]
+struct NameIndex {
+    /// `usize::MAX` marks an empty slot; the length is 0 or a power of two.
+    slots: Vec<usize>,
+    len: usize,
+}
+
+impl NameIndex {
+    const EMPTY: usize = usize::MAX;
+
+    fn hash(name: &str) -> usize {
+        use std::hash::{Hash, Hasher};
+        let mut h = rustc_hash::FxHasher::default();
+        name.hash(&mut h);
+        h.finish() as usize
+    }
+
+    /// Room for `n` names without growing (`key(i)`: the name of index `i`).
+    fn reserve<'a>(&mut self, n: usize, key: impl Fn(usize) -> &'a str) {
+        let want = n.saturating_mul(2).max(16).next_power_of_two();
+        if want > self.slots.len() {
+            let old = std::mem::replace(&mut self.slots, vec![Self::EMPTY; want]);
+            for id in old.into_iter().filter(|&id| id != Self::EMPTY) {
+                let at = self.free_slot(key(id));
+                self.slots[at] = id;
+            }
+        }
+    }
+
+    /// The first empty slot on `name`'s probe path (the table is never full).
+    fn free_slot(&self, name: &str) -> usize {
+        let mask = self.slots.len() - 1;
+        let mut at = Self::hash(name) & mask;
+        while self.slots[at] != Self::EMPTY {
+            at = (at + 1) & mask;
+        }
+        at
+    }
+
+    /// Add index `id` under `name`; false (and nothing added) when the name is taken.
+    fn insert<'a>(&mut self, id: usize, name: &str, key: impl Fn(usize) -> &'a str) -> bool {
+        if self.get(name, &key).is_some() {
+            return false;
+        }
+        self.reserve(self.len + 1, &key);
+        let at = self.free_slot(name);
+        self.slots[at] = id;
+        self.len += 1;
+        true
+    }
+
+    /// The index named `name`; `key(i)` is the name of index `i`.
+    fn get<'a>(&self, name: &str, key: &impl Fn(usize) -> &'a str) -> Option<usize> {
+        if self.slots.is_empty() {
+            return None;
+        }
+        let mask = self.slots.len() - 1;
+        let mut at = Self::hash(name) & mask;
+        loop {
+            match self.slots[at] {
+                Self::EMPTY => return None,
+                id if key(id) == name => return Some(id),
+                _ => at = (at + 1) & mask,
+            }
+        }
+    }
+}
+
 /// Builds a [`Network`] by name, checking as it goes.
 #[derive(Debug)]
 pub struct NetworkBuilder {
     fluid: Fluid,
     nodes: Vec<Node>,
-    node_index: HashMap<String, NodeId>,
+    node_index: NameIndex,
     sections: Vec<Section>,
     section_index: HashMap<String, SectionId>,
     /// Figures per geometry, so each geometry is solved once.
@@ -509,7 +581,7 @@ pub struct NetworkBuilder {
     /// Inline sections of identical geometry share one section.
     inline_cache: HashMap<GeometryKey, SectionId>,
     channels: Vec<Channel>,
-    channel_names: HashMap<String, ChannelId>,
+    channel_names: NameIndex,
     pressure_rating: Option<Pressure>,
     numeric: NumericOptions,
     gravity: f64,
@@ -520,13 +592,13 @@ impl NetworkBuilder {
         NetworkBuilder {
             fluid,
             nodes: Vec::new(),
-            node_index: HashMap::default(),
+            node_index: NameIndex::default(),
             sections: Vec::new(),
             section_index: HashMap::default(),
             figure_cache: HashMap::default(),
             inline_cache: HashMap::default(),
             channels: Vec::new(),
-            channel_names: HashMap::default(),
+            channel_names: NameIndex::default(),
             pressure_rating: None,
             numeric: NumericOptions::default(),
             gravity: STANDARD_GRAVITY,
@@ -571,9 +643,13 @@ impl NetworkBuilder {
     /// Reserve room for a large network.
     pub fn with_capacity(mut self, nodes: usize, channels: usize) -> Self {
         self.nodes.reserve(nodes);
-        self.node_index.reserve(nodes);
+        let names = &self.nodes;
+        self.node_index
+            .reserve(nodes, |i| names.get(i).map_or("", |n| n.name.as_str()));
         self.channels.reserve(channels);
-        self.channel_names.reserve(channels);
+        let names = &self.channels;
+        self.channel_names
+            .reserve(channels, |i| names.get(i).map_or("", |c| c.name.as_str()));
         self
     }
 
@@ -624,7 +700,9 @@ impl NetworkBuilder {
             _ => {}
         }
         let id = NodeId(self.nodes.len());
-        if self.node_index.insert(name.to_string(), id).is_some() {
+        let names = &self.nodes;
+        let key = |i: usize| names.get(i).map_or("", |n: &Node| n.name.as_str());
+        if !self.node_index.insert(id.0, name, key) {
             return Err(NetworkError::DuplicateNode {
                 name: name.to_string(),
             });
@@ -728,14 +806,15 @@ impl NetworkBuilder {
     }
 
     fn node(&self, channel: &str, field: &'static str, name: &str) -> Result<NodeId, NetworkError> {
+        let key = |i: usize| self.nodes.get(i).map_or("", |n: &Node| n.name.as_str());
         self.node_index
-            .get(name)
-            .copied()
+            .get(name, &key)
+            .map(NodeId)
             .ok_or_else(|| NetworkError::UnknownNode {
                 channel: channel.to_string(),
                 field,
                 node: name.to_string(),
-                hint: suggestion(name, self.node_index.keys().map(String::as_str)),
+                hint: suggestion(name, self.nodes.iter().map(|n| n.name.as_str())),
             })
     }
 
@@ -764,7 +843,9 @@ impl NetworkBuilder {
             });
         }
         let id = ChannelId(self.channels.len());
-        if self.channel_names.insert(name.to_string(), id).is_some() {
+        let names = &self.channels;
+        let key = |i: usize| names.get(i).map_or("", |c: &Channel| c.name.as_str());
+        if !self.channel_names.insert(id.0, name, key) {
             return Err(NetworkError::DuplicateChannel {
                 name: name.to_string(),
             });
@@ -1059,5 +1140,56 @@ mod tests {
         let c2 = b.inline_section("c2", tube()).unwrap();
         assert_eq!(c1, c2, "identical inline shapes share one section");
         assert_ne!(a, c1);
+    }
+
+    #[test]
+    fn name_index_finds_every_name_through_growth_and_refuses_repeats() {
+        // Started small so the table grows (and re-places its ids) many times.
+        let mut b = NetworkBuilder::new(Fluid::WATER_20C);
+        let s = b.add_section("t", tube()).unwrap();
+        let n = 5_000;
+        for i in 0..n {
+            let port = if i == 0 {
+                Port::Pressure(Pressure::from_si(0.0))
+            } else {
+                Port::Junction
+            };
+            assert_eq!(b.add_node(&format!("n{i}"), port).unwrap(), NodeId(i));
+        }
+        for i in 1..n {
+            let id = b
+                .add_channel(
+                    &format!("c{i}"),
+                    &format!("n{}", i - 1),
+                    &format!("n{i}"),
+                    s,
+                    Length::from_si(1e-3),
+                )
+                .unwrap();
+            assert_eq!(id, ChannelId(i - 1));
+        }
+        for i in (0..n).step_by(97) {
+            assert!(matches!(
+                b.add_node(&format!("n{i}"), Port::Junction),
+                Err(NetworkError::DuplicateNode { .. })
+            ));
+        }
+        assert!(matches!(
+            b.add_channel("c7", "n1", "n2", s, Length::from_si(1e-3)),
+            Err(NetworkError::DuplicateChannel { .. })
+        ));
+        let e = b
+            .add_channel("x", "n12", "m4999", s, Length::from_si(1e-3))
+            .unwrap_err();
+        assert!(e.to_string().contains("did you mean 'n4999'"), "{e}");
+        let net = b.build().unwrap();
+        assert_eq!(net.nodes.len(), n);
+        assert_eq!(net.channels.len(), n - 1);
+        for i in (1..n).step_by(131) {
+            let c = &net.channels[ChannelId(i - 1)];
+            assert_eq!(c.name, format!("c{i}"));
+            assert_eq!(net.nodes[c.from].name, format!("n{}", i - 1));
+            assert_eq!(net.nodes[c.to].name, format!("n{i}"));
+        }
     }
 }

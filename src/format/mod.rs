@@ -30,6 +30,7 @@ mod quantity;
 mod section_spec;
 mod species_spec;
 pub mod spread_state;
+mod table;
 mod tolerance_spec;
 mod yaml_guard;
 
@@ -54,6 +55,7 @@ use crate::units::{
 use serde::de::{self, Deserializer, MapAccess, Visitor};
 use serde::Deserialize;
 use std::fmt;
+use table::{Arena, Row, Span, Table};
 
 pub use crate::chip::Syntax;
 
@@ -140,8 +142,8 @@ pub(crate) struct ChipFile {
     pub mixing: Option<species_spec::MixingSpec>,
     #[serde(default)]
     pub sections: Named<SectionSpec>,
-    pub nodes: Named<NodeSpec>,
-    pub channels: Named<ChannelSpec>,
+    pub nodes: Table<NodeRow>,
+    pub channels: Table<ChannelRow>,
     /// The chip's pressure rating (e.g. a bonded chip's burst limit, with a safety factor).
     #[serde(default)]
     pub pressure_rating: Option<Q<Pressure>>,
@@ -299,6 +301,159 @@ impl<'de> Deserialize<'de> for SectionRef {
     }
 }
 
+/// A node as kept between parsing and building: a junction or port with at most a drawing
+/// position inline (most nodes of a large chip), anything else as its full spec.
+#[derive(Debug)]
+pub(crate) enum NodeRow {
+    Plain {
+        pressure: Option<Q<Pressure>>,
+        flow: Option<Q<VolumeFlow>>,
+        at: Option<[Q<Length>; 2]>,
+    },
+    Full(Box<NodeSpec>),
+}
+
+impl Row for NodeRow {
+    type Spec = NodeSpec;
+    fn from_spec(spec: NodeSpec, _: &mut Arena) -> Option<NodeRow> {
+        Some(match spec {
+            NodeSpec {
+                concentrations: None,
+                pressure,
+                flow,
+                adjust: None,
+                at,
+                elevation: None,
+                reservoir: None,
+                gas_volume: None,
+                compliance: None,
+                tubing: None,
+                on_at: None,
+                ramp: None,
+                schedule: None,
+                arm: None,
+                tolerance: None,
+            } => NodeRow::Plain { pressure, flow, at },
+            spec => NodeRow::Full(Box::new(spec)),
+        })
+    }
+}
+
+/// A [`NodeSpec`] borrowed from a [`NodeRow::Full`] or rebuilt from a plain row.
+// Lives on the stack for one node at a time; boxing the owned form would allocate per node.
+#[allow(clippy::large_enum_variant)]
+enum SpecRef<'a> {
+    Borrowed(&'a NodeSpec),
+    Owned(NodeSpec),
+}
+
+impl std::ops::Deref for SpecRef<'_> {
+    type Target = NodeSpec;
+    fn deref(&self) -> &NodeSpec {
+        match self {
+            SpecRef::Borrowed(s) => s,
+            SpecRef::Owned(s) => s,
+        }
+    }
+}
+
+impl NodeRow {
+    fn spec(&self) -> SpecRef<'_> {
+        match self {
+            NodeRow::Full(spec) => SpecRef::Borrowed(spec),
+            NodeRow::Plain { pressure, flow, at } => SpecRef::Owned(NodeSpec {
+                pressure: *pressure,
+                flow: *flow,
+                at: *at,
+                ..NodeSpec::default()
+            }),
+        }
+    }
+
+    fn at(&self) -> Option<[Q<Length>; 2]> {
+        match self {
+            NodeRow::Full(spec) => spec.at,
+            NodeRow::Plain { at, .. } => *at,
+        }
+    }
+
+    /// The full spec, for the keys a plain row does not have.
+    fn full(&self) -> Option<&NodeSpec> {
+        match self {
+            NodeRow::Full(spec) => Some(spec),
+            NodeRow::Plain { .. } => None,
+        }
+    }
+}
+
+/// A channel as kept between parsing and building: its node and section names in the
+/// table's arena, the rarely given keys boxed.
+#[derive(Debug)]
+pub(crate) struct ChannelRow {
+    from: Span,
+    to: Span,
+    section: SectionRow,
+    length: Q<Length>,
+    rest: Option<Box<ChannelRest>>,
+}
+
+#[derive(Debug)]
+enum SectionRow {
+    Named(Span),
+    Inline(Box<SectionSpec>),
+}
+
+/// The keys of a channel most channels do not have.
+#[derive(Debug)]
+struct ChannelRest {
+    shear_limit: Option<Q<Pressure>>,
+    size: Option<SizeSpec>,
+    path: Option<Vec<[Q<Length>; 2]>>,
+    tolerance: Option<tolerance_spec::ToleranceBlock>,
+}
+
+impl Row for ChannelRow {
+    type Spec = ChannelSpec;
+    fn from_spec(spec: ChannelSpec, arena: &mut Arena) -> Option<ChannelRow> {
+        let ChannelSpec {
+            from,
+            to,
+            section,
+            length,
+            shear_limit,
+            size,
+            path,
+            tolerance,
+        } = spec;
+        let rest =
+            (shear_limit.is_some() || size.is_some() || path.is_some() || tolerance.is_some())
+                .then(|| {
+                    Box::new(ChannelRest {
+                        shear_limit,
+                        size,
+                        path,
+                        tolerance,
+                    })
+                });
+        Some(ChannelRow {
+            from: arena.push(&from)?,
+            to: arena.push(&to)?,
+            section: match section {
+                SectionRef::Named(name) => SectionRow::Named(arena.push(&name)?),
+                SectionRef::Inline(spec) => SectionRow::Inline(spec),
+            },
+            length,
+            rest,
+        })
+    }
+}
+
+impl ChannelRow {
+    fn rest(&self) -> Option<&ChannelRest> {
+        self.rest.as_deref()
+    }
+}
+
 // ---------------------------------------------------------------------------------------
 // Conversion into domain types.
 // ---------------------------------------------------------------------------------------
@@ -339,8 +494,9 @@ impl ChipFile {
     ) -> Result<Drives, Misplaced> {
         let mut drives = Drives::default();
         let mut arms = Vec::new();
-        for (i, (name, spec)) in self.nodes.0.iter().enumerate() {
+        for (i, (name, row)) in self.nodes.iter().enumerate() {
             let node = crate::network::NodeId(i);
+            let Some(spec) = row.full() else { continue };
             if let Some(t) = spec.on_at {
                 if network.nodes[node].port == Port::Junction {
                     return Err(at(
@@ -405,8 +561,7 @@ impl ChipFile {
     /// stays with the caller, to locate the error in it).
     fn into_chip(self, read: FileReader<'_>, source: &mut Source) -> Result<Chip, Misplaced> {
         let (fluid, notes) = self.fluid.to_fluid()?;
-        let mut b =
-            NetworkBuilder::new(fluid).with_capacity(self.nodes.0.len(), self.channels.0.len());
+        let mut b = NetworkBuilder::new(fluid).with_capacity(self.nodes.len(), self.channels.len());
         if let Some(rating) = self.pressure_rating {
             b.pressure_rating(rating.0)?;
         }
@@ -430,25 +585,27 @@ impl ChipFile {
             let shape = spec.to_shape(&["sections", name], read)?;
             b.add_section(name, shape)?;
         }
-        for (name, spec) in &self.nodes.0 {
-            let port = node_port(name, spec)?;
+        for (name, row) in self.nodes.iter() {
+            let spec = row.spec();
+            let port = node_port(name, &spec)?;
             let id = b.add_node(name, port)?;
-            let storage = node_storage(name, spec)?;
+            let storage = node_storage(name, &spec)?;
             if storage.is_some() || spec.elevation.is_some() {
                 let z = spec.elevation.map_or(Length::from_si(0.0), |e| e.0);
                 b.node_storage(id, z, storage)?;
             }
         }
-        for (name, spec) in &self.channels.0 {
-            let section: SectionId = match &spec.section {
-                SectionRef::Named(s) => b.section(name, s)?,
-                SectionRef::Inline(inline) => {
+        for (name, row) in self.channels.iter() {
+            let section: SectionId = match &row.section {
+                SectionRow::Named(s) => b.section(name, self.channels.text(*s))?,
+                SectionRow::Inline(inline) => {
                     let shape = inline.to_shape(&["channels", name, "section"], read)?;
                     b.inline_section(name, shape)?
                 }
             };
-            let id = b.add_channel(name, &spec.from, &spec.to, section, spec.length.0)?;
-            if let Some(limit) = spec.shear_limit {
+            let (from, to) = (self.channels.text(row.from), self.channels.text(row.to));
+            let id = b.add_channel(name, from, to, section, row.length.0)?;
+            if let Some(limit) = row.rest().and_then(|r| r.shear_limit) {
                 b.channel_shear_limit(id, limit.0)?;
             }
         }
@@ -457,35 +614,31 @@ impl ChipFile {
         let tolerances = self.tolerances(&network)?;
         let node_at = self
             .nodes
-            .0
             .iter()
-            .map(|(_, n)| n.at.map(|p| [p[0].0.si(), p[1].0.si()]))
+            .map(|(_, n)| n.at().map(|p| [p[0].0.si(), p[1].0.si()]))
             .collect();
         let channel_path = self
             .channels
-            .0
             .iter()
             .map(|(_, c)| {
-                c.path
-                    .as_ref()
+                c.rest()
+                    .and_then(|r| r.path.as_ref())
                     .map(|pts| pts.iter().map(|p| [p[0].0.si(), p[1].0.si()]).collect())
                     .unwrap_or_default()
             })
             .collect();
         let adjust: Vec<(String, &AdjustSpec)> = self
             .nodes
-            .0
             .iter()
-            .filter_map(|(n, s)| s.adjust.as_ref().map(|a| (n.clone(), a)))
+            .filter_map(|(n, r)| Some((n.to_string(), r.full()?.adjust.as_ref()?)))
             .collect();
         let sizes: Vec<(String, &SizeSpec)> = self
             .channels
-            .0
             .iter()
-            .filter_map(|(n, s)| s.size.as_ref().map(|z| (n.clone(), z)))
+            .filter_map(|(n, c)| Some((n.to_string(), c.rest()?.size.as_ref()?)))
             .collect();
-        let given: Vec<_> = (self.nodes.0.iter())
-            .map(|(n, s)| (n.as_str(), s.concentrations.as_ref()))
+        let given: Vec<_> = (self.nodes.iter())
+            .map(|(n, r)| (n, r.full().and_then(|s| s.concentrations.as_ref())))
             .collect();
         let species = species_spec::to_species(&self.species, &given, &network)?;
         let design = design_spec::to_design(&network, &species, &self.targets, &adjust, &sizes)?;
@@ -536,21 +689,21 @@ impl ChipFile {
                 blocks.push((path(&["sections", name, "tolerance"]), t, owner));
             }
         }
-        for (i, (name, spec)) in self.nodes.0.iter().enumerate() {
-            if let Some(t) = &spec.tolerance {
+        for (i, (name, row)) in self.nodes.iter().enumerate() {
+            if let Some(t) = row.full().and_then(|s| s.tolerance.as_ref()) {
                 let owner = Owner::Node(crate::network::NodeId(i));
                 blocks.push((path(&["nodes", name, "tolerance"]), t, owner));
             }
         }
-        for (i, (name, spec)) in self.channels.0.iter().enumerate() {
+        for (i, (name, row)) in self.channels.iter().enumerate() {
             let id = crate::network::ChannelId(i);
-            if let SectionRef::Inline(inline) = &spec.section {
+            if let SectionRow::Inline(inline) = &row.section {
                 if let Some(t) = &inline.tolerance {
                     let owner = Owner::Section(network.channels[id].section);
                     blocks.push((path(&["channels", name, "section", "tolerance"]), t, owner));
                 }
             }
-            if let Some(t) = &spec.tolerance {
+            if let Some(t) = row.rest().and_then(|r| r.tolerance.as_ref()) {
                 blocks.push((
                     path(&["channels", name, "tolerance"]),
                     t,
@@ -985,11 +1138,11 @@ pub fn parse_chip_owned(
     };
     within_budget(
         origin,
-        crate::memory::for_network(file.nodes.0.len(), file.channels.0.len()),
+        crate::memory::for_network(file.nodes.len(), file.channels.len()),
         &format!(
             "its {} nodes and {} channels",
-            file.nodes.0.len(),
-            file.channels.0.len()
+            file.nodes.len(),
+            file.channels.len()
         ),
     )?;
     let mut source = Source {

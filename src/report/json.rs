@@ -217,8 +217,17 @@ pub(crate) fn write_json<T: Serialize>(
     value: &T,
     w: &mut dyn std::io::Write,
 ) -> std::io::Result<()> {
-    serde_json::to_writer_pretty(&mut *w, value).map_err(std::io::Error::from)?;
-    w.write_all(b"\n")
+    let mut w = tokens(w);
+    serde_json::to_writer_pretty(&mut w, value).map_err(std::io::Error::from)?;
+    std::io::Write::write_all(&mut w, b"\n")?;
+    std::io::Write::flush(&mut w)
+}
+
+/// The writer serde_json writes its tokens to: a buffer of a concrete type, so each of the
+/// tens of millions of small writes of a large document is a copy into the buffer rather than
+/// a call through `dyn Write` (the caller's writer gets 64 KiB at a time).
+fn tokens(w: &mut dyn std::io::Write) -> std::io::BufWriter<&mut dyn std::io::Write> {
+    std::io::BufWriter::with_capacity(1 << 16, w)
 }
 
 /// The solve report as pretty JSON (SI).
@@ -300,8 +309,10 @@ pub(crate) fn write_json_as<T: Serialize>(
     match layout {
         JsonLayout::Pretty => write_json(value, w),
         JsonLayout::Compact => {
-            serde_json::to_writer(&mut *w, value).map_err(std::io::Error::from)?;
-            w.write_all(b"\n")
+            let mut w = tokens(w);
+            serde_json::to_writer(&mut w, value).map_err(std::io::Error::from)?;
+            std::io::Write::write_all(&mut w, b"\n")?;
+            std::io::Write::flush(&mut w)
         }
     }
 }

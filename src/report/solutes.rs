@@ -237,21 +237,28 @@ pub(crate) fn csv_columns(chip: &Chip) -> Vec<String> {
 }
 
 /// CSV cells of a node or channel (empty where there is no value).
+#[cfg(test)]
 pub(crate) fn csv_cells(chip: &Chip, state: &SteadyState, at: At) -> Vec<String> {
-    let mut out: Vec<String> = (0..chip.species.len())
-        .map(|k| super::csv::num(value(state, k, at)))
-        .collect();
-    if chip.mixing == crate::chip::species::Mixing::Lateral {
-        for k in 0..chip.species.len() {
-            for what in [Across::Min, Across::Max, Across::Index] {
-                out.push(super::csv::num(match at {
-                    At::Channel(c) => across(state, k, c, what),
-                    At::Node(_) => None,
-                }));
-            }
-        }
-    }
-    out
+    csv_values(chip, state, at).map(super::csv::num).collect()
+}
+
+/// The values of a node's or channel's concentration columns, in [`csv_columns`] order.
+pub(crate) fn csv_values<'a>(
+    chip: &'a Chip,
+    state: &'a SteadyState,
+    at: At,
+) -> impl Iterator<Item = Option<f64>> + 'a {
+    let species = 0..chip.species.len();
+    let lateral = chip.mixing == crate::chip::species::Mixing::Lateral;
+    let means = species.clone().map(move |k| value(state, k, at));
+    let sides = species
+        .filter(move |_| lateral)
+        .flat_map(|k| [(k, Across::Min), (k, Across::Max), (k, Across::Index)])
+        .map(move |(k, what)| match at {
+            At::Channel(c) => across(state, k, c, what),
+            At::Node(_) => None,
+        });
+    means.chain(sides)
 }
 
 /// A display unit for a species: (label, SI → display factor), chosen from the largest inlet

@@ -221,13 +221,20 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
 /// At most [`TABLE_ROWS`] of them: the worst are selected first (O(n)), then sorted.
 pub(super) fn worst_first(state: &SteadyState) -> Vec<usize> {
     let mut order: Vec<usize> = (0..state.channels.len()).collect();
+    // The keys are rounded once per channel, not once per comparison.
+    let keys: Vec<(bool, f64)> = (state.channels.iter())
+        .map(|s| match s.shear_margin {
+            Some(m) => (true, tie_key(m)),
+            None => (false, tie_key(s.wall_shear_max)),
+        })
+        .collect();
     let cmp = |&a: &usize, &b: &usize| {
-        let (sa, sb) = (&state.channels[a], &state.channels[b]);
-        match (sa.shear_margin, sb.shear_margin) {
-            (Some(ma), Some(mb)) => tie_key(ma).total_cmp(&tie_key(mb)),
-            (Some(_), None) => std::cmp::Ordering::Less,
-            (None, Some(_)) => std::cmp::Ordering::Greater,
-            (None, None) => tie_key(sb.wall_shear_max).total_cmp(&tie_key(sa.wall_shear_max)),
+        let ((ha, ka), (hb, kb)) = (keys[a], keys[b]);
+        match (ha, hb) {
+            (true, true) => ka.total_cmp(&kb),
+            (true, false) => std::cmp::Ordering::Less,
+            (false, true) => std::cmp::Ordering::Greater,
+            (false, false) => kb.total_cmp(&ka),
         }
         .then(a.cmp(&b))
     };
