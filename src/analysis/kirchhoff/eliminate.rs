@@ -107,11 +107,9 @@ struct List {
 /// neighbours.
 struct Adjacency {
     rec: Vec<Rec>,
-    /// Built only when series joints are eliminated ([`Adjacency::build_lists`]).
+    /// Empty until series joints are eliminated ([`Adjacency::build_lists`]).
     list: Vec<List>,
     pool: Vec<(u32, u32)>,
-    /// The neighbour lists are built ([`Adjacency::build_lists`]).
-    listed: bool,
 }
 
 impl Adjacency {
@@ -150,7 +148,6 @@ impl Adjacency {
                 }
             }
         }
-        self.listed = true;
     }
 
     fn compact(&mut self, v: usize) {
@@ -313,7 +310,6 @@ impl Plan {
             rec: vec![blank; n],
             list: Vec::new(),
             pool: Vec::new(),
-            listed: false,
         };
         for j in 0..n {
             let (first, rows) = full.column(j);
@@ -366,7 +362,7 @@ impl Plan {
             for (r, &v) in kept.iter().enumerate() {
                 reduced_of[v as usize] = r as u32;
             }
-            if !adj.listed {
+            if adj.list.is_empty() {
                 adj.build_lists(full);
             }
             for (r, &v) in kept.iter().enumerate() {

@@ -179,7 +179,7 @@ pub fn worst_flow_imbalance(
             noise += g[k] * (pressures[c.from.0].abs() + pressures[c.to.0].abs());
         }
     }
-    let roles: Vec<Role> = network.nodes.iter().map(|n| Role::of(&n.port)).collect();
+    let roles = Role::of_nodes(network);
     worst_of_sums(&roles, &net, &through, noise, injection)
 }
 

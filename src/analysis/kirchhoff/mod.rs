@@ -183,6 +183,11 @@ impl Role {
         }
     }
 
+    /// Every node's role, in node order.
+    fn of_nodes(network: &Network) -> Vec<Role> {
+        network.nodes.iter().map(|n| Role::of(&n.port)).collect()
+    }
+
     /// The node's flow balance is imposed (a junction or a flow port).
     pub(crate) fn imposed(self) -> bool {
         self != Role::Pressure
@@ -192,7 +197,7 @@ impl Role {
 impl KirchhoffSystem {
     /// Build the structure for `network`.
     pub fn new(network: &Network) -> Self {
-        let role: Vec<Role> = network.nodes.iter().map(|n| Role::of(&n.port)).collect();
+        let role = Role::of_nodes(network);
         let fixed: Vec<bool> = role.iter().map(|&r| r == Role::Pressure).collect();
         Self::build(network, role, &fixed)
     }
@@ -200,7 +205,7 @@ impl KirchhoffSystem {
     /// The structure with the nodes marked `fixed` as known pressures and every other node an
     /// unknown (time evolution frees the wells, whose pressure follows their level).
     pub fn with_fixed(network: &Network, fixed: &[bool]) -> Self {
-        let role = network.nodes.iter().map(|n| Role::of(&n.port)).collect();
+        let role = Role::of_nodes(network);
         Self::build(network, role, fixed)
     }
 
@@ -480,7 +485,7 @@ pub fn balance_residuals_for(
     for (c, &gk) in network.channels.iter().zip(g) {
         sums.add(c.from.0, c.to.0, gk, pressures[c.from.0], pressures[c.to.0]);
     }
-    let roles: Vec<Role> = network.nodes.iter().map(|n| Role::of(&n.port)).collect();
+    let roles = Role::of_nodes(network);
     sums.residuals(&roles, pressures, drives)
 }
 
