@@ -969,12 +969,18 @@ impl Network {
     /// channel counts once at each of its two ends. A peeled branch is followed to its end
     /// at once, so no work list is needed.
     pub fn dead_end_channels(&self) -> Vec<bool> {
-        let ends: Vec<[u32; 2]> = self
-            .channels
+        dead_end_mask(self.nodes.len(), &self.channel_ends(), |i| {
+            self.nodes[NodeId(i)].port == Port::Junction
+        })
+    }
+
+    /// Every channel's (from, to) node indices, 8 bytes a channel ([`NetworkBuilder::build`]
+    /// keeps every index below `u32::MAX`).
+    pub fn channel_ends(&self) -> Vec<[u32; 2]> {
+        self.channels
             .iter()
             .map(|c| [c.from.0 as u32, c.to.0 as u32])
-            .collect();
-        dead_end_mask(&ends, |i| self.nodes[NodeId(i)].port == Port::Junction)
+            .collect()
     }
 
     /// Hydraulic resistance of a channel, R = μ·L/K [Pa·s/m³].
@@ -1038,16 +1044,15 @@ impl Network {
     }
 }
 
-/// [`Network::dead_end_channels`] for channels given by their (from, to) node indices (every
-/// node index below `u32::MAX`, which [`NetworkBuilder::build`] guarantees) and `junction(i)`
-/// telling whether node i is a junction. The per-node count and XOR sit side by side (one
-/// cache line per visit: on a large random tree the visits are random).
-pub(crate) fn dead_end_mask(ends: &[[u32; 2]], junction: impl Fn(usize) -> bool) -> Vec<bool> {
-    let n = ends
-        .iter()
-        .map(|&[a, b]| a.max(b) as usize + 1)
-        .max()
-        .unwrap_or(0);
+/// [`Network::dead_end_channels`] for `n` nodes and channels given by their (from, to) node
+/// indices ([`Network::channel_ends`]), `junction(i)` telling whether node i is a junction.
+/// The per-node count and XOR sit side by side (one cache line per visit: on a large random
+/// tree the visits are random).
+pub(crate) fn dead_end_mask(
+    n: usize,
+    ends: &[[u32; 2]],
+    junction: impl Fn(usize) -> bool,
+) -> Vec<bool> {
     let mut dead = vec![false; ends.len()];
     // Per node: live channels and the XOR of their indices.
     let mut live = vec![[0u32; 2]; n];

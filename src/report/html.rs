@@ -256,13 +256,7 @@ fn tables(chip: &Chip, state: &SteadyState, h: &mut String) {
         .zip(&state.channels)
         .map(|(c, s)| {
             let (a, b) = (&network.nodes[c.from].name, &network.nodes[c.to].name);
-            let direction = if s.flow == 0.0 {
-                format!("{a} ─ {b} (no flow)")
-            } else if s.flow > 0.0 {
-                format!("{a} → {b}")
-            } else {
-                format!("{b} → {a}")
-            };
+            let direction = super::flow_direction(a, b, s.flow);
             vec![
                 c.name.clone(),
                 direction,

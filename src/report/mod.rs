@@ -46,6 +46,17 @@ pub(crate) fn tie_key(x: f64) -> f64 {
     format!("{x:.9e}").parse().unwrap_or(x)
 }
 
+/// Which way a channel's flow runs, for a table: "a → b", "b → a", or "a ─ b (no flow)".
+pub(crate) fn flow_direction(a: &str, b: &str, flow: f64) -> String {
+    if flow == 0.0 {
+        format!("{a} ─ {b} (no flow)")
+    } else if flow > 0.0 {
+        format!("{a} → {b}")
+    } else {
+        format!("{b} → {a}")
+    }
+}
+
 pub(crate) fn role(port: Port) -> &'static str {
     match port {
         Port::Junction => "junction",

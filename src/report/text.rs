@@ -181,13 +181,7 @@ pub fn to_table(chip: &Chip, state: &SteadyState) -> String {
         .take(TABLE_ROWS)
     {
         let (a, b) = (&network.nodes[c.from].name, &network.nodes[c.to].name);
-        let direction = if s.flow == 0.0 {
-            format!("{a} ─ {b} (no flow)")
-        } else if s.flow > 0.0 {
-            format!("{a} → {b}")
-        } else {
-            format!("{b} → {a}")
-        };
+        let direction = super::flow_direction(a, b, s.flow);
         ch.add_row(vec![
             c.name.clone(),
             direction,

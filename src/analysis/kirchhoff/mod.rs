@@ -225,11 +225,7 @@ impl KirchhoffSystem {
             node_of.push(i);
         }
         let n = node_of.len();
-        let ends: Vec<[u32; 2]> = network
-            .channels
-            .iter()
-            .map(|c| [c.from.0 as u32, c.to.0 as u32])
-            .collect();
+        let ends = network.channel_ends();
         let unknowns = |[a, b]: [u32; 2]| (unknown_of[a as usize], unknown_of[b as usize]);
         // Entries 0..n are the diagonals (so isolated unknowns still have one); then one
         // off-diagonal entry per channel joining two unknowns, in channel order.
@@ -296,7 +292,9 @@ impl KirchhoffSystem {
     /// The channels on dead-end branches ([`Network::dead_end_channels`]), from the compact
     /// topology.
     pub(crate) fn dead_end_channels(&self) -> Vec<bool> {
-        crate::network::dead_end_mask(&self.ends, |i| self.role[i] == Role::Junction)
+        crate::network::dead_end_mask(self.role.len(), &self.ends, |i| {
+            self.role[i] == Role::Junction
+        })
     }
 
     /// Slot of the diagonal entry of unknown `u` in the matrix values.
