@@ -8,7 +8,20 @@
 //! cargo run --release --example large_solve -- --write-mtx DIR     # also write each system
 //! cargo run --release --example large_solve -- --only tree         # one system
 //! cargo run --release --example large_solve -- --reference         # also CHOLMOD, SuperLU
+//! cargo run --release --example large_solve -- --memory fresh      # first-touch memory
 //! ```
+//!
+//! Memory regime (`--memory`, set in the C allocator with `mallopt` on glibc, and passed to the
+//! reference solvers' process through the same allocator's environment variables):
+//! - `warm` (default): freed memory stays mapped, so each run reuses pages an earlier run
+//!   touched: the steady state of repeated solves (a sweep, a time step, any solve after the
+//!   first).
+//! - `fresh`: every large array is mapped anew and its pages faulted in on first touch, as in
+//!   a single solve in a new process; page faults are then a large part of the time.
+//!
+//! Left to its own heuristics the allocator switches between the two from run to run as the
+//! sizes of the arrays freed before change, and the figures with it; either regime is
+//! repeatable.
 //!
 //! `ref s` is a fixed reference workload timed in the same runs (a dependent random walk over
 //! a 64 MB array, about the memory pattern of the solve): on a shared machine it grows with the
@@ -160,6 +173,45 @@ fn reference() -> f64 {
     s
 }
 
+/// Set the C allocator's memory regime (see the top of this file).
+fn set_memory_regime(memory: &str) -> Result<(), String> {
+    if memory != "warm" && memory != "fresh" {
+        return Err(format!("--memory takes warm or fresh, not '{memory}'"));
+    }
+    #[cfg(all(target_os = "linux", target_env = "gnu"))]
+    {
+        // SAFETY: mallopt only changes glibc's allocation parameters; it is called before
+        // this program allocates anything large.
+        let ok = unsafe {
+            if memory == "warm" {
+                libc::mallopt(libc::M_MMAP_MAX, 0) == 1
+                    && libc::mallopt(libc::M_TRIM_THRESHOLD, libc::c_int::MAX) == 1
+            } else {
+                libc::mallopt(libc::M_MMAP_THRESHOLD, 128 * 1024) == 1
+            }
+        };
+        if !ok {
+            return Err("the allocator refused the memory regime (mallopt)".into());
+        }
+    }
+    #[cfg(not(all(target_os = "linux", target_env = "gnu")))]
+    println!("memory regime '{memory}' not set: it needs glibc's allocator");
+    Ok(())
+}
+
+/// The same regime for the reference solvers' process, through glibc's environment
+/// variables.
+fn memory_environment(memory: &str) -> Vec<(&'static str, &'static str)> {
+    if memory == "warm" {
+        vec![
+            ("MALLOC_MMAP_MAX_", "0"),
+            ("MALLOC_TRIM_THRESHOLD_", "2147483647"),
+        ]
+    } else {
+        vec![("MALLOC_MMAP_THRESHOLD_", "131072")]
+    }
+}
+
 fn median(mut v: Vec<f64>) -> f64 {
     v.sort_by(f64::total_cmp);
     v[v.len() / 2]
@@ -224,6 +276,11 @@ fn main() {
     let temporary = solvers && mtx.is_none();
     let mtx = if temporary { reference_dir() } else { mtx };
     let only = flag("--only").cloned();
+    let memory = flag("--memory").map_or("warm", |m| m.as_str());
+    if let Err(e) = set_memory_regime(memory) {
+        eprintln!("{e}");
+        std::process::exit(2);
+    }
     // Grid side for ≈ size channels (708 → 1 001 112 channels at the default size).
     let side = ((size as f64 / 2.0).sqrt().ceil() as usize).max(3);
     // Targets of the issue at 10⁶ unknowns (analyse + factor + solve, one core).
@@ -273,8 +330,11 @@ fn main() {
             let clock = Instant::now();
             let solver = Solver::from_system(&net, system).expect("analysis");
             t.analyse.push(secs(clock));
+            // The factor takes its conductances by value; the copy kept for the next run is
+            // made before the clock starts.
+            let own = g.clone();
             let clock = Instant::now();
-            let factor = solver.factorize(g.clone()).expect("factor");
+            let factor = solver.factorize(own).expect("factor");
             t.factor.push(secs(clock));
             let clock = Instant::now();
             factor.substitute(&mut b).expect("solve");
@@ -323,7 +383,7 @@ fn main() {
         );
     }
     println!(
-        "\nseconds, medians of {runs} runs, one core. assemble = the Kirchhoff structure from the \
+        "\nseconds, medians of {runs} runs, one core, memory {memory}. assemble = the Kirchhoff structure from the \
          network; analyse = elimination order, dead-end marking, analysis of what is left; factor, \
          solve = numeric factorisation and one substitution (core = analyse + factor + solve: the \
          work a sparse solver does on a given matrix, which the targets are for); check = what the \
@@ -333,7 +393,7 @@ fn main() {
          examples/large_solve.rs). Targets are for 10⁶ unknowns."
     );
     if let (true, Some(dir)) = (solvers, &mtx) {
-        reference_solvers(dir, runs, temporary);
+        reference_solvers(dir, runs, temporary, memory);
     }
 }
 
@@ -363,7 +423,7 @@ fn reference_dir() -> Option<std::path::PathBuf> {
 /// (`examples/reference_solvers.py`, same number of runs), its output after rillnet's table;
 /// a missing python3 or a failing script is reported and the run goes on. A temporary `dir`
 /// is removed afterwards.
-fn reference_solvers(dir: &std::path::Path, runs: usize, temporary: bool) {
+fn reference_solvers(dir: &std::path::Path, runs: usize, temporary: bool, memory: &str) {
     let script = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
         .join("examples")
         .join("reference_solvers.py");
@@ -376,6 +436,7 @@ fn reference_solvers(dir: &std::path::Path, runs: usize, temporary: bool) {
         .arg(&script)
         .arg(dir)
         .args(["--runs", &runs.to_string()])
+        .envs(memory_environment(memory))
         .status();
     match status {
         Ok(s) if s.success() => {}

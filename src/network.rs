@@ -866,8 +866,9 @@ impl NetworkBuilder {
         if self.channels.is_empty() {
             return Err(NetworkError::Empty);
         }
-        // Node and channel indices are held in 32 bits in the solver's compact topology.
-        let limit = u32::MAX as usize - 1;
+        // Node and channel indices are held in 32 bits in the solver's compact topology, and
+        // so are the matrix slots (one per unknown and one per channel at most).
+        let limit = i32::MAX as usize;
         if self.nodes.len() > limit || self.channels.len() > limit {
             return Err(NetworkError::TooLarge {
                 nodes: self.nodes.len(),

@@ -403,6 +403,60 @@ fn a_long_path_gives_the_series_flow() {
 }
 
 #[test]
+fn two_hubs_joined_by_many_chains_meet_the_parallel_law() {
+    // An inlet → hub A, 150 chains of three equal channels A–x–y–B, hub B → outlet. Every
+    // chain is 3r, the bundle 3r/150, so Q = Δp/(r_in + 3r/150 + r_out) and each chain
+    // carries Q/150 (series and parallel laws, Bruus 2008, ch. 4). The joints next to B sit
+    // between two hubs whose neighbour lists are too long to search, so they stay in the
+    // reduced system: the test holds that path to the same law.
+    let chains = 150;
+    let mut b = NetworkBuilder::new(Fluid::WATER_20C);
+    b.add_node("in", Port::Pressure(Pressure::from_si(5_000.0)))
+        .unwrap();
+    b.add_node("out", Port::Pressure(Pressure::from_si(0.0)))
+        .unwrap();
+    b.add_node("A", Port::Junction).unwrap();
+    b.add_node("B", Port::Junction).unwrap();
+    let s = section(&mut b);
+    let l = Length::from_si(2e-3);
+    let channel = |b: &mut NetworkBuilder, name: String, from: &str, to: &str| {
+        b.add_channel(&name, from, to, s, l).unwrap();
+    };
+    channel(&mut b, "feed".into(), "in", "A");
+    channel(&mut b, "drain".into(), "B", "out");
+    for i in 0..chains {
+        let (x, y) = (format!("x{i}"), format!("y{i}"));
+        b.add_node(&x, Port::Junction).unwrap();
+        b.add_node(&y, Port::Junction).unwrap();
+        channel(&mut b, format!("a{i}"), "A", &x);
+        channel(&mut b, format!("m{i}"), &x, &y);
+        channel(&mut b, format!("b{i}"), &y, "B");
+    }
+    let net = b.build().unwrap();
+    let solver = Solver::new(&net).unwrap();
+    assert!(solver.eliminated() < solver.system().dim(), "nothing kept");
+    let sol = solver.solve().unwrap();
+    let r = net.resistance(ChannelId(0));
+    let q = 5_000.0 / (2.0 * r + 3.0 * r / chains as f64);
+    let tol = 1e-12 * q;
+    assert!(
+        (sol.flows[0] - q).abs() <= tol,
+        "{:e} vs {q:e}",
+        sol.flows[0]
+    );
+    assert!((sol.flows[1] - q).abs() <= tol);
+    for k in 2..net.channels.len() {
+        let qc = q / chains as f64;
+        assert!(
+            (sol.flows[k] - qc).abs() <= tol / chains as f64,
+            "channel {k}"
+        );
+    }
+    let (e, w) = both(&net);
+    assert!(rel_diff(&e.flows, &w.flows) <= 1e-12);
+}
+
+#[test]
 fn a_large_star_meets_the_balance_at_its_centre() {
     // A centre joined to LARGE leaves: even leaves are pressure ports at p_i, odd leaves pumps
     // injecting q_i, and the centre drains to 0 Pa through one channel g₀. Closed form derived

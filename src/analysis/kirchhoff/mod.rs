@@ -130,17 +130,8 @@ pub enum SolveError {
 /// No unknown / no slot.
 const NONE: usize = usize::MAX;
 
-/// Where each channel's conductance lands in the matrix value array ([`NONE`] where the end
-/// is a pressure port).
-#[derive(Clone, Copy, Debug)]
-struct ChannelSlots {
-    /// Slot of the diagonal entry of `from` (if `from` is an unknown).
-    from_diag: usize,
-    /// Slot of the diagonal entry of `to` (if `to` is an unknown).
-    to_diag: usize,
-    /// Slot of the off-diagonal entry (if both ends are unknowns).
-    off: usize,
-}
+/// No off-diagonal slot (an end of the channel is a pressure port).
+const NO_SLOT: u32 = u32::MAX;
 
 /// The assembled structure of a network's Kirchhoff system: which node is which unknown,
 /// the sparsity pattern, and where each channel's conductance goes. It depends on the
@@ -156,7 +147,10 @@ pub struct KirchhoffSystem {
     unknown_of: Vec<usize>,
     node_of: Vec<usize>,
     pattern: SymmetricPattern,
-    slots: Vec<ChannelSlots>,
+    /// Per channel: the slot of its off-diagonal entry in the matrix values, [`NO_SLOT`] when
+    /// an end is a pressure port (its diagonal entries are the first of their columns). Slots
+    /// fit 32 bits: a network has fewer than 2³¹ nodes and 2³¹ channels.
+    off: Vec<u32>,
     /// Per channel: its (from, to) nodes, 8 bytes a channel. The passes over every channel
     /// after a solve (balance, flows, checks) read these rather than the network's channel
     /// records (72 bytes each, names included): on 10⁶ channels that is most of their cost.
@@ -242,30 +236,22 @@ impl KirchhoffSystem {
             }
         });
         drop(joined);
-        let diag = |u: usize| if u == NONE { NONE } else { slot_of[u] };
         let mut next_off = n;
-        let slots = ends
+        let off = ends
             .iter()
-            .map(|&e| {
-                let (a, b) = unknowns(e);
-                let off = if a != NONE && b != NONE {
+            .map(|&e| match unknowns(e) {
+                (a, b) if a != NONE && b != NONE => {
                     next_off += 1;
-                    slot_of[next_off - 1]
-                } else {
-                    NONE
-                };
-                ChannelSlots {
-                    from_diag: diag(a),
-                    to_diag: diag(b),
-                    off,
+                    slot_of[next_off - 1] as u32
                 }
+                _ => NO_SLOT,
             })
             .collect();
         KirchhoffSystem {
             unknown_of,
             node_of,
             pattern,
-            slots,
+            off,
             ends,
             role,
         }
@@ -315,15 +301,15 @@ impl KirchhoffSystem {
     /// Matrix values for channel conductances `g` [m³/(Pa·s)].
     pub fn matrix_values(&self, g: &[f64]) -> Vec<f64> {
         let mut values = vec![0.0; self.pattern.nnz()];
-        for (s, &gk) in self.slots.iter().zip(g) {
-            if s.from_diag != NONE {
-                values[s.from_diag] += gk;
+        for ((&[from, to], &off), &gk) in self.ends.iter().zip(&self.off).zip(g) {
+            for node in [from, to] {
+                let u = self.unknown_of[node as usize];
+                if u != NONE {
+                    values[self.diagonal_slot(u)] += gk;
+                }
             }
-            if s.to_diag != NONE {
-                values[s.to_diag] += gk;
-            }
-            if s.off != NONE {
-                values[s.off] -= gk;
+            if off != NO_SLOT {
+                values[off as usize] -= gk;
             }
         }
         values
@@ -389,7 +375,7 @@ impl KirchhoffSystem {
 
     /// Number of channels the system was built for.
     pub fn channels(&self) -> usize {
-        self.slots.len()
+        self.off.len()
     }
 }
 
