@@ -963,68 +963,37 @@ impl Eliminated<'_> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::fluid::Fluid;
-    use crate::network::{Network, NetworkBuilder, Port};
-    use crate::section::Shape;
-    use crate::units::{Length, Pressure};
-
-    /// Successive uniform draws of the project's counter-based generator.
-    struct Rng(u64);
-    impl Rng {
-        fn below(&mut self, n: usize) -> usize {
-            self.0 += 1;
-            let u = crate::analysis::spread::rng::uniform(5, self.0, 0, 0);
-            ((u * n as f64) as usize).min(n - 1)
-        }
-    }
+    use crate::analysis::kirchhoff::testnet::{Chip, Rng};
+    use crate::network::{Network, Port};
+    use crate::units::Pressure;
 
     /// A random tree of `n` nodes with `extra` random channels, a hub joined to many of the
     /// nodes (so that neighbour lists spill), and a few pressure ports.
     fn random_network(rng: &mut Rng, n: usize, extra: usize, hub: usize) -> Network {
-        let mut b = NetworkBuilder::new(Fluid::WATER_20C);
-        for i in 0..n {
-            let port = if i == 0 || rng.below(50) == 0 {
-                Port::Pressure(Pressure::from_si(100.0 * i as f64))
-            } else {
-                Port::Junction
-            };
-            b.add_node(&format!("n{i}"), port).unwrap();
-        }
-        let s = b
-            .add_section(
-                "s",
-                Shape::Circle {
-                    diameter: Length::from_si(1e-4),
-                },
-            )
-            .unwrap();
-        let mut k = 0;
-        let mut join = |b: &mut NetworkBuilder, i: usize, j: usize| {
-            let name = format!("c{k}");
-            k += 1;
-            b.add_channel(
-                &name,
-                &format!("n{i}"),
-                &format!("n{j}"),
-                s,
-                Length::from_si(1e-3),
-            )
-            .unwrap();
-        };
+        let ports: Vec<Port> = (0..n)
+            .map(|i| {
+                if i == 0 || rng.below(50) == 0 {
+                    Port::Pressure(Pressure::from_si(100.0 * i as f64))
+                } else {
+                    Port::Junction
+                }
+            })
+            .collect();
+        let mut chip = Chip::new(ports);
         for i in 1..n {
-            join(&mut b, rng.below(i), i);
+            chip.join(rng.below(i), i);
         }
         for _ in 0..extra {
             let (i, j) = (rng.below(n), rng.below(n));
             if i != j {
-                join(&mut b, i, j);
+                chip.join(i, j);
             }
         }
         for _ in 0..hub {
             let j = 1 + rng.below(n - 1);
-            join(&mut b, 1.min(n - 1), j.max(2).min(n - 1));
+            chip.join(1.min(n - 1), j.max(2).min(n - 1));
         }
-        b.build().unwrap()
+        chip.build()
     }
 
     /// Everything a plan decides, to compare two of them.
@@ -1037,7 +1006,7 @@ mod tests {
 
     #[test]
     fn both_ways_of_starting_take_the_same_steps() {
-        let mut rng = Rng(0);
+        let mut rng = Rng::new(5);
         let mut seen = [0usize; 2];
         for case in 0..300 {
             let n = 3 + rng.below(60);

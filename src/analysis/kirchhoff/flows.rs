@@ -286,67 +286,32 @@ pub(super) fn port_balance_miss(
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::fluid::Fluid;
-    use crate::network::NetworkBuilder;
-    use crate::section::Shape;
-    use crate::units::{Length, Pressure, VolumeFlow};
-
-    /// Successive uniform draws of the project's counter-based generator.
-    struct Rng(u64);
-    impl Rng {
-        fn unit(&mut self) -> f64 {
-            self.0 += 1;
-            crate::analysis::spread::rng::uniform(3, self.0, 0, 0)
-        }
-        fn below(&mut self, n: usize) -> usize {
-            ((self.unit() * n as f64) as usize).min(n - 1)
-        }
-    }
+    use crate::analysis::kirchhoff::testnet::{Chip, Rng};
+    use crate::units::{Pressure, VolumeFlow};
 
     /// A path of `n` nodes with extra random channels (parallel ones included), pressure
     /// ports at both ends and now and then a flow port.
     fn random_network(rng: &mut Rng, n: usize) -> Network {
-        let mut b = NetworkBuilder::new(Fluid::WATER_20C);
-        for i in 0..n {
-            let port = match (i, rng.below(7)) {
+        let ports: Vec<Port> = (0..n)
+            .map(|i| match (i, rng.below(7)) {
                 (0, _) => Port::Pressure(Pressure::from_si(1000.0)),
                 (i, _) if i == n - 1 => Port::Pressure(Pressure::from_si(0.0)),
                 (_, 0) => Port::Pressure(Pressure::from_si(300.0)),
                 (_, 1) => Port::Flow(VolumeFlow::from_si(1e-11)),
                 _ => Port::Junction,
-            };
-            b.add_node(&format!("n{i}"), port).unwrap();
-        }
-        let s = b
-            .add_section(
-                "s",
-                Shape::Circle {
-                    diameter: Length::from_si(1e-4),
-                },
-            )
-            .unwrap();
-        let mut k = 0;
-        let mut join = |b: &mut NetworkBuilder, i: usize, j: usize| {
-            b.add_channel(
-                &format!("c{k}"),
-                &format!("n{i}"),
-                &format!("n{j}"),
-                s,
-                Length::from_si(1e-3),
-            )
-            .unwrap();
-            k += 1;
-        };
+            })
+            .collect();
+        let mut chip = Chip::new(ports);
         for i in 1..n {
-            join(&mut b, i - 1, i);
+            chip.join(i - 1, i);
         }
         for _ in 0..n {
             let (i, j) = (rng.below(n), rng.below(n));
             if i != j {
-                join(&mut b, i, j);
+                chip.join(i, j);
             }
         }
-        b.build().unwrap()
+        chip.build()
     }
 
     /// The stiff mask from each node's total conductance agrees with the definition through
@@ -354,7 +319,7 @@ mod tests {
     /// conductances span twelve orders of magnitude and whose end pressures often cancel.
     #[test]
     fn stiff_channels_from_node_totals_meet_the_definition() {
-        let mut rng = Rng(0);
+        let mut rng = Rng::new(3);
         let mut stiff_seen = 0;
         for _ in 0..400 {
             let n = 3 + rng.below(20);

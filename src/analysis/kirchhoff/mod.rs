@@ -602,3 +602,73 @@ pub fn solve_with(
 pub fn solve(network: &Network) -> Result<FlowSolution, SolveError> {
     Solver::new(network)?.solve()
 }
+
+/// Random test networks shared by the unit tests of this module's parts.
+#[cfg(test)]
+pub(crate) mod testnet {
+    use crate::fluid::Fluid;
+    use crate::network::{Network, NetworkBuilder, Port, SectionId};
+    use crate::section::Shape;
+    use crate::units::Length;
+
+    /// Successive uniform draws of the project's counter-based generator, on one stream.
+    pub(crate) struct Rng {
+        stream: u64,
+        at: u64,
+    }
+
+    impl Rng {
+        pub(crate) fn new(stream: u64) -> Rng {
+            Rng { stream, at: 0 }
+        }
+
+        pub(crate) fn unit(&mut self) -> f64 {
+            self.at += 1;
+            crate::analysis::spread::rng::uniform(self.stream, self.at, 0, 0)
+        }
+
+        pub(crate) fn below(&mut self, n: usize) -> usize {
+            ((self.unit() * n as f64) as usize).min(n - 1)
+        }
+    }
+
+    /// Nodes n0, n1, … with the given ports, joined by channels c0, c1, … of one 100 µm round
+    /// section, 1 mm long.
+    pub(crate) struct Chip {
+        builder: NetworkBuilder,
+        section: SectionId,
+        channels: usize,
+    }
+
+    impl Chip {
+        pub(crate) fn new(ports: impl IntoIterator<Item = Port>) -> Chip {
+            let mut builder = NetworkBuilder::new(Fluid::WATER_20C);
+            for (i, port) in ports.into_iter().enumerate() {
+                builder.add_node(&format!("n{i}"), port).unwrap();
+            }
+            let diameter = Length::from_si(1e-4);
+            let section = builder
+                .add_section("s", Shape::Circle { diameter })
+                .unwrap();
+            Chip {
+                builder,
+                section,
+                channels: 0,
+            }
+        }
+
+        pub(crate) fn join(&mut self, i: usize, j: usize) {
+            let name = format!("c{}", self.channels);
+            self.channels += 1;
+            let (from, to) = (format!("n{i}"), format!("n{j}"));
+            let length = Length::from_si(1e-3);
+            self.builder
+                .add_channel(&name, &from, &to, self.section, length)
+                .unwrap();
+        }
+
+        pub(crate) fn build(self) -> Network {
+            self.builder.build().unwrap()
+        }
+    }
+}
