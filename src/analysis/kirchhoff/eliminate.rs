@@ -465,12 +465,9 @@ impl Joints {
     fn replace(&mut self, u: u32, v: u32, fill: Option<(u32, u32)>) {
         let r = &mut self.near[u as usize];
         if r.spill != NONE {
-            match fill {
-                Some((k, e)) => {
-                    r.degree -= 1;
-                    self.push(u, k, e);
-                }
-                None => r.degree -= 1,
+            r.degree -= 1;
+            if let Some((k, e)) = fill {
+                self.push(u, k, e);
             }
             return;
         }
