@@ -392,6 +392,24 @@ fn bad_json_is_explained_with_its_place() {
 }
 
 #[test]
+fn a_repeated_name_in_json_is_placed_at_its_second_definition() {
+    let text = r#"{
+  "fluid": {"viscosity": "1 mPa*s", "density": "1000 kg/m^3"},
+  "sections": {"s": {"shape": "circle", "diameter": "100 um"}},
+  "nodes": {"a": {"pressure": "1 bar"},
+    "b": {"pressure": "0 Pa"},
+    "a": {}},
+  "channels": {"c1": {"from": "a", "to": "b", "section": "s", "length": "1 mm"}}
+}"#;
+    let (code, err) = solve_text("chip.json", text);
+    assert_eq!(code, 2);
+    assert!(
+        err.contains("chip.json:6:5") && err.contains("'a' is defined twice"),
+        "{err}"
+    );
+}
+
+#[test]
 fn alias_bomb_is_refused_quickly() {
     // One large anchor referenced thousands of times: small file, enormous expansion.
     let mut text = String::from("fluid: {viscosity: 1 mPa*s, density: 1000 kg/m^3}\nbig: &big [");

@@ -19,9 +19,9 @@ pub fn locate(text: &str, path: &[&str]) -> Option<(usize, usize)> {
     let mut found = None;
     for key in path {
         match find_key(text, key, pos) {
-            Some(i) => {
-                found = Some(i);
-                pos = i + key.len();
+            Some((start, end)) => {
+                found = Some(start);
+                pos = end;
             }
             None => break,
         }
@@ -29,7 +29,9 @@ pub fn locate(text: &str, path: &[&str]) -> Option<(usize, usize)> {
     found.map(|i| line_col(text, i))
 }
 
-fn find_key(text: &str, key: &str, from: usize) -> Option<usize> {
+/// Where `key` is written as a mapping key at or after `from`: the start of the key (its
+/// opening quote, if quoted) and the end (past its closing quote).
+fn find_key(text: &str, key: &str, from: usize) -> Option<(usize, usize)> {
     if key.is_empty() {
         return None;
     }
@@ -54,7 +56,7 @@ fn find_key(text: &str, key: &str, from: usize) -> Option<usize> {
         }
         let after_ok = k < bytes.len() && bytes[k] == b':';
         if before_ok && after_ok && !in_comment(text, i) {
-            return Some(open);
+            return Some((open, close));
         }
         start = i + 1;
         while !text.is_char_boundary(start) {
@@ -90,5 +92,15 @@ mod tests {
         // Missing leaf: the deepest parent found.
         assert_eq!(locate(yaml, &["channels", "c3", "length"]), Some((6, 3)));
         assert_eq!(locate(yaml, &["absent"]), None);
+    }
+
+    #[test]
+    fn a_repeated_key_is_found_at_its_second_place() {
+        // The duplicate-name errors look for the name twice; a quoted JSON key must not match
+        // its own first place again.
+        let json = "{\"nodes\": {\"a\": {\"pressure\": \"1 bar\"},\n  \"b\": {},\n  \"a\": {}}}";
+        assert_eq!(locate(json, &["nodes", "a", "a"]), Some((3, 3)));
+        let yaml = "nodes:\n  a: {pressure: 1 bar}\n  b: {}\n  a: {}\n";
+        assert_eq!(locate(yaml, &["nodes", "a", "a"]), Some((4, 3)));
     }
 }
