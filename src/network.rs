@@ -260,8 +260,8 @@ pub enum NetworkError {
     #[error("the chip has no channels; add at least one channel between two nodes")]
     Empty,
     #[error(
-        "the chip has {nodes} nodes and {channels} channels; rillnet solves at most {limit} of \
-         each. Split the network into parts joined at pressure ports"
+        "the chip has {nodes} nodes and {channels} channels; rillnet solves at most {limit} \
+         nodes and channels together. Split the network into parts joined at pressure ports"
     )]
     TooLarge {
         nodes: usize,
@@ -866,10 +866,10 @@ impl NetworkBuilder {
         if self.channels.is_empty() {
             return Err(NetworkError::Empty);
         }
-        // Node and channel indices are held in 32 bits in the solver's compact topology, and
-        // so are the matrix slots (one per unknown and one per channel at most).
+        // Node and channel indices, matrix slots (one per unknown and one per channel at
+        // most) and the elimination's edge numbers are held in 32 bits with the top bit free.
         let limit = i32::MAX as usize;
-        if self.nodes.len() > limit || self.channels.len() > limit {
+        if self.nodes.len() + self.channels.len() > limit {
             return Err(NetworkError::TooLarge {
                 nodes: self.nodes.len(),
                 channels: self.channels.len(),

@@ -49,7 +49,8 @@ use crate::solver::{Cholesky, Parallelism, SolverError, SymbolicCholesky, Symmet
 /// No index.
 const NONE: u32 = u32::MAX;
 
-/// Tags an unknown in [`Plan::channel_to`] (indices stay below 2³¹, see [`Plan::new`]).
+/// Tags an unknown in [`Plan::channel_to`] (unknowns and edges stay below 2³¹: a network
+/// has fewer than 2³¹ nodes and channels together).
 const PORT_SIDE: u32 = 1 << 31;
 
 /// A series joint between two unknowns whose neighbours have both spilled to lists is
@@ -432,8 +433,6 @@ impl Joints {
     /// the shorter spilled one).
     #[inline]
     fn between(&mut self, j: u32, k: u32) -> Between {
-        // Fields are read one by one: a whole-record copy here would wait for the narrow
-        // stores of the previous step to reach the cache.
         let (lj, lk) = (self.near[j as usize].spill, self.near[k as usize].spill);
         if lj == NONE || lk == NONE {
             let (a, b) = if lj == NONE { (j, k) } else { (k, j) };
